@@ -1,0 +1,70 @@
+//! Stage `apply_efficiency`: each detector's detection efficiency, constant or interpolated
+//! in a table against the detected particle's lab energy. Adds `efficiency` and
+//! `efficiency_err`; reads `energy_lab_mev` when any detector has a table.
+
+use polars::prelude::DataFrame;
+use schemars::JsonSchema;
+use serde::Deserialize;
+
+use crate::physics::interpolate;
+use crate::table::{f64_values, row_detectors, with_f64_columns};
+use crate::{Problem, RunContext, Setup, Stage, StageError};
+
+/// Settings of `apply_efficiency`. The efficiencies themselves belong to the detectors
+/// (`detectors[i].efficiency`, `efficiency_err`, `efficiency_table`).
+#[derive(Debug, Clone, Default, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct ApplyEfficiencyConfig {}
+
+/// The built stage.
+#[derive(Debug, Clone)]
+pub struct ApplyEfficiency {
+    uses_energy: bool,
+}
+
+impl ApplyEfficiencyConfig {
+    /// Build the stage; it needs `energy_lab_mev` when a detector has an efficiency table.
+    ///
+    /// # Errors
+    /// None today; the detectors were checked with the set-up.
+    pub fn build(&self, setup: &Setup) -> Result<ApplyEfficiency, Vec<Problem>> {
+        Ok(ApplyEfficiency { uses_energy: setup.detectors.iter().any(|d| d.efficiency_table.is_some()) })
+    }
+}
+
+impl Stage for ApplyEfficiency {
+    fn name(&self) -> &'static str {
+        "apply_efficiency"
+    }
+    fn needs(&self) -> Vec<&'static str> {
+        if self.uses_energy {
+            vec!["detector", "energy_lab_mev"]
+        } else {
+            vec!["detector"]
+        }
+    }
+    fn adds(&self) -> Vec<&'static str> {
+        vec!["efficiency", "efficiency_err"]
+    }
+    fn run(&self, table: DataFrame, ctx: &RunContext<'_>) -> Result<DataFrame, StageError> {
+        let detectors = row_detectors(&table, ctx.setup)?;
+        let energies = if self.uses_energy { f64_values(&table, "energy_lab_mev")? } else { vec![f64::NAN; table.height()] };
+        let mut value = Vec::with_capacity(detectors.len());
+        let mut err = Vec::with_capacity(detectors.len());
+        for (row, (det, energy)) in detectors.iter().zip(energies).enumerate() {
+            match &det.efficiency_table {
+                None => {
+                    value.push(det.efficiency);
+                    err.push(det.efficiency_err);
+                }
+                Some(t) => {
+                    let context = || format!("data row {}, detector {} efficiency_table", row + 1, det.id);
+                    let at = |ys: &[f64]| interpolate::linear(&t.energy_lab_mev, ys, energy, "energy_lab_mev").map_err(|source| StageError::Physics { context: context(), source });
+                    value.push(at(&t.efficiency)?);
+                    err.push(if t.efficiency_err.is_empty() { 0.0 } else { at(&t.efficiency_err)? });
+                }
+            }
+        }
+        with_f64_columns(table, vec![("efficiency", value), ("efficiency_err", err)])
+    }
+}

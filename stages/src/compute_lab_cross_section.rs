@@ -1,0 +1,137 @@
+//! Stage `compute_lab_cross_section`: the absolute lab-frame differential cross section of
+//! each peak, with its uncertainty in three separate parts:
+//!
+//! - `stat_err_lab_mb_sr`: counting statistics of the peak and its background;
+//! - `sys_err_lab_mb_sr`: point-to-point systematic (efficiency, solid angle), which differs
+//!   between detectors;
+//! - `norm_rel_err`: the common normalisation (charge, target, live fraction), the same
+//!   relative error for every point of a run, kept apart so that fits can treat it as one
+//!   scale factor.
+
+use polars::prelude::DataFrame;
+use schemars::JsonSchema;
+use serde::Deserialize;
+
+use crate::physics::cross_section::lab_mb_sr_per_count;
+use crate::physics::uncertainty::quadrature;
+use crate::table::{f64_values, with_f64_columns};
+use crate::{Problem, RunContext, Stage, StageError};
+
+/// Settings of `compute_lab_cross_section` (none yet).
+#[derive(Debug, Clone, Default, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct ComputeLabCrossSectionConfig {}
+
+/// The built stage.
+#[derive(Debug, Clone)]
+pub struct ComputeLabCrossSection;
+
+impl ComputeLabCrossSectionConfig {
+    /// Build the stage.
+    ///
+    /// # Errors
+    /// None today.
+    pub fn build(&self) -> Result<ComputeLabCrossSection, Vec<Problem>> {
+        Ok(ComputeLabCrossSection)
+    }
+}
+
+/// Inputs of one point's lab cross section, each with its standard uncertainty.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct LabPoint {
+    /// Net counts Y and u(Y).
+    pub counts_net: (f64, f64),
+    /// Efficiency ε and u(ε).
+    pub efficiency: (f64, f64),
+    /// Solid angle in msr and its uncertainty.
+    pub solid_angle_msr: (f64, f64),
+    /// Live fraction and its uncertainty.
+    pub live_fraction: (f64, f64),
+    /// Beam particles and their relative uncertainty.
+    pub beam_particles: (f64, f64),
+    /// Target atoms per cm² and their relative uncertainty.
+    pub target_atoms_per_cm2: (f64, f64),
+}
+
+/// A lab cross section with its three uncertainty parts.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct LabCrossSection {
+    /// dσ/dΩ_lab in mb/sr.
+    pub dsdo_mb_sr: f64,
+    /// Statistical standard uncertainty in mb/sr.
+    pub stat_err_mb_sr: f64,
+    /// Point-to-point systematic standard uncertainty in mb/sr.
+    pub sys_err_mb_sr: f64,
+    /// Common normalisation relative standard uncertainty.
+    pub norm_rel_err: f64,
+}
+
+/// dσ/dΩ_lab = Y / (ε f_live N_beam n_t ΔΩ) (see [`lab_mb_sr_per_count`]) and its
+/// uncertainty. For a product of powers of independent inputs the relative uncertainties add
+/// in quadrature (JCGM 100:2008, section 5.1.6), grouped as
+///     u_stat = k u(Y),   u_sys = |σ| sqrt((u(ε)/ε)² + (u(ΔΩ)/ΔΩ)²),
+///     u_norm/σ = sqrt((u(f)/f)² + u_rel(N_beam)² + u_rel(n_t)²),   k = σ / Y
+/// The statistical part is k·u(Y) rather than |σ|·u(Y)/Y, so that a peak with zero net
+/// counts keeps its honest error.
+pub fn lab_cross_section(p: &LabPoint) -> LabCrossSection {
+    let k = lab_mb_sr_per_count(p.efficiency.0, p.live_fraction.0, p.beam_particles.0, p.target_atoms_per_cm2.0, p.solid_angle_msr.0);
+    let dsdo = k * p.counts_net.0;
+    LabCrossSection {
+        dsdo_mb_sr: dsdo,
+        stat_err_mb_sr: k * p.counts_net.1,
+        sys_err_mb_sr: dsdo.abs() * quadrature(&[p.efficiency.1 / p.efficiency.0, p.solid_angle_msr.1 / p.solid_angle_msr.0]),
+        norm_rel_err: quadrature(&[p.live_fraction.1 / p.live_fraction.0, p.beam_particles.1, p.target_atoms_per_cm2.1]),
+    }
+}
+
+const INPUTS: [&str; 12] = [
+    "counts_net",
+    "counts_net_err",
+    "efficiency",
+    "efficiency_err",
+    "solid_angle_msr",
+    "solid_angle_err_msr",
+    "live_fraction",
+    "live_fraction_err",
+    "beam_particles",
+    "beam_particles_rel_err",
+    "target_atoms_per_cm2",
+    "target_atoms_rel_err",
+];
+
+impl Stage for ComputeLabCrossSection {
+    fn name(&self) -> &'static str {
+        "compute_lab_cross_section"
+    }
+    fn needs(&self) -> Vec<&'static str> {
+        INPUTS.to_vec()
+    }
+    fn adds(&self) -> Vec<&'static str> {
+        vec!["dsdo_lab_mb_sr", "stat_err_lab_mb_sr", "sys_err_lab_mb_sr", "norm_rel_err"]
+    }
+    fn run(&self, table: DataFrame, _ctx: &RunContext<'_>) -> Result<DataFrame, StageError> {
+        let cols = INPUTS.iter().map(|name| f64_values(&table, name)).collect::<Result<Vec<_>, _>>()?;
+        let pair = |i: usize, row: usize| (cols[i][row], cols[i + 1][row]);
+        let points: Vec<LabCrossSection> = (0..table.height())
+            .map(|r| {
+                lab_cross_section(&LabPoint {
+                    counts_net: pair(0, r),
+                    efficiency: pair(2, r),
+                    solid_angle_msr: pair(4, r),
+                    live_fraction: pair(6, r),
+                    beam_particles: pair(8, r),
+                    target_atoms_per_cm2: pair(10, r),
+                })
+            })
+            .collect();
+        with_f64_columns(
+            table,
+            vec![
+                ("dsdo_lab_mb_sr", points.iter().map(|p| p.dsdo_mb_sr).collect()),
+                ("stat_err_lab_mb_sr", points.iter().map(|p| p.stat_err_mb_sr).collect()),
+                ("sys_err_lab_mb_sr", points.iter().map(|p| p.sys_err_mb_sr).collect()),
+                ("norm_rel_err", points.iter().map(|p| p.norm_rel_err).collect()),
+            ],
+        )
+    }
+}

@@ -1,0 +1,59 @@
+//! Errors a stage can raise while running on one run's table.
+
+use crate::physics::PhysicsError;
+use polars::prelude::PolarsError;
+
+/// Why a stage could not finish a run. Every variant names what is needed to find and fix
+/// the problem: the column, the data row (1-based), the value.
+#[derive(Debug, thiserror::Error)]
+pub enum StageError {
+    /// A column the stage needs is not in the table.
+    #[error("column `{column}` is missing; columns found: {found}")]
+    MissingColumn {
+        /// The column needed.
+        column: String,
+        /// The columns that are there, comma separated.
+        found: String,
+    },
+    /// A value the stage cannot use.
+    #[error("data row {row}, column `{column}`: found {value}, expected {expected}")]
+    BadValue {
+        /// Data row, 1-based (the line in a CSV file with a header is one more).
+        row: usize,
+        /// The column.
+        column: String,
+        /// The value found.
+        value: String,
+        /// What is accepted.
+        expected: String,
+    },
+    /// A detector id that the config does not list.
+    #[error("data row {row}: detector `{detector}` is not among the config's detectors ({known})")]
+    UnknownDetector {
+        /// Data row, 1-based.
+        row: usize,
+        /// The id found.
+        detector: String,
+        /// The ids the config knows, comma separated.
+        known: String,
+    },
+    /// The run record lacks a value the stage needs.
+    #[error("the run record has no `{key}`, which {needed_by} needs")]
+    MissingRunValue {
+        /// The run-record key.
+        key: String,
+        /// The stage and setting that need it.
+        needed_by: String,
+    },
+    /// A physics formula outside its range of validity.
+    #[error("{context}: {source}")]
+    Physics {
+        /// Where: detector, row or run quantity.
+        context: String,
+        /// What went wrong.
+        source: PhysicsError,
+    },
+    /// The table library failed.
+    #[error("table operation failed: {0}")]
+    Table(#[from] PolarsError),
+}

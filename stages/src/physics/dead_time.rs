@@ -1,0 +1,177 @@
+//! Dead-time corrections: the fraction of the run during which the acquisition could accept
+//! an event (the live fraction f_live), by measurement (clocks, pulser, trigger scalers) or
+//! by a model of the counting system with a resolving time τ.
+//!
+//! Source for the models: G. F. Knoll, Radiation Detection and Measurement (Wiley, 4th ed.
+//! 2010), ch. 4, section VII "Dead time", Eqs. (4.23) non-paralyzable and (4.24) paralyzable
+//! (equation numbers from memory).
+
+use super::PhysicsError;
+
+/// A live fraction with its standard uncertainty (absolute).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct LiveFraction {
+    /// f_live in (0, 1].
+    pub value: f64,
+    /// Standard uncertainty of f_live.
+    pub err: f64,
+}
+
+/// Live fraction from the live and real clocks: f = t_live / t_real (common practice).
+/// The clocks are taken as exact; a method uncertainty is added by the caller.
+pub fn clock_ratio(live_time_s: f64, real_time_s: f64) -> LiveFraction {
+    LiveFraction { value: live_time_s / real_time_s, err: 0.0 }
+}
+
+/// Live fraction from a ratio of counts where each of N offered events is kept with
+/// probability f (pulser: recorded/sent; triggers: accepted/raw):
+///     f = k / N,   u(f) = sqrt(f (1 - f) / N)
+/// The binomial standard deviation of a proportion (common practice; e.g. Knoll ch. 3).
+pub fn count_ratio(kept: u64, offered: u64) -> LiveFraction {
+    let n = offered as f64;
+    let f = kept as f64 / n;
+    LiveFraction { value: f, err: (f * (1.0 - f) / n).sqrt() }
+}
+
+/// Non-paralyzable model: each recorded event blocks the system for τ, and events arriving
+/// meanwhile are lost without extending the blocked time (Knoll Eq. 4.23):
+///     n = m / (1 - m τ),   f = m / n = 1 - m τ,   df/dτ = -m
+/// m: recorded rate in 1/s, n: true rate in 1/s, τ: resolving time in s. Holds for m τ < 1.
+///
+/// Returns f and df/dτ (per second of τ).
+///
+/// # Errors
+/// [`PhysicsError::NonParalyzableSaturated`] when m τ >= 1.
+pub fn non_paralyzable(recorded_rate_per_s: f64, resolving_time_s: f64) -> Result<(f64, f64), PhysicsError> {
+    let m_tau = recorded_rate_per_s * resolving_time_s;
+    if m_tau >= 1.0 {
+        return Err(PhysicsError::NonParalyzableSaturated {
+            rate_per_s: recorded_rate_per_s,
+            resolving_time_us: resolving_time_s * 1e6,
+            m_tau,
+        });
+    }
+    Ok((1.0 - m_tau, -recorded_rate_per_s))
+}
+
+/// Paralyzable model: every arriving event, recorded or not, extends the blocked time by τ
+/// (Knoll Eq. 4.24):
+///     m = n exp(-n τ)
+/// Inverted on the low-rate branch (n τ <= 1) with the principal branch W_0 of the Lambert W
+/// function (W e^W = x; R. M. Corless et al., Adv. Comput. Math. 5 (1996) 329):
+///     n = -W_0(-m τ) / τ,   f = m / n = exp(W_0(-m τ)),
+///     df/dτ = f W / (τ (1 + W))   with W = W_0(-m τ)
+/// Holds for m τ <= 1/e; above that no true rate gives the recorded one.
+///
+/// Returns f and df/dτ (per second of τ).
+///
+/// # Errors
+/// [`PhysicsError::ParalyzableAboveMaximum`] when m τ > 1/e.
+pub fn paralyzable(recorded_rate_per_s: f64, resolving_time_s: f64) -> Result<(f64, f64), PhysicsError> {
+    let x = -recorded_rate_per_s * resolving_time_s;
+    let w = lambert_w0(x).ok_or(PhysicsError::ParalyzableAboveMaximum {
+        rate_per_s: recorded_rate_per_s,
+        max_rate_per_s: 1.0 / (std::f64::consts::E * resolving_time_s),
+        resolving_time_us: resolving_time_s * 1e6,
+    })?;
+    let f = w.exp();
+    let df_dtau = if x == 0.0 { -recorded_rate_per_s } else { f * w / (resolving_time_s * (1.0 + w)) };
+    Ok((f, df_dtau))
+}
+
+/// True rate n in 1/s of the paralyzable model for a recorded rate m and resolving time τ in s:
+/// n = -W_0(-m τ)/τ (see [`paralyzable`]); `None` above the maximum observable rate.
+pub fn paralyzable_true_rate(recorded_rate_per_s: f64, resolving_time_s: f64) -> Option<f64> {
+    let x = -recorded_rate_per_s * resolving_time_s;
+    if x == 0.0 {
+        return Some(recorded_rate_per_s);
+    }
+    lambert_w0(x).map(|w| -w / resolving_time_s)
+}
+
+/// Principal branch W_0(x) of the Lambert W function for real x in [-1/e, 0], the solution
+/// of w e^w = x with w >= -1.
+///
+/// Start: the branch-point series w ≈ -1 + p - p²/3 + 11p³/72 with p = sqrt(2(e x + 1)) near
+/// x = -1/e, else w ≈ x; then Halley's iteration
+///     w ← w - r / (e^w (w + 1) - (w + 2) r / (2w + 2)),   r = w e^w - x
+/// (Corless et al., Adv. Comput. Math. 5 (1996) 329, Eqs. 4.22 and 5.9). Returns `None`
+/// for x < -1/e (no real solution) or x not finite; x > 0 is outside the range this
+/// module needs and also gives `None`.
+pub fn lambert_w0(x: f64) -> Option<f64> {
+    let branch_point = -1.0 / std::f64::consts::E;
+    if !x.is_finite() || x > 0.0 || x < branch_point {
+        return None;
+    }
+    if x == 0.0 {
+        return Some(0.0);
+    }
+    let p = (2.0 * (std::f64::consts::E * x + 1.0)).max(0.0).sqrt();
+    let mut w = if p < 0.5 { -1.0 + p - p * p / 3.0 + 11.0 / 72.0 * p * p * p } else { x * (1.0 - x) };
+    for _ in 0..64 {
+        let ew = w.exp();
+        let r = w * ew - x;
+        if w <= -1.0 + 1e-15 {
+            break;
+        }
+        let step = r / (ew * (w + 1.0) - (w + 2.0) * r / (2.0 * w + 2.0));
+        w -= step;
+        if step.abs() <= 4.0 * f64::EPSILON * w.abs().max(f64::MIN_POSITIVE) {
+            break;
+        }
+    }
+    Some(w.max(-1.0))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use approx::assert_relative_eq;
+
+    #[test]
+    fn lambert_w0_solves_its_defining_equation() {
+        // w e^w = x is the definition (Corless et al. 1996, Eq. 1.1).
+        for x in [-0.3678, -0.3, -0.1, -1e-3, -1e-9] {
+            let w = lambert_w0(x).expect("in range");
+            assert_relative_eq!(w * w.exp(), x, max_relative = 1e-13);
+        }
+        // W_0(-1/e) = -1 at the branch point (Corless et al. 1996, section 4).
+        assert_relative_eq!(lambert_w0(-1.0 / std::f64::consts::E).expect("branch point"), -1.0, epsilon = 1e-7);
+        assert_eq!(lambert_w0(-0.4), None);
+    }
+
+    #[test]
+    fn models_agree_at_low_rate_and_differ_at_high_rate() {
+        // At m τ → 0 both models give f = 1 - m τ to first order (Knoll ch. 4).
+        let (f_np, _) = non_paralyzable(100.0, 1e-6).expect("valid");
+        let (f_p, _) = paralyzable(100.0, 1e-6).expect("valid");
+        assert_relative_eq!(f_np, 1.0 - 1e-4, max_relative = 1e-15);
+        assert_relative_eq!(f_p, f_np, max_relative = 1e-7);
+        // At m τ = 0.3 the paralyzable system has lost more (f = e^{-nτ} with nτ > mτ/(1-mτ)).
+        let (f_np, _) = non_paralyzable(3e5, 1e-6).expect("valid");
+        let (f_p, _) = paralyzable(3e5, 1e-6).expect("valid");
+        assert!(f_p < f_np);
+    }
+
+    #[test]
+    fn paralyzable_derivative_matches_finite_difference() {
+        let (m, tau, h) = (2e5, 1.5e-6, 1e-12);
+        let (_, d) = paralyzable(m, tau).expect("valid");
+        let fd = (paralyzable(m, tau + h).expect("valid").0 - paralyzable(m, tau - h).expect("valid").0) / (2.0 * h);
+        assert_relative_eq!(d, fd, max_relative = 1e-6);
+    }
+
+    #[test]
+    fn saturated_rates_are_errors_not_nan() {
+        assert!(matches!(non_paralyzable(1e6, 1e-6), Err(PhysicsError::NonParalyzableSaturated { .. })));
+        assert!(matches!(paralyzable(4e5, 1e-6), Err(PhysicsError::ParalyzableAboveMaximum { .. })));
+    }
+
+    #[test]
+    fn count_ratio_is_binomial() {
+        // 900 of 1000 kept: f = 0.9, u = sqrt(0.9 · 0.1 / 1000) (binomial, common practice).
+        let f = count_ratio(900, 1000);
+        assert_relative_eq!(f.value, 0.9, max_relative = 1e-15);
+        assert_relative_eq!(f.err, (0.09f64 / 1000.0).sqrt(), max_relative = 1e-15);
+    }
+}

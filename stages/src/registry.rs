@@ -1,0 +1,52 @@
+//! The registry of stages: one tagged enum, one variant per stage, selected by the YAML
+//! `type:` key. Adding a stage means a new module, one variant here, regenerated schemas
+//! and an example in `sample-runs/`; the exhaustive `match` shows every place to wire.
+
+use schemars::JsonSchema;
+use serde::Deserialize;
+
+use crate::apply_efficiency::ApplyEfficiencyConfig;
+use crate::compute_lab_cross_section::ComputeLabCrossSectionConfig;
+use crate::compute_solid_angle::ComputeSolidAngleConfig;
+use crate::correct_dead_time::CorrectDeadTimeConfig;
+use crate::normalise::NormaliseConfig;
+use crate::subtract_background::SubtractBackgroundConfig;
+use crate::{Problem, Setup, Stage};
+
+/// One entry of the config's `stages:` list; `type:` names the stage.
+#[derive(Debug, Clone, Deserialize, JsonSchema)]
+#[serde(tag = "type", rename_all = "snake_case")]
+pub enum StageConfig {
+    /// Net counts from gross counts and background.
+    SubtractBackground(SubtractBackgroundConfig),
+    /// Live fraction of the acquisition.
+    CorrectDeadTime(CorrectDeadTimeConfig),
+    /// Detection efficiency per detector.
+    ApplyEfficiency(ApplyEfficiencyConfig),
+    /// Solid angle per detector from its aperture.
+    ComputeSolidAngle(ComputeSolidAngleConfig),
+    /// Beam particles and target atoms per cm².
+    Normalise(NormaliseConfig),
+    /// Absolute lab differential cross section with its uncertainty parts.
+    ComputeLabCrossSection(ComputeLabCrossSectionConfig),
+}
+
+/// The `type:` names, in the order a reduction usually runs them.
+pub const STAGE_TYPES: [&str; 6] = ["subtract_background", "correct_dead_time", "apply_efficiency", "compute_solid_angle", "normalise", "compute_lab_cross_section"];
+
+impl StageConfig {
+    /// Check the settings against the set-up and build the stage.
+    ///
+    /// # Errors
+    /// Every problem of the settings, keys relative to the stage entry.
+    pub fn build(&self, setup: &Setup) -> Result<Box<dyn Stage>, Vec<Problem>> {
+        Ok(match self {
+            StageConfig::SubtractBackground(c) => Box::new(c.build()?),
+            StageConfig::CorrectDeadTime(c) => Box::new(c.build()?),
+            StageConfig::ApplyEfficiency(c) => Box::new(c.build(setup)?),
+            StageConfig::ComputeSolidAngle(c) => Box::new(c.build()?),
+            StageConfig::Normalise(c) => Box::new(c.build(setup)?),
+            StageConfig::ComputeLabCrossSection(c) => Box::new(c.build()?),
+        })
+    }
+}

@@ -1,0 +1,468 @@
+//! The experiment as the config describes it (reaction, target, detectors) and one run's
+//! record (charge, clocks, scalers). These are plain structs, deserialized exactly as
+//! written; `validate` checks each value's range and reports every problem with its key.
+
+use std::borrow::Cow;
+use std::collections::HashMap;
+
+use schemars::{json_schema, JsonSchema, Schema, SchemaGenerator};
+use serde::{Deserialize, Deserializer};
+
+use crate::problem::Checks;
+use crate::Problem;
+
+/// An identifier written as a string or a whole number (`D07`, `7`, `"0101"`), kept as text.
+#[derive(Debug, Clone, PartialEq, Eq, Hash, PartialOrd, Ord)]
+pub struct Id(pub String);
+
+impl<'de> Deserialize<'de> for Id {
+    fn deserialize<D: Deserializer<'de>>(deserializer: D) -> Result<Self, D::Error> {
+        struct IdVisitor;
+        impl serde::de::Visitor<'_> for IdVisitor {
+            type Value = Id;
+            fn expecting(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+                f.write_str("a string or a whole number")
+            }
+            fn visit_str<E: serde::de::Error>(self, v: &str) -> Result<Id, E> {
+                if v.trim().is_empty() {
+                    return Err(E::invalid_value(serde::de::Unexpected::Str(v), &self));
+                }
+                Ok(Id(v.to_string()))
+            }
+            fn visit_u64<E: serde::de::Error>(self, v: u64) -> Result<Id, E> {
+                Ok(Id(v.to_string()))
+            }
+            fn visit_i64<E: serde::de::Error>(self, v: i64) -> Result<Id, E> {
+                Ok(Id(v.to_string()))
+            }
+        }
+        deserializer.deserialize_any(IdVisitor)
+    }
+}
+
+impl JsonSchema for Id {
+    fn schema_name() -> Cow<'static, str> {
+        "Id".into()
+    }
+    fn json_schema(_: &mut SchemaGenerator) -> Schema {
+        json_schema!({
+            "description": "An identifier: a non-empty string or a whole number, kept as text.",
+            "type": ["string", "integer"]
+        })
+    }
+}
+
+impl std::fmt::Display for Id {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(&self.0)
+    }
+}
+
+fn one() -> f64 {
+    1.0
+}
+
+/// The nuclear reaction: beam, target nucleus and beam energy.
+#[derive(Debug, Clone, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct ReactionConfig {
+    /// Beam particle as physicists write it (`4He`, `alpha`, `p`, `16O`).
+    pub beam: String,
+    /// Target nucleus (`58Ni`, `197Au`).
+    pub target: String,
+    /// Beam kinetic energy in the lab at the target centre, in MeV; > 0.
+    pub energy_mev: f64,
+    /// Charge state q of the beam ions at the charge collector (the integrated charge is
+    /// q·e per ion); a whole number >= 1.
+    pub beam_charge_state: u32,
+}
+
+impl ReactionConfig {
+    /// Every range problem of the reaction section.
+    pub fn validate(&self) -> Vec<Problem> {
+        let mut c = Checks::default();
+        c.require(!self.beam.trim().is_empty(), "beam", "an empty name", "a nuclide such as 4He");
+        c.require(!self.target.trim().is_empty(), "target", "an empty name", "a nuclide such as 58Ni");
+        c.positive("energy_mev", self.energy_mev);
+        c.require(self.beam_charge_state >= 1, "beam_charge_state", self.beam_charge_state, "a whole number >= 1");
+        c.problems
+    }
+}
+
+/// The target foil: its areal density and what it is made of.
+#[derive(Debug, Clone, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct TargetConfig {
+    /// Areal density of the target material in µg/cm² (measured along the foil normal);
+    /// give this or `areal_density_mg_cm2`, not both; > 0.
+    #[serde(default)]
+    pub areal_density_ug_cm2: Option<f64>,
+    /// Areal density of the target material in mg/cm²; give this or
+    /// `areal_density_ug_cm2`, not both; > 0.
+    #[serde(default)]
+    pub areal_density_mg_cm2: Option<f64>,
+    /// Relative standard uncertainty of the areal density; default 0, range [0, 1).
+    #[serde(default)]
+    pub areal_density_rel_err: f64,
+    /// Molar mass of the target material in g/mol (for an enriched foil, the mean of its
+    /// isotopes); > 0.
+    pub molar_mass_g_mol: f64,
+    /// Atom fraction of the scattering isotope in the target material; default 1, range
+    /// (0, 1].
+    #[serde(default = "one")]
+    pub isotopic_fraction: f64,
+    /// Angle between the foil normal and the beam, in degrees; the path through the foil is
+    /// longer by 1/cos(tilt). Default 0, range [0, 90).
+    #[serde(default)]
+    pub tilt_deg: f64,
+}
+
+impl TargetConfig {
+    /// Areal density in g/cm², whichever unit was written; `None` if neither or both were.
+    pub fn areal_density_g_cm2(&self) -> Option<f64> {
+        match (self.areal_density_ug_cm2, self.areal_density_mg_cm2) {
+            (Some(ug), None) => Some(ug * 1e-6),
+            (None, Some(mg)) => Some(mg * 1e-3),
+            _ => None,
+        }
+    }
+
+    /// Every range problem of the target section.
+    pub fn validate(&self) -> Vec<Problem> {
+        let mut c = Checks::default();
+        match (self.areal_density_ug_cm2, self.areal_density_mg_cm2) {
+            (Some(v), None) => c.positive("areal_density_ug_cm2", v),
+            (None, Some(v)) => c.positive("areal_density_mg_cm2", v),
+            (None, None) => c.require(false, "areal_density_ug_cm2", "missing", "areal_density_ug_cm2 or areal_density_mg_cm2"),
+            (Some(_), Some(_)) => c.require(false, "areal_density_mg_cm2", "both areal_density_ug_cm2 and areal_density_mg_cm2", "only one of the two"),
+        }
+        c.rel_err("areal_density_rel_err", self.areal_density_rel_err);
+        c.positive("molar_mass_g_mol", self.molar_mass_g_mol);
+        c.fraction("isotopic_fraction", self.isotopic_fraction);
+        c.require((0.0..90.0).contains(&self.tilt_deg), "tilt_deg", self.tilt_deg, "an angle in [0, 90) degrees");
+        c.problems
+    }
+}
+
+/// The aperture that defines a detector's solid angle.
+#[derive(Debug, Clone, Deserialize, JsonSchema)]
+#[serde(tag = "shape", rename_all = "snake_case", deny_unknown_fields)]
+pub enum ApertureConfig {
+    /// A circular hole centred on, and normal to, the line from the target.
+    Circle {
+        /// Radius of the hole in mm; > 0.
+        radius_mm: f64,
+        /// Standard uncertainty of the radius in mm; default 0, >= 0.
+        #[serde(default)]
+        radius_err_mm: f64,
+    },
+    /// A rectangular slit centred on, and normal to, the line from the target.
+    Rectangle {
+        /// Half of the width (in the scattering plane) in mm; > 0.
+        half_width_mm: f64,
+        /// Half of the height (out of the scattering plane) in mm; > 0.
+        half_height_mm: f64,
+        /// Standard uncertainty of the half-width in mm; default 0, >= 0.
+        #[serde(default)]
+        half_width_err_mm: f64,
+        /// Standard uncertainty of the half-height in mm; default 0, >= 0.
+        #[serde(default)]
+        half_height_err_mm: f64,
+    },
+    /// A solid angle measured directly (for example with a calibrated source).
+    Given {
+        /// Solid angle in msr; > 0.
+        solid_angle_msr: f64,
+        /// Standard uncertainty of the solid angle in msr; default 0, >= 0.
+        #[serde(default)]
+        solid_angle_err_msr: f64,
+    },
+}
+
+/// Detection efficiency tabulated against the detected particle's lab energy; linear
+/// interpolation between points, no extrapolation.
+#[derive(Debug, Clone, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct EfficiencyTableConfig {
+    /// Lab energies in MeV, strictly increasing; at least 2 points.
+    pub energy_lab_mev: Vec<f64>,
+    /// Efficiency at each energy, each in (0, 1].
+    pub efficiency: Vec<f64>,
+    /// Standard uncertainty at each energy (absolute); default all 0.
+    #[serde(default)]
+    pub efficiency_err: Vec<f64>,
+}
+
+/// One detector (telescope) of the set-up.
+#[derive(Debug, Clone, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct DetectorConfig {
+    /// Detector name as it appears in the yields tables (`D07`, or a number).
+    pub id: Id,
+    /// Lab scattering angle of the detector centre in degrees; in (0, 180).
+    pub theta_lab_deg: f64,
+    /// Standard uncertainty of the lab angle in degrees; default 0, >= 0.
+    #[serde(default)]
+    pub theta_lab_err_deg: f64,
+    /// Distance from the target centre to the defining aperture in mm; needed for circle
+    /// and rectangle apertures; > 0.
+    #[serde(default)]
+    pub distance_mm: Option<f64>,
+    /// Standard uncertainty of the distance in mm; default 0, >= 0.
+    #[serde(default)]
+    pub distance_err_mm: f64,
+    /// The defining aperture: `shape: circle`, `rectangle` or `given`.
+    pub aperture: ApertureConfig,
+    /// Constant detection efficiency; default 1, range (0, 1]. Not used when
+    /// `efficiency_table` is given.
+    #[serde(default = "one")]
+    pub efficiency: f64,
+    /// Standard uncertainty of the constant efficiency (absolute); default 0, >= 0.
+    #[serde(default)]
+    pub efficiency_err: f64,
+    /// Energy-dependent efficiency; replaces `efficiency` and `efficiency_err`.
+    #[serde(default)]
+    pub efficiency_table: Option<EfficiencyTableConfig>,
+}
+
+impl DetectorConfig {
+    /// Every range problem of one detector.
+    pub fn validate(&self) -> Vec<Problem> {
+        let mut c = Checks::default();
+        c.require(self.theta_lab_deg > 0.0 && self.theta_lab_deg < 180.0, "theta_lab_deg", self.theta_lab_deg, "an angle in (0, 180) degrees");
+        c.non_negative("theta_lab_err_deg", self.theta_lab_err_deg);
+        c.non_negative("distance_err_mm", self.distance_err_mm);
+        match &self.aperture {
+            ApertureConfig::Circle { radius_mm, radius_err_mm } => {
+                c.positive("aperture.radius_mm", *radius_mm);
+                c.non_negative("aperture.radius_err_mm", *radius_err_mm);
+            }
+            ApertureConfig::Rectangle { half_width_mm, half_height_mm, half_width_err_mm, half_height_err_mm } => {
+                c.positive("aperture.half_width_mm", *half_width_mm);
+                c.positive("aperture.half_height_mm", *half_height_mm);
+                c.non_negative("aperture.half_width_err_mm", *half_width_err_mm);
+                c.non_negative("aperture.half_height_err_mm", *half_height_err_mm);
+            }
+            ApertureConfig::Given { solid_angle_msr, solid_angle_err_msr } => {
+                c.positive("aperture.solid_angle_msr", *solid_angle_msr);
+                c.non_negative("aperture.solid_angle_err_msr", *solid_angle_err_msr);
+            }
+        }
+        let needs_distance = !matches!(self.aperture, ApertureConfig::Given { .. });
+        match self.distance_mm {
+            Some(d) => c.positive("distance_mm", d),
+            None => c.require(!needs_distance, "distance_mm", "missing", "the target-to-aperture distance in mm (needed for circle and rectangle apertures)"),
+        }
+        match &self.efficiency_table {
+            None => {
+                c.fraction("efficiency", self.efficiency);
+                c.non_negative("efficiency_err", self.efficiency_err);
+            }
+            Some(table) => c.nested("efficiency_table", table.validate()),
+        }
+        c.problems
+    }
+}
+
+impl EfficiencyTableConfig {
+    /// Every problem of an efficiency table: lengths, order, ranges.
+    pub fn validate(&self) -> Vec<Problem> {
+        let mut c = Checks::default();
+        let n = self.energy_lab_mev.len();
+        c.require(n >= 2, "energy_lab_mev", format!("{n} points"), "at least 2 points");
+        c.require(self.energy_lab_mev.windows(2).all(|w| w[0] < w[1]), "energy_lab_mev", format!("{:?}", self.energy_lab_mev), "strictly increasing energies");
+        c.require(self.efficiency.len() == n, "efficiency", format!("{} values", self.efficiency.len()), &format!("{n} values, one per energy"));
+        c.require(self.efficiency_err.is_empty() || self.efficiency_err.len() == n, "efficiency_err", format!("{} values", self.efficiency_err.len()), &format!("{n} values, one per energy, or none"));
+        for (i, e) in self.efficiency.iter().enumerate() {
+            c.fraction(&format!("efficiency[{i}]"), *e);
+        }
+        for (i, e) in self.efficiency_err.iter().enumerate() {
+            c.non_negative(&format!("efficiency_err[{i}]"), *e);
+        }
+        c.problems
+    }
+}
+
+/// The validated experiment: reaction, target and detectors, with a lookup by detector id.
+#[derive(Debug, Clone)]
+pub struct Setup {
+    /// The reaction.
+    pub reaction: ReactionConfig,
+    /// The target.
+    pub target: TargetConfig,
+    /// The detectors, in config order (which is the output row order).
+    pub detectors: Vec<DetectorConfig>,
+    index: HashMap<String, usize>,
+}
+
+impl Setup {
+    /// Assemble a set-up; returns every problem (ranges, duplicate detector ids) at once.
+    ///
+    /// # Errors
+    /// The list of problems, keys relative to the config's top level.
+    pub fn new(reaction: ReactionConfig, target: TargetConfig, detectors: Vec<DetectorConfig>) -> Result<Self, Vec<Problem>> {
+        let mut c = Checks::default();
+        c.nested("reaction", reaction.validate());
+        c.nested("target", target.validate());
+        c.require(!detectors.is_empty(), "detectors", "an empty list", "at least one detector");
+        let mut index = HashMap::new();
+        for (i, d) in detectors.iter().enumerate() {
+            let key = format!("detectors[{i}]");
+            c.nested(&key, d.validate());
+            if let Some(first) = index.insert(d.id.0.clone(), i) {
+                c.require(false, &format!("{key}.id"), &d.id, &format!("an id not used before (detectors[{first}] has it)"));
+            }
+        }
+        if c.problems.is_empty() {
+            Ok(Setup { reaction, target, detectors, index })
+        } else {
+            Err(c.problems)
+        }
+    }
+
+    /// Position of a detector in config order.
+    pub fn detector_index(&self, id: &str) -> Option<usize> {
+        self.index.get(id).copied()
+    }
+
+    /// A detector by id.
+    pub fn detector(&self, id: &str) -> Option<&DetectorConfig> {
+        self.detector_index(id).map(|i| &self.detectors[i])
+    }
+
+    /// The detector ids, comma separated, for error messages.
+    pub fn detector_ids(&self) -> String {
+        self.detectors.iter().map(|d| d.id.0.as_str()).collect::<Vec<_>>().join(", ")
+    }
+}
+
+/// How the integrated beam charge of a run was recorded.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Charge {
+    /// Charge in coulomb.
+    Coulomb(f64),
+    /// Counts of a current integrator and its scale in C per count.
+    Integrator {
+        /// Integrator counts.
+        counts: f64,
+        /// Coulomb per count.
+        scale_c_per_count: f64,
+    },
+}
+
+/// The record of one run: its yields file, beam charge, clocks and scalers. Any subset of
+/// the clocks and scalers may be given; the dead-time stage names what it needs.
+#[derive(Debug, Clone, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct RunRecord {
+    /// Run identifier (a string or a whole number), unique among the runs of a config.
+    pub run: Id,
+    /// The run's yields table (CSV or Parquet), relative to this file.
+    pub yields_file: String,
+    /// Integrated beam charge in C; give this or the integrator pair; > 0.
+    #[serde(default)]
+    pub charge_c: Option<f64>,
+    /// Current-integrator counts for the run; with `integrator_scale_c_per_count`; > 0.
+    #[serde(default)]
+    pub integrator_counts: Option<f64>,
+    /// Charge per integrator count in C; with `integrator_counts`; > 0.
+    #[serde(default)]
+    pub integrator_scale_c_per_count: Option<f64>,
+    /// Live time of the acquisition (busy-vetoed clock) in s; <= `real_time_s`.
+    #[serde(default)]
+    pub live_time_s: Option<f64>,
+    /// Real (elapsed) time of the run in s; > 0.
+    #[serde(default)]
+    pub real_time_s: Option<f64>,
+    /// Pulser signals sent into the electronics during the run; > 0.
+    #[serde(default)]
+    pub pulser_sent: Option<u64>,
+    /// Pulser signals recorded by the acquisition; <= `pulser_sent`.
+    #[serde(default)]
+    pub pulser_recorded: Option<u64>,
+    /// Triggers counted by a free-running scaler (raw); > 0.
+    #[serde(default)]
+    pub triggers_raw: Option<u64>,
+    /// Triggers accepted by the acquisition; <= `triggers_raw`.
+    #[serde(default)]
+    pub triggers_accepted: Option<u64>,
+    /// Recorded event rate in 1/s for the dead-time models; default
+    /// `triggers_accepted / real_time_s`.
+    #[serde(default)]
+    pub recorded_rate_per_s: Option<f64>,
+}
+
+impl RunRecord {
+    /// The charge as recorded, if exactly one way was given.
+    pub fn charge(&self) -> Option<Charge> {
+        match (self.charge_c, self.integrator_counts, self.integrator_scale_c_per_count) {
+            (Some(q), None, None) => Some(Charge::Coulomb(q)),
+            (None, Some(counts), Some(scale_c_per_count)) => Some(Charge::Integrator { counts, scale_c_per_count }),
+            _ => None,
+        }
+    }
+
+    /// Integrated charge in C.
+    pub fn charge_c(&self) -> Option<f64> {
+        self.charge().map(|c| match c {
+            Charge::Coulomb(q) => q,
+            Charge::Integrator { counts, scale_c_per_count } => counts * scale_c_per_count,
+        })
+    }
+
+    /// Recorded event rate in 1/s: given, or accepted triggers over real time.
+    pub fn recorded_rate_per_s(&self) -> Option<f64> {
+        self.recorded_rate_per_s.or_else(|| match (self.triggers_accepted, self.real_time_s) {
+            (Some(n), Some(t)) if t > 0.0 => Some(n as f64 / t),
+            _ => None,
+        })
+    }
+
+    /// Every range and consistency problem of the record.
+    pub fn validate(&self) -> Vec<Problem> {
+        let mut c = Checks::default();
+        c.require(!self.yields_file.trim().is_empty(), "yields_file", "an empty path", "the path of the run's yields table");
+        match self.charge() {
+            Some(Charge::Coulomb(q)) => c.positive("charge_c", q),
+            Some(Charge::Integrator { counts, scale_c_per_count }) => {
+                c.positive("integrator_counts", counts);
+                c.positive("integrator_scale_c_per_count", scale_c_per_count);
+            }
+            None => c.require(false, "charge_c", "missing or mixed charge keys", "charge_c, or integrator_counts with integrator_scale_c_per_count"),
+        }
+        if let Some(t) = self.real_time_s {
+            c.positive("real_time_s", t);
+        }
+        if let Some(t) = self.live_time_s {
+            c.positive("live_time_s", t);
+            if let Some(real) = self.real_time_s {
+                c.require(t <= real, "live_time_s", t, &format!("at most real_time_s = {real}"));
+            }
+        }
+        check_scaler_pair(&mut c, ("pulser_sent", self.pulser_sent), ("pulser_recorded", self.pulser_recorded));
+        check_scaler_pair(&mut c, ("triggers_raw", self.triggers_raw), ("triggers_accepted", self.triggers_accepted));
+        if let Some(r) = self.recorded_rate_per_s {
+            c.positive("recorded_rate_per_s", r);
+        }
+        c.problems
+    }
+}
+
+/// A scaler pair (all, kept): all > 0 and kept <= all.
+fn check_scaler_pair(c: &mut Checks, all: (&str, Option<u64>), kept: (&str, Option<u64>)) {
+    if let Some(n) = all.1 {
+        c.require(n > 0, all.0, n, "a count > 0");
+        if let Some(k) = kept.1 {
+            c.require(k <= n, kept.0, k, &format!("at most {} = {n}", all.0));
+        }
+    }
+}
+
+/// What a stage may read besides its table: the experiment and the current run.
+#[derive(Debug, Clone, Copy)]
+pub struct RunContext<'a> {
+    /// The experiment.
+    pub setup: &'a Setup,
+    /// The run being reduced (validated).
+    pub run: &'a RunRecord,
+}
