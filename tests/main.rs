@@ -1,1 +1,1 @@
-fn main(){}
+//! Integration tests.

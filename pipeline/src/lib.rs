@@ -1,1 +1,13 @@
-//! xsflow pipeline
+//! The xsflow pipeline: config model, plan, orchestration of the stages over runs,
+//! provenance, outputs, and the `xsflow` command line. Physics and stages live in the
+//! `stages` crate; this crate reads files and writes results.
+
+pub mod cli;
+pub mod config;
+pub mod error;
+pub mod locate;
+pub mod plan;
+pub mod provenance;
+pub mod run;
+pub mod schema;
+pub mod tables;

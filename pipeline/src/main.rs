@@ -1,1 +1,105 @@
-fn main() {}
+//! The `xsflow` binary: parse the command line, run the verb, map the outcome to an exit
+//! code (0 done, 1 a run failed, 2 bad command line or config).
+
+use std::path::Path;
+use std::process::ExitCode;
+
+use clap::Parser;
+use tracing_subscriber::EnvFilter;
+use xsflow::cli::{Cli, Command, Format};
+use xsflow::error::{report, Diagnostic, RunFailure};
+use xsflow::plan::plan;
+use xsflow::run::{check_runs, reduce_all};
+
+fn main() -> ExitCode {
+    let cli = match Cli::try_parse() {
+        Ok(cli) => cli,
+        Err(e) => {
+            let code = if e.use_stderr() { 2 } else { 0 };
+            let _ = e.print();
+            return ExitCode::from(code);
+        }
+    };
+    init_logs(cli.verbose, cli.quiet);
+    ExitCode::from(match cli.command {
+        Command::Check { config, format } => check(&config, format),
+        Command::Reduce { config, out, runs, format } => reduce(&config, out.as_deref(), &runs, format),
+        Command::Schema { name } => match xsflow::schema::schema_json(&name) {
+            Some(s) => {
+                print!("{s}");
+                0
+            }
+            None => 2,
+        },
+    })
+}
+
+fn init_logs(verbose: u8, quiet: bool) {
+    let level = match (quiet, verbose) {
+        (true, _) => "warn",
+        (_, 0) => "info",
+        (_, 1) => "debug",
+        _ => "trace",
+    };
+    let filter = EnvFilter::try_from_default_env().unwrap_or_else(|_| EnvFilter::new(level));
+    let ansi = std::io::IsTerminal::is_terminal(&std::io::stderr());
+    tracing_subscriber::fmt().with_env_filter(filter).with_writer(std::io::stderr).with_target(false).with_ansi(ansi).init();
+}
+
+fn print_problems(format: Format, config: &[Diagnostic], runs: &[RunFailure]) {
+    match format {
+        Format::Json => println!("{}", serde_json::json!({ "config": config, "runs": runs })),
+        Format::Text => {
+            report(config);
+            for f in runs {
+                eprintln!("run {}:", f.run);
+                report(&f.problems);
+            }
+        }
+    }
+}
+
+fn check(config: &Path, format: Format) -> u8 {
+    match plan(config) {
+        Err(diags) => {
+            print_problems(format, &diags, &[]);
+            eprintln!("{} problem(s) in {}", diags.len(), config.display());
+            2
+        }
+        Ok(p) => {
+            let failures = check_runs(&p);
+            print_problems(format, &[], &failures);
+            let n: usize = failures.iter().map(|f| f.problems.len()).sum();
+            if n == 0 {
+                eprintln!("{}: config and {} run(s) are valid", config.display(), p.runs.len());
+                0
+            } else {
+                eprintln!("{n} problem(s) in {} of {} run(s)", failures.len(), p.runs.len());
+                2
+            }
+        }
+    }
+}
+
+fn reduce(config: &Path, out: Option<&Path>, runs: &[String], format: Format) -> u8 {
+    let mut p = match plan(config) {
+        Ok(p) => p,
+        Err(diags) => {
+            print_problems(format, &diags, &[]);
+            eprintln!("{} problem(s) in {}; nothing was reduced", diags.len(), config.display());
+            return 2;
+        }
+    };
+    if let Err(d) = p.select_runs(runs) {
+        print_problems(format, &[d], &[]);
+        return 2;
+    }
+    let out_dir = out.map_or_else(|| p.config_dir.join("out"), Path::to_path_buf);
+    let (summary, failures) = reduce_all(&p, &out_dir);
+    match format {
+        Format::Json => println!("{}", serde_json::json!({ "ok": summary.ok, "failed": summary.failed, "out": out_dir, "failures": failures })),
+        Format::Text => print_problems(format, &[], &failures),
+    }
+    eprintln!("{} run(s) reduced, {} failed; outputs in {}", summary.ok, summary.failed, out_dir.display());
+    u8::from(summary.failed > 0)
+}

@@ -8,6 +8,7 @@
 //! `f64`, each with its formula and published source.
 
 pub mod apply_efficiency;
+pub mod columns;
 pub mod compute_lab_cross_section;
 pub mod compute_solid_angle;
 pub mod correct_dead_time;
@@ -23,7 +24,7 @@ pub mod yields;
 
 pub use error::StageError;
 pub use polars;
-pub use problem::Problem;
+pub use problem::{join_key as problem_key, Problem};
 pub use registry::StageConfig;
 pub use setup::{RunContext, RunRecord, Setup};
 

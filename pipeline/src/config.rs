@@ -1,0 +1,195 @@
+//! The experiment config as written: YAML parsed into plain structs, section by section and
+//! item by item, so that one mistake does not hide the next. Every problem comes back with
+//! its file, line, column and key path; an unknown key gets the closest valid one suggested.
+
+use std::path::{Path, PathBuf};
+
+use schemars::JsonSchema;
+use serde::de::DeserializeOwned;
+use serde::Deserialize;
+use serde_yaml::Value;
+use stages::setup::{DetectorConfig, ReactionConfig, TargetConfig};
+use stages::{problem_key, Problem, StageConfig};
+
+use crate::error::Diagnostic;
+use crate::locate::Locations;
+
+/// What the experiment is, for people reading the outputs.
+#[derive(Debug, Clone, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct ExperimentInfo {
+    /// Short name of the experiment, used in reports.
+    pub name: String,
+    /// Free text: what was measured, where, when.
+    #[serde(default)]
+    pub description: String,
+}
+
+/// One experiment: the set-up, where its runs are, and the reduction to apply. This is the
+/// whole YAML file; `schemas/config.schema.json` is generated from it.
+#[derive(Debug, Clone, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct ExperimentConfig {
+    /// Name and description.
+    pub experiment: ExperimentInfo,
+    /// Beam, target nucleus, beam energy and charge state.
+    pub reaction: ReactionConfig,
+    /// Target foil: areal density, molar mass, isotopic fraction, tilt.
+    pub target: TargetConfig,
+    /// The detectors, in the order the output rows follow.
+    pub detectors: Vec<DetectorConfig>,
+    /// Run record files (YAML, one per run): paths or glob patterns relative to this file.
+    pub runs: Vec<String>,
+    /// The stages to apply to each run, in order; each has a `type:` and its settings.
+    pub stages: Vec<StageConfig>,
+}
+
+const SECTIONS: [&str; 6] = ["experiment", "reaction", "target", "detectors", "runs", "stages"];
+
+/// A YAML file read into text, its parsed value and its key locations.
+pub struct YamlFile {
+    /// Path as given.
+    pub path: PathBuf,
+    /// Raw bytes (hashed for provenance).
+    pub bytes: Vec<u8>,
+    /// Parsed document.
+    pub value: Value,
+    /// Key locations.
+    pub locations: Locations,
+}
+
+impl YamlFile {
+    /// Read and parse a YAML file.
+    ///
+    /// # Errors
+    /// A diagnostic for an unreadable file or a YAML syntax error (with its position).
+    pub fn read(path: &Path) -> Result<Self, Diagnostic> {
+        let bytes = std::fs::read(path).map_err(|e| Diagnostic::new(path, "", format!("cannot read the file: {e}")).with_help("check the path; relative paths are relative to the file that names them"))?;
+        let text = String::from_utf8_lossy(&bytes).into_owned();
+        let value: Value = serde_yaml::from_str(&text).map_err(|e| {
+            let place = e.location().map(|l| (l.line(), l.column()));
+            Diagnostic::new(path, "", format!("is not valid YAML: {e}")).at(place)
+        })?;
+        Ok(YamlFile { path: path.to_path_buf(), bytes, locations: Locations::of(&text), value })
+    }
+
+    /// A located diagnostic for a problem at `key` of this file.
+    pub fn problem(&self, p: &Problem) -> Diagnostic {
+        Diagnostic::new(&self.path, p.key.clone(), format!("found {}, expected {}", p.found, p.expected)).at(self.locations.find(&p.key))
+    }
+
+    /// Deserialize the value at `key` (already looked up) into `T`, with every error located.
+    ///
+    /// # Errors
+    /// The serde error, located at the deepest key it names, with a suggestion for an
+    /// unknown key or variant.
+    pub fn parse<T: DeserializeOwned>(&self, key: &str, value: &Value) -> Result<T, Diagnostic> {
+        serde_path_to_error::deserialize::<_, T>(value.clone()).map_err(|e| {
+            let mut path = key.to_string();
+            for seg in e.path().iter() {
+                match seg {
+                    serde_path_to_error::Segment::Seq { index } => path = problem_key(&path, &format!("[{index}]")),
+                    serde_path_to_error::Segment::Map { key } => path = problem_key(&path, key),
+                    serde_path_to_error::Segment::Enum { .. } | serde_path_to_error::Segment::Unknown => {}
+                }
+            }
+            serde_message(&self.path, &self.locations, path, &e.inner().to_string())
+        })
+    }
+}
+
+/// Turn a serde message into a diagnostic: locate it, and suggest the closest name for an
+/// unknown field or variant.
+fn serde_message(file: &Path, locations: &Locations, mut key: String, message: &str) -> Diagnostic {
+    let message = message.split(" at line ").next().unwrap_or(message).to_string();
+    let mut help = None;
+    for what in ["unknown field `", "unknown variant `"] {
+        if let Some(rest) = message.strip_prefix(what) {
+            let (name, tail) = rest.split_once('`').unwrap_or((rest, ""));
+            let accepted: Vec<&str> = tail.split('`').skip(1).step_by(2).collect();
+            if what.starts_with("unknown field") && !key.ends_with(name) {
+                key = problem_key(&key, name);
+            }
+            help = Some(match closest(name, &accepted) {
+                Some(best) => format!("did you mean `{best}`? accepted: {}", accepted.join(", ")),
+                None => format!("accepted: {}", accepted.join(", ")),
+            });
+        }
+    }
+    let d = Diagnostic::new(file, key.clone(), message).at(locations.find(&key));
+    match help {
+        Some(h) => d.with_help(h),
+        None => d,
+    }
+}
+
+/// The accepted name closest to `name`, if any is close enough to be a likely typo.
+pub fn closest<'a>(name: &str, accepted: &[&'a str]) -> Option<&'a str> {
+    accepted
+        .iter()
+        .map(|a| (strsim::normalized_damerau_levenshtein(name, a), *a))
+        .filter(|(score, _)| *score >= 0.5)
+        .max_by(|x, y| x.0.total_cmp(&y.0))
+        .map(|(_, a)| a)
+}
+
+/// Parse an experiment config, reporting every problem at once.
+///
+/// # Errors
+/// Every diagnostic found: syntax, unknown or missing sections, and each section's or
+/// list item's own problems.
+pub fn parse_experiment(file: &YamlFile) -> Result<ExperimentConfig, Vec<Diagnostic>> {
+    let mut diags = Vec::new();
+    let Some(map) = file.value.as_mapping() else {
+        return Err(vec![Diagnostic::new(&file.path, "", "expected a mapping with sections experiment, reaction, target, detectors, runs, stages")]);
+    };
+    for k in map.keys() {
+        let name = k.as_str().unwrap_or("");
+        if !SECTIONS.contains(&name) {
+            let help = match closest(name, &SECTIONS) {
+                Some(best) => format!("did you mean `{best}`? sections: {}", SECTIONS.join(", ")),
+                None => format!("sections: {}", SECTIONS.join(", ")),
+            };
+            diags.push(Diagnostic::new(&file.path, name, format!("unknown section `{}`", yaml_text(k))).at(file.locations.find(name)).with_help(help));
+        }
+    }
+    let section = |name: &str, diags: &mut Vec<Diagnostic>| -> Option<Value> {
+        let v = map.get(name).cloned();
+        if v.is_none() {
+            diags.push(Diagnostic::new(&file.path, name, "missing section").at(Some((1, 1))).with_help(format!("add `{name}:`; schemas/config.schema.json shows its form")));
+        }
+        v
+    };
+    let experiment = section("experiment", &mut diags).and_then(|v| keep(file.parse::<ExperimentInfo>("experiment", &v), &mut diags));
+    let reaction = section("reaction", &mut diags).and_then(|v| keep(file.parse::<ReactionConfig>("reaction", &v), &mut diags));
+    let target = section("target", &mut diags).and_then(|v| keep(file.parse::<TargetConfig>("target", &v), &mut diags));
+    let detectors = section("detectors", &mut diags).and_then(|v| parse_list::<DetectorConfig>(file, "detectors", &v, &mut diags));
+    let runs = section("runs", &mut diags).and_then(|v| keep(file.parse::<Vec<String>>("runs", &v), &mut diags));
+    let stages = section("stages", &mut diags).and_then(|v| parse_list::<StageConfig>(file, "stages", &v, &mut diags));
+    match (experiment, reaction, target, detectors, runs, stages) {
+        (Some(experiment), Some(reaction), Some(target), Some(detectors), Some(runs), Some(stages)) if diags.is_empty() => {
+            Ok(ExperimentConfig { experiment, reaction, target, detectors, runs, stages })
+        }
+        _ => Err(diags),
+    }
+}
+
+/// Parse a YAML list item by item; `None` if any item failed (its diagnostics are kept).
+fn parse_list<T: DeserializeOwned>(file: &YamlFile, key: &str, value: &Value, diags: &mut Vec<Diagnostic>) -> Option<Vec<T>> {
+    let Some(items) = value.as_sequence() else {
+        diags.push(Diagnostic::new(&file.path, key, format!("found {}, expected a list", yaml_text(value))).at(file.locations.find(key)));
+        return None;
+    };
+    let before = diags.len();
+    let parsed: Vec<T> = items.iter().enumerate().filter_map(|(i, item)| keep(file.parse::<T>(&format!("{key}[{i}]"), item), diags)).collect();
+    (diags.len() == before).then_some(parsed)
+}
+
+fn keep<T>(r: Result<T, Diagnostic>, diags: &mut Vec<Diagnostic>) -> Option<T> {
+    r.map_err(|d| diags.push(d)).ok()
+}
+
+/// A short YAML rendering of a value for messages.
+pub fn yaml_text(v: &Value) -> String {
+    serde_yaml::to_string(v).map(|s| s.trim().to_string()).unwrap_or_else(|_| format!("{v:?}"))
+}

@@ -1,0 +1,230 @@
+//! From a parsed config to a plan: paths resolved relative to the config file, the set-up
+//! checked, every stage built, the columns each stage needs traced through the stage list,
+//! and the runs discovered. All config problems are collected before any run file is
+//! read; `xsflow check` adds the runs' own problems (`run::check_runs`) and stops there.
+
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+
+use stages::yields::{ADDED_COLUMNS, OPTIONAL_COLUMNS, REQUIRED_COLUMNS};
+use stages::{Problem, RunRecord, Setup, Stage};
+
+use crate::config::{parse_experiment, ExperimentInfo, YamlFile};
+use crate::error::Diagnostic;
+use crate::provenance::sha256_hex;
+
+/// A stage ready to run, with where it came from in the config.
+pub struct PlannedStage {
+    /// `stages[i]` key path.
+    pub key: String,
+    /// The built stage.
+    pub stage: Box<dyn Stage>,
+}
+
+/// A run record that parsed and passed its checks.
+#[derive(Debug, Clone)]
+pub struct LoadedRun {
+    /// The record file.
+    pub record_path: PathBuf,
+    /// Its bytes (hashed for provenance).
+    pub record_bytes: Vec<u8>,
+    /// The record.
+    pub record: RunRecord,
+    /// The yields file, resolved relative to the record.
+    pub yields_path: PathBuf,
+}
+
+/// A discovered run: loaded, or the problems that stop it.
+pub struct PlannedRun {
+    /// The record file.
+    pub record_path: PathBuf,
+    /// The loaded record or its problems.
+    pub loaded: Result<LoadedRun, Vec<Diagnostic>>,
+}
+
+impl PlannedRun {
+    /// The run id if the record loaded, else the record's file name.
+    pub fn label(&self) -> String {
+        match &self.loaded {
+            Ok(run) => run.record.run.0.clone(),
+            Err(_) => self.record_path.file_name().map_or_else(|| self.record_path.display().to_string(), |n| n.to_string_lossy().into_owned()),
+        }
+    }
+}
+
+/// Everything needed to reduce the runs of one config.
+pub struct Plan {
+    /// The config file.
+    pub config_path: PathBuf,
+    /// Folder of the config file; relative paths start here.
+    pub config_dir: PathBuf,
+    /// SHA-256 of the config file bytes.
+    pub config_sha256: String,
+    /// Name and description.
+    pub experiment: ExperimentInfo,
+    /// Reaction, target, detectors.
+    pub setup: Setup,
+    /// Stages in order.
+    pub stages: Vec<PlannedStage>,
+    /// Runs in record-path order.
+    pub runs: Vec<PlannedRun>,
+}
+
+/// Read, parse and check a config, build its stages and discover its runs.
+///
+/// # Errors
+/// Every config-level problem at once (the runs' own problems are kept per run).
+pub fn plan(config_path: &Path) -> Result<Plan, Vec<Diagnostic>> {
+    let file = YamlFile::read(config_path).map_err(|d| vec![d])?;
+    let config = parse_experiment(&file)?;
+    let config_dir = config_path.parent().map_or_else(|| PathBuf::from("."), Path::to_path_buf);
+    let located = |problems: Vec<Problem>| problems.iter().map(|p| file.problem(p)).collect::<Vec<_>>();
+
+    let mut diags = Vec::new();
+    let setup = Setup::new(config.reaction, config.target, config.detectors).map_err(located);
+    let setup = match setup {
+        Ok(s) => Some(s),
+        Err(d) => {
+            diags.extend(d);
+            None
+        }
+    };
+    let mut stages = Vec::new();
+    if let Some(setup) = &setup {
+        for (i, sc) in config.stages.iter().enumerate() {
+            let key = format!("stages[{i}]");
+            match sc.build(setup) {
+                Ok(stage) => stages.push(PlannedStage { key, stage }),
+                Err(problems) => diags.extend(located(problems.into_iter().map(|p| p.under(&key)).collect())),
+            }
+        }
+        if diags.is_empty() {
+            diags.extend(trace_columns(&stages).into_iter().map(|p| file.problem(&p)));
+        }
+    }
+    if config.stages.is_empty() {
+        diags.push(file.problem(&Problem::new("stages", "an empty list", "at least one stage")));
+    }
+    let record_paths = discover_runs(&file, &config_dir, &config.runs, &mut diags);
+    match setup {
+        Some(setup) if diags.is_empty() => {
+            let runs = record_paths.into_iter().map(|record_path| PlannedRun { loaded: load_run(&record_path, &stages), record_path }).collect();
+            let plan = Plan { config_sha256: sha256_hex(&file.bytes), config_path: config_path.to_path_buf(), config_dir, experiment: config.experiment, setup, stages, runs };
+            plan.check_unique_runs().map(|()| plan)
+        }
+        _ => Err(diags),
+    }
+}
+
+/// Walk the stage list with the set of columns available so far; a stage that needs a
+/// column no earlier stage adds is a problem. Optional yields columns are checked per run.
+fn trace_columns(stages: &[PlannedStage]) -> Vec<Problem> {
+    let mut available: Vec<&str> = ADDED_COLUMNS.iter().chain(&REQUIRED_COLUMNS).copied().collect();
+    let mut problems = Vec::new();
+    for (i, s) in stages.iter().enumerate() {
+        for need in s.stage.needs() {
+            if !available.contains(&need) && !OPTIONAL_COLUMNS.contains(&need) {
+                let later = stages[i + 1..].iter().find(|l| l.stage.adds().contains(&need)).map(|l| l.stage.name());
+                let expected = match later {
+                    Some(name) => format!("column `{need}` added by an earlier stage: move `{name}` before `{}`", s.stage.name()),
+                    None => format!("column `{need}` added by an earlier stage (available: {})", available.join(", ")),
+                };
+                problems.push(Problem::new(format!("{}.type", s.key), s.stage.name(), &expected));
+            }
+        }
+        available.extend(s.stage.adds());
+    }
+    problems
+}
+
+/// Expand the `runs:` patterns into record files, sorted, each at most once.
+fn discover_runs(file: &YamlFile, config_dir: &Path, patterns: &[String], diags: &mut Vec<Diagnostic>) -> Vec<PathBuf> {
+    let mut found = std::collections::BTreeSet::new();
+    if patterns.is_empty() {
+        diags.push(file.problem(&Problem::new("runs", "an empty list", "at least one run record path or glob pattern")));
+    }
+    for (i, pattern) in patterns.iter().enumerate() {
+        let key = format!("runs[{i}]");
+        let full = config_dir.join(pattern);
+        let text = full.to_string_lossy().into_owned();
+        if pattern.contains(['*', '?', '[']) {
+            match glob::glob(&text) {
+                Ok(paths) => {
+                    let before = found.len();
+                    found.extend(paths.filter_map(Result::ok).filter(|p| p.is_file()));
+                    if found.len() == before {
+                        diags.push(file.problem(&Problem::new(key, pattern, &format!("a pattern that matches at least one run record (looked for {text})"))));
+                    }
+                }
+                Err(e) => diags.push(file.problem(&Problem::new(key, pattern, &format!("a valid glob pattern ({e})")))),
+            }
+        } else if full.is_file() {
+            found.insert(full);
+        } else {
+            diags.push(file.problem(&Problem::new(key, pattern, &format!("an existing run record file (not found: {text})"))));
+        }
+    }
+    found.into_iter().collect()
+}
+
+/// Characters a run id may hold (it names the run's output folder).
+fn safe_id(id: &str) -> bool {
+    !id.starts_with('.') && id.chars().all(|c| c.is_ascii_alphanumeric() || matches!(c, '-' | '_' | '.'))
+}
+
+/// Read and check one run record against the stages.
+fn load_run(record_path: &Path, stages: &[PlannedStage]) -> Result<LoadedRun, Vec<Diagnostic>> {
+    let file = YamlFile::read(record_path).map_err(|d| vec![d])?;
+    let record: RunRecord = file.parse("", &file.value).map_err(|d| vec![d])?;
+    let mut problems = record.validate();
+    if !safe_id(&record.run.0) {
+        problems.push(Problem::new("run", &record.run, "an id of letters, digits, '-', '_' and '.' (it names the output folder)"));
+    }
+    for s in stages {
+        problems.extend(s.stage.check_run(&record));
+    }
+    let yields_path = record_path.parent().unwrap_or(Path::new(".")).join(&record.yields_file);
+    if problems.is_empty() && !yields_path.is_file() {
+        problems.push(Problem::new("yields_file", &record.yields_file, &format!("an existing yields table (not found: {})", yields_path.display())));
+    }
+    if !problems.is_empty() {
+        return Err(problems.iter().map(|p| file.problem(p)).collect());
+    }
+    Ok(LoadedRun { record_path: record_path.to_path_buf(), record_bytes: file.bytes, record, yields_path })
+}
+
+impl Plan {
+    /// Two record files with the same run id would write to the same output folder.
+    fn check_unique_runs(&self) -> Result<(), Vec<Diagnostic>> {
+        let mut first: BTreeMap<&str, &Path> = BTreeMap::new();
+        let mut diags = Vec::new();
+        for run in &self.runs {
+            if let Ok(l) = &run.loaded {
+                if let Some(prev) = first.insert(&l.record.run.0, &l.record_path) {
+                    diags.push(Diagnostic::new(&l.record_path, "run", format!("found run id {}, expected an id not used by another record ({} has it)", l.record.run, prev.display())));
+                }
+            }
+        }
+        if diags.is_empty() {
+            Ok(())
+        } else {
+            Err(diags)
+        }
+    }
+
+    /// Keep only the named runs.
+    ///
+    /// # Errors
+    /// A run id that no record has (the known ids are listed).
+    pub fn select_runs(&mut self, ids: &[String]) -> Result<(), Diagnostic> {
+        if ids.is_empty() {
+            return Ok(());
+        }
+        let labels: Vec<String> = self.runs.iter().map(PlannedRun::label).collect();
+        if let Some(bad) = ids.iter().find(|id| !labels.contains(id)) {
+            return Err(Diagnostic::new(&self.config_path, "runs", format!("--run {bad}: no such run; runs found: {}", labels.join(", "))));
+        }
+        self.runs.retain(|r| ids.contains(&r.label()));
+        Ok(())
+    }
+}

@@ -1,0 +1,96 @@
+//! How each output was made: program version, hashes of the config and of every input file,
+//! and the time. The time is `SOURCE_DATE_EPOCH` when that is set (the reproducible-builds
+//! convention), so that a rerun can give the same bytes; otherwise the current time.
+
+use std::path::Path;
+use std::time::{SystemTime, UNIX_EPOCH};
+
+use serde::Serialize;
+use sha2::{Digest, Sha256};
+
+/// SHA-256 of `bytes`, lower-case hex.
+pub fn sha256_hex(bytes: &[u8]) -> String {
+    Sha256::digest(bytes).iter().map(|b| format!("{b:02x}")).collect()
+}
+
+/// One input file and its hash.
+#[derive(Debug, Clone, Serialize, PartialEq, Eq)]
+pub struct InputFile {
+    /// Path relative to the config file's folder (as written in the config chain).
+    pub path: String,
+    /// SHA-256 of its bytes.
+    pub sha256: String,
+}
+
+/// The provenance record of one run's outputs.
+#[derive(Debug, Clone, Serialize)]
+pub struct Provenance {
+    /// Always `xsflow`.
+    pub program: &'static str,
+    /// Program version.
+    pub version: &'static str,
+    /// The config file, relative to the folder `xsflow` ran in, as given.
+    pub config_file: String,
+    /// SHA-256 of the config file.
+    pub config_sha256: String,
+    /// The run.
+    pub run: String,
+    /// The stages applied, in order.
+    pub stages: Vec<String>,
+    /// Every input file with its hash.
+    pub inputs: Vec<InputFile>,
+    /// When the record was made, UTC, RFC 3339.
+    pub created_utc: String,
+}
+
+impl Provenance {
+    /// Hash an input file already read into memory; its path is written relative to `base`.
+    pub fn input(base: &Path, path: &Path, bytes: &[u8]) -> InputFile {
+        let rel = path.strip_prefix(base).unwrap_or(path);
+        InputFile { path: rel.to_string_lossy().replace('\\', "/"), sha256: sha256_hex(bytes) }
+    }
+}
+
+/// Seconds since 1970 for the record: `SOURCE_DATE_EPOCH` if set and valid, else now.
+pub fn record_time_s() -> i64 {
+    std::env::var("SOURCE_DATE_EPOCH")
+        .ok()
+        .and_then(|s| s.trim().parse::<i64>().ok())
+        .unwrap_or_else(|| SystemTime::now().duration_since(UNIX_EPOCH).map_or(0, |d| i64::try_from(d.as_secs()).unwrap_or(i64::MAX)))
+}
+
+/// RFC 3339 UTC text of a Unix time, by the days-to-civil algorithm of H. Hinnant,
+/// "chrono-Compatible Low-Level Date Algorithms" (2013), `civil_from_days`.
+pub fn rfc3339_utc(unix_s: i64) -> String {
+    let days = unix_s.div_euclid(86_400);
+    let secs = unix_s.rem_euclid(86_400);
+    let z = days + 719_468;
+    let era = z.div_euclid(146_097);
+    let doe = z - era * 146_097;
+    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
+    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
+    let mp = (5 * doy + 2) / 153;
+    let day = doy - (153 * mp + 2) / 5 + 1;
+    let month = if mp < 10 { mp + 3 } else { mp - 9 };
+    let year = yoe + era * 400 + i64::from(month <= 2);
+    format!("{year:04}-{month:02}-{day:02}T{:02}:{:02}:{:02}Z", secs / 3600, secs % 3600 / 60, secs % 60)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn rfc3339_of_known_instants() {
+        // Unix epoch, a leap day and the end of a century year (values from the calendar).
+        assert_eq!(rfc3339_utc(0), "1970-01-01T00:00:00Z");
+        assert_eq!(rfc3339_utc(951_782_400), "2000-02-29T00:00:00Z");
+        assert_eq!(rfc3339_utc(1_798_761_599), "2026-12-31T23:59:59Z");
+    }
+
+    #[test]
+    fn sha256_of_abc() {
+        // FIPS 180-2, appendix B.1 test vector.
+        assert_eq!(sha256_hex(b"abc"), "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad");
+    }
+}

@@ -1,0 +1,172 @@
+//! Reducing runs: read the yields table, check it, apply the stages, write the outputs. One
+//! run's failure is reported and the others go on.
+
+use std::path::{Path, PathBuf};
+
+use polars::prelude::DataFrame;
+use stages::{RunContext, StageError};
+use tracing::{debug, info, info_span, warn};
+
+use crate::error::{Diagnostic, RunFailure};
+use crate::plan::{LoadedRun, Plan};
+use crate::provenance::{record_time_s, rfc3339_utc, Provenance};
+use crate::tables::{csv_bytes, is_csv, parquet_bytes, read_table, write_atomic};
+
+/// File names of one run's outputs inside `<out>/<run>/`.
+pub const CROSS_SECTIONS_PARQUET: &str = "cross_sections.parquet";
+/// CSV copy of the same table.
+pub const CROSS_SECTIONS_CSV: &str = "cross_sections.csv";
+/// Provenance record beside the tables.
+pub const PROVENANCE_JSON: &str = "provenance.json";
+/// Key of the provenance record in the Parquet file metadata.
+pub const PROVENANCE_KEY: &str = "xsflow.provenance";
+
+/// The reduced table of one run and how it was made.
+pub struct Reduced {
+    /// The final table.
+    pub table: DataFrame,
+    /// Its provenance.
+    pub provenance: Provenance,
+}
+
+/// Read and check one run's yields table, then apply every stage.
+///
+/// # Errors
+/// Every problem of the yields table, or the first stage that fails; located.
+pub fn reduce_run(plan: &Plan, run: &LoadedRun) -> Result<Reduced, Vec<Diagnostic>> {
+    let yields = &run.yields_path;
+    let bytes = std::fs::read(yields).map_err(|e| vec![Diagnostic::new(yields, "", format!("cannot read the yields table: {e}"))])?;
+    let raw = read_table(yields).map_err(|m| vec![Diagnostic::new(yields, "", m).with_help("a yields table needs columns detector, state, counts_gross (schemas/yields.schema.json)")])?;
+    if raw.height() == 0 {
+        warn!(run = %run.record.run, file = %yields.display(), "yields table has no rows");
+    }
+    let prepared = stages::yields::prepare(&raw, &plan.setup, &run.record.run.0).map_err(|errs| errs.iter().map(|e| table_diagnostic(yields, "", e)).collect::<Vec<_>>())?;
+    for c in &prepared.ignored_columns {
+        warn!(run = %run.record.run, column = %c, "yields column is not part of the yields table and is ignored");
+    }
+    let ctx = RunContext { setup: &plan.setup, run: &run.record };
+    let mut table = prepared.table;
+    for s in &plan.stages {
+        let _span = info_span!("stage", stage = s.stage.name()).entered();
+        let key = format!("{} ({})", s.key, s.stage.name());
+        for need in s.stage.needs() {
+            if table.column(need).is_err() {
+                let e = StageError::MissingColumn { column: need.to_string(), found: stages::table::column_list(&table) };
+                return Err(vec![table_diagnostic(yields, &key, &e).with_help("add the column to the yields table, or a stage that adds it earlier in the config")]);
+            }
+        }
+        table = s.stage.run(table, &ctx).map_err(|e| {
+            let file = if matches!(e, StageError::MissingRunValue { .. } | StageError::Physics { .. }) { &run.record_path } else { yields };
+            vec![table_diagnostic(file, &key, &e)]
+        })?;
+        debug!(rows = table.height(), "stage done");
+    }
+    let base = &plan.config_dir;
+    let provenance = Provenance {
+        program: "xsflow",
+        version: env!("CARGO_PKG_VERSION"),
+        config_file: plan.config_path.to_string_lossy().into_owned(),
+        config_sha256: plan.config_sha256.clone(),
+        run: run.record.run.0.clone(),
+        stages: plan.stages.iter().map(|s| s.stage.name().to_string()).collect(),
+        inputs: vec![Provenance::input(base, &run.record_path, &run.record_bytes), Provenance::input(base, yields, &bytes)],
+        created_utc: rfc3339_utc(record_time_s()),
+    };
+    Ok(Reduced { table, provenance })
+}
+
+/// A stage or table error as a diagnostic; a data row of a CSV file gets its line number.
+fn table_diagnostic(file: &Path, key: &str, e: &StageError) -> Diagnostic {
+    let line = match e {
+        StageError::BadValue { row, .. } | StageError::UnknownDetector { row, .. } if is_csv(file) && *row > 0 => Some((row + 1, 1)),
+        _ => None,
+    };
+    Diagnostic::new(file, key, e.to_string()).at(line)
+}
+
+/// Write one run's tables and provenance into `<out>/<run>/`, each file atomically.
+///
+/// # Errors
+/// A diagnostic naming the file that could not be written.
+pub fn write_outputs(out_dir: &Path, reduced: &mut Reduced) -> Result<Vec<PathBuf>, Diagnostic> {
+    let dir = out_dir.join(&reduced.provenance.run);
+    let fail = |path: &Path, e: &dyn std::fmt::Display| Diagnostic::new(path, "", format!("cannot write the output: {e}")).with_help("check that the output folder is writable and the disk is not full");
+    std::fs::create_dir_all(&dir).map_err(|e| fail(&dir, &e))?;
+    let record = serde_json::to_string_pretty(&reduced.provenance).map_err(|e| fail(&dir, &e))?;
+    let parquet = parquet_bytes(&mut reduced.table, vec![(PROVENANCE_KEY.to_string(), record.clone())]).map_err(|e| fail(&dir, &e))?;
+    let csv = csv_bytes(&mut reduced.table).map_err(|e| fail(&dir, &e))?;
+    let files = [(CROSS_SECTIONS_PARQUET, parquet), (CROSS_SECTIONS_CSV, csv), (PROVENANCE_JSON, format!("{record}\n").into_bytes())];
+    let mut written = Vec::new();
+    for (name, bytes) in files {
+        let path = dir.join(name);
+        write_atomic(&path, &bytes).map_err(|e| fail(&path, &e))?;
+        written.push(path);
+    }
+    Ok(written)
+}
+
+/// Counts of a reduction.
+#[derive(Debug, Default, Clone, Copy, PartialEq, Eq)]
+pub struct Summary {
+    /// Runs reduced and written.
+    pub ok: usize,
+    /// Runs that failed.
+    pub failed: usize,
+}
+
+/// Reduce every run of the plan into `out_dir`; failures are returned, not fatal.
+pub fn reduce_all(plan: &Plan, out_dir: &Path) -> (Summary, Vec<RunFailure>) {
+    let mut summary = Summary::default();
+    let mut failures = Vec::new();
+    for planned in &plan.runs {
+        let label = planned.label();
+        let _span = info_span!("run", run = %label).entered();
+        let result = planned.loaded.as_ref().map_err(Clone::clone).and_then(|run| {
+            let mut reduced = reduce_run(plan, run)?;
+            write_outputs(out_dir, &mut reduced).map_err(|d| vec![d])
+        });
+        match result {
+            Ok(files) => {
+                summary.ok += 1;
+                info!(files = files.len(), dir = %out_dir.join(&label).display(), "run reduced");
+            }
+            Err(problems) => {
+                summary.failed += 1;
+                warn!(problems = problems.len(), "run failed");
+                failures.push(RunFailure { run: label, problems });
+            }
+        }
+    }
+    (summary, failures)
+}
+
+/// Every problem `xsflow check` can find in the runs without reducing them: record problems
+/// and yields-table problems (columns, values, detectors).
+pub fn check_runs(plan: &Plan) -> Vec<RunFailure> {
+    let mut failures = Vec::new();
+    for planned in &plan.runs {
+        let problems = match &planned.loaded {
+            Err(d) => d.clone(),
+            Ok(run) => match read_table(&run.yields_path) {
+                Err(m) => vec![Diagnostic::new(&run.yields_path, "", m)],
+                Ok(raw) => match stages::yields::prepare(&raw, &plan.setup, &run.record.run.0) {
+                    Err(errs) => errs.iter().map(|e| table_diagnostic(&run.yields_path, "", e)).collect(),
+                    Ok(prepared) => plan
+                        .stages
+                        .iter()
+                        .flat_map(|s| s.stage.needs().into_iter().map(move |n| (s, n)))
+                        .filter(|(_, need)| stages::yields::OPTIONAL_COLUMNS.contains(need) && prepared.table.column(need).is_err())
+                        .map(|(s, need)| {
+                            let e = StageError::MissingColumn { column: need.to_string(), found: stages::table::column_list(&prepared.table) };
+                            table_diagnostic(&run.yields_path, &format!("{} ({})", s.key, s.stage.name()), &e)
+                        })
+                        .collect(),
+                },
+            },
+        };
+        if !problems.is_empty() {
+            failures.push(RunFailure { run: planned.label(), problems });
+        }
+    }
+    failures
+}

@@ -1,0 +1,84 @@
+//! Reading and writing tables: CSV and Parquet by file extension, outputs written
+//! atomically (a temporary file in the same folder, synced, then renamed), so that an
+//! interrupted run never leaves a half-written file under its final name.
+
+use std::fs::File;
+use std::io::Write;
+use std::path::Path;
+
+use polars::prelude::*;
+
+/// Table formats by extension.
+const ACCEPTED: &str = ".csv, .parquet (or .pq)";
+
+/// Read a whole table from a CSV (with a header line) or Parquet file.
+///
+/// # Errors
+/// Unreadable file, unknown extension, or a file the reader rejects; the message says
+/// which.
+pub fn read_table(path: &Path) -> Result<DataFrame, String> {
+    let ext = path.extension().and_then(|e| e.to_str()).unwrap_or("").to_ascii_lowercase();
+    match ext.as_str() {
+        "csv" => CsvReadOptions::default()
+            .with_has_header(true)
+            .with_infer_schema_length(None)
+            .try_into_reader_with_file_path(Some(path.to_path_buf()))
+            .and_then(|r| r.finish())
+            .map_err(|e| format!("cannot read it as CSV: {e}")),
+        "parquet" | "pq" => {
+            let file = File::open(path).map_err(|e| format!("cannot open it: {e}"))?;
+            ParquetReader::new(file).finish().map_err(|e| format!("cannot read it as Parquet: {e}"))
+        }
+        _ => Err(format!("unknown table format `.{ext}`; accepted: {ACCEPTED}")),
+    }
+}
+
+/// Whether a table file is CSV (its data row N is on line N + 1, after the header).
+pub fn is_csv(path: &Path) -> bool {
+    path.extension().and_then(|e| e.to_str()).is_some_and(|e| e.eq_ignore_ascii_case("csv"))
+}
+
+/// A table as CSV bytes: header line, comma separated, floats in their shortest
+/// round-trip form.
+///
+/// # Errors
+/// The writer's error.
+pub fn csv_bytes(table: &mut DataFrame) -> PolarsResult<Vec<u8>> {
+    let mut out = Vec::new();
+    CsvWriter::new(&mut out).include_header(true).finish(table)?;
+    Ok(out)
+}
+
+/// A table as Parquet bytes with file-level key-value metadata (zstd, no parallel
+/// encoding, so the bytes depend only on the data).
+///
+/// # Errors
+/// The writer's error.
+pub fn parquet_bytes(table: &mut DataFrame, metadata: Vec<(String, String)>) -> PolarsResult<Vec<u8>> {
+    let mut out = Vec::new();
+    ParquetWriter::new(&mut out).set_parallel(false).with_key_value_metadata(Some(KeyValueMetadata::from_static(metadata))).finish(table)?;
+    Ok(out)
+}
+
+/// Write `bytes` to `path` atomically: a temporary file beside it, flushed to disk, then
+/// renamed over the final name. On any error the temporary file is removed and the final
+/// name is untouched.
+///
+/// # Errors
+/// The I/O error, for the caller to report with the path.
+pub fn write_atomic(path: &Path, bytes: &[u8]) -> std::io::Result<()> {
+    let dir = path.parent().unwrap_or(Path::new("."));
+    let name = path.file_name().map_or_else(|| "out".into(), |n| n.to_string_lossy().into_owned());
+    let tmp = dir.join(format!(".{name}.tmp-{}", std::process::id()));
+    let result = (|| {
+        let mut f = File::create(&tmp)?;
+        f.write_all(bytes)?;
+        f.sync_all()?;
+        std::fs::rename(&tmp, path)
+    })();
+    if result.is_err() {
+        // The temporary file may not exist; nothing else to undo.
+        let _ = std::fs::remove_file(&tmp);
+    }
+    result
+}

@@ -1,0 +1,103 @@
+"""Generate the invented demo runs of sample-runs/alpha-ni58.
+
+Everything here is invented for the demo: the laboratory ("Lakeside Tandem Hall" does not
+exist), the runs, the detector set-up and the counts. The counts are drawn (fixed seed) from
+an invented smooth angular distribution, loosely shaped like elastic alpha scattering: a
+Rutherford-like 1/sin^4(theta/2) fall-off times a made-up diffraction-like damping. It is
+NOT a physics model and must not be compared with measured data.
+
+Run:  python3 sample-runs/alpha-ni58/generate.py      (needs numpy)
+It rewrites runs/*.run.yaml and runs/*.yields.csv beside this script.
+"""
+
+import math
+from pathlib import Path
+
+import numpy as np
+
+HERE = Path(__file__).resolve().parent
+E_CHARGE_C = 1.602176634e-19  # CODATA 2018, exact
+AVOGADRO = 6.02214076e23  # CODATA 2018, exact
+
+# Must match experiment.yaml (distance_mm, aperture, efficiency).
+DETECTORS = [
+    # id, theta_lab_deg, distance_mm, solid angle msr (for the simulation only), efficiency
+    ("D01", 20.0, 250.0, None, 1.0),
+    ("D02", 30.0, 250.0, None, 1.0),
+    ("D03", 40.0, 200.0, None, 0.995),
+    ("D04", 50.0, 200.0, None, 0.995),
+    ("D05", 60.0, 150.0, None, 0.99),
+    ("D06", 70.0, 150.0, None, 0.99),
+    ("D07", 80.0, 150.0, None, 0.99),
+    ("D08", 90.0, 120.0, None, 0.98),
+    ("D09", 100.0, 120.0, None, 0.98),
+    ("D10", 110.0, 120.0, None, 0.98),
+    ("D11", 125.0, 100.0, None, 0.97),
+    ("D12", 140.0, 100.0, None, 0.97),
+]
+RADIUS_MM = 2.5
+STATES = [("elastic", 0.0, 1.0), ("2+_1.454", 1.454, 0.04)]
+
+RUNS = [
+    # run, charge C, live s, real s, pulser sent, pulser recorded, triggers raw, accepted
+    ("0101", 2.0e-6, 3421.0, 3600.0, 36000, 34210, 1_250_000, 1_187_900),
+    ("0102", 3.5e-6, 5050.5, 5400.0, 54000, 50505, 2_100_000, 1_963_500),
+    ("0103", 1.2e-6, 1765.0, 1800.0, 18000, 17650, 560_000, 549_100),
+]
+
+AREAL_DENSITY_G_CM2 = 210e-6
+MOLAR_MASS = 57.9353
+ISOTOPIC_FRACTION = 0.9963
+BEAM_CHARGE_STATE = 2
+BEAM_ENERGY_MEV = 24.0
+
+
+def invented_dsdo_mb_sr(theta_deg, state_scale):
+    """Invented lab distribution in mb/sr: Rutherford-like fall-off with a made-up damping."""
+    half = math.radians(theta_deg) / 2.0
+    coulomb = 1.296 * (2 * 28 / BEAM_ENERGY_MEV) ** 2 / math.sin(half) ** 4  # mb/sr, shape only
+    damping = 1.0 / (1.0 + math.exp((theta_deg - 45.0) / 9.0)) + 0.02 * (1 + math.cos(math.radians(6 * theta_deg)))
+    return state_scale * coulomb * damping
+
+
+def solid_angle_sr(d, r):
+    s = math.hypot(d, r)
+    return 2 * math.pi * r * r / (s * (s + d))
+
+
+def main():
+    rng = np.random.default_rng(20261202)
+    n_target = AREAL_DENSITY_G_CM2 * AVOGADRO / MOLAR_MASS * ISOTOPIC_FRACTION
+    runs_dir = HERE / "runs"
+    runs_dir.mkdir(exist_ok=True)
+    for run, charge, live, real, p_sent, p_rec, t_raw, t_acc in RUNS:
+        n_beam = charge / (BEAM_CHARGE_STATE * E_CHARGE_C)
+        live_fraction = live / real
+        lines = ["detector,state,counts_gross,counts_background,counts_background_err,energy_lab_mev"]
+        for det, theta, dist, _, eff in DETECTORS:
+            omega = solid_angle_sr(dist, RADIUS_MM)
+            for state, ex_mev, scale in STATES:
+                expected = invented_dsdo_mb_sr(theta, scale) * 1e-27 * n_beam * n_target * omega * eff * live_fraction
+                background = 0.002 * expected + 15.0
+                gross = int(rng.poisson(expected + background))
+                bg = float(rng.poisson(background))
+                # Kinematic-like energy, invented: falls with angle and excitation.
+                energy = BEAM_ENERGY_MEV * (1 - 0.03 * (1 - math.cos(math.radians(theta)))) - ex_mev
+                lines.append(f"{det},{state},{gross},{bg:.1f},{math.sqrt(bg):.4f},{energy:.4f}")
+        (runs_dir / f"run{run}.yields.csv").write_text("\n".join(lines) + "\n")
+        record = f"""# Run record of run {run} (invented demo data, Lakeside Tandem Hall)
+run: "{run}"
+yields_file: run{run}.yields.csv
+charge_c: {charge:.4e}
+live_time_s: {live}
+real_time_s: {real}
+pulser_sent: {p_sent}
+pulser_recorded: {p_rec}
+triggers_raw: {t_raw}
+triggers_accepted: {t_acc}
+"""
+        (runs_dir / f"run{run}.run.yaml").write_text(record)
+
+
+if __name__ == "__main__":
+    main()

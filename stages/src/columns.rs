@@ -1,0 +1,62 @@
+//! The reduced cross-section table (`cross_sections.parquet` / `.csv`), one row per run ×
+//! detector × state: the columns of a run reduced with every stage, in output order. This
+//! type documents them and generates `schemas/cross_sections.schema.json`; a test checks
+//! that the demo output has exactly these columns.
+
+use schemars::JsonSchema;
+
+/// One row of the reduced cross-section table.
+#[derive(Debug, Clone, JsonSchema)]
+#[allow(dead_code)]
+pub struct CrossSectionRow {
+    /// Run id.
+    pub run: String,
+    /// Detector id.
+    pub detector: String,
+    /// State (peak) name.
+    pub state: String,
+    /// Lab angle of the detector in degrees.
+    pub theta_lab_deg: f64,
+    /// Standard uncertainty of the lab angle in degrees.
+    pub theta_lab_err_deg: f64,
+    /// Gross counts in the peak window.
+    pub counts_gross: f64,
+    /// Background counts under the peak (present when the yields table has it).
+    pub counts_background: Option<f64>,
+    /// Standard uncertainty of the background (present when the yields table has it).
+    pub counts_background_err: Option<f64>,
+    /// Lab energy of the detected particle in MeV (present when the yields table has it).
+    pub energy_lab_mev: Option<f64>,
+    /// Net counts, gross minus background.
+    pub counts_net: f64,
+    /// Standard uncertainty of the net counts (Poisson on gross, background error).
+    pub counts_net_err: f64,
+    /// Live fraction of the acquisition, in (0, 1].
+    pub live_fraction: f64,
+    /// Standard uncertainty of the live fraction.
+    pub live_fraction_err: f64,
+    /// Detection efficiency.
+    pub efficiency: f64,
+    /// Standard uncertainty of the efficiency.
+    pub efficiency_err: f64,
+    /// Solid angle in msr.
+    pub solid_angle_msr: f64,
+    /// Standard uncertainty of the solid angle in msr.
+    pub solid_angle_err_msr: f64,
+    /// Beam particles, Q/(q e).
+    pub beam_particles: f64,
+    /// Relative standard uncertainty of the beam particles.
+    pub beam_particles_rel_err: f64,
+    /// Target atoms per cm² along the beam.
+    pub target_atoms_per_cm2: f64,
+    /// Relative standard uncertainty of the target atoms per cm².
+    pub target_atoms_rel_err: f64,
+    /// Lab differential cross section dσ/dΩ_lab in mb/sr.
+    pub dsdo_lab_mb_sr: f64,
+    /// Statistical standard uncertainty of dσ/dΩ_lab in mb/sr.
+    pub stat_err_lab_mb_sr: f64,
+    /// Point-to-point systematic standard uncertainty of dσ/dΩ_lab in mb/sr.
+    pub sys_err_lab_mb_sr: f64,
+    /// Common normalisation relative standard uncertainty (charge, target, live fraction).
+    pub norm_rel_err: f64,
+}
