@@ -1,1 +1,9 @@
-//! Integration tests.
+//! Integration and reference tests of xsflow: one test binary, one module per topic.
+//! Reference checks name their source beside each comparison.
+
+mod bad_input;
+mod cli;
+mod common;
+mod config;
+mod reference;
+mod regression;

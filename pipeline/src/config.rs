@@ -64,7 +64,10 @@ impl YamlFile {
     /// # Errors
     /// A diagnostic for an unreadable file or a YAML syntax error (with its position).
     pub fn read(path: &Path) -> Result<Self, Diagnostic> {
-        let bytes = std::fs::read(path).map_err(|e| Diagnostic::new(path, "", format!("cannot read the file: {e}")).with_help("check the path; relative paths are relative to the file that names them"))?;
+        let bytes = std::fs::read(path).map_err(|e| {
+            Diagnostic::new(path, "", format!("cannot read the file: {e}"))
+                .with_help("check the path; relative paths are relative to the file that names them")
+        })?;
         let text = String::from_utf8_lossy(&bytes).into_owned();
         let value: Value = serde_yaml::from_str(&text).map_err(|e| {
             let place = e.location().map(|l| (l.line(), l.column()));
@@ -75,7 +78,8 @@ impl YamlFile {
 
     /// A located diagnostic for a problem at `key` of this file.
     pub fn problem(&self, p: &Problem) -> Diagnostic {
-        Diagnostic::new(&self.path, p.key.clone(), format!("found {}, expected {}", p.found, p.expected)).at(self.locations.find(&p.key))
+        Diagnostic::new(&self.path, p.key.clone(), format!("found {}, expected {}", p.found, p.expected))
+            .at(self.locations.find(&p.key))
     }
 
     /// Deserialize the value at `key` (already looked up) into `T`, with every error located.
@@ -133,15 +137,38 @@ pub fn closest<'a>(name: &str, accepted: &[&'a str]) -> Option<&'a str> {
         .map(|(_, a)| a)
 }
 
-/// Parse an experiment config, reporting every problem at once.
+/// An experiment config with the sections that parsed; a section that did not is `None`
+/// and its problems are in the diagnostics returned beside it.
+#[derive(Debug, Clone, Default)]
+pub struct PartialConfig {
+    /// `experiment:`.
+    pub experiment: Option<ExperimentInfo>,
+    /// `reaction:`.
+    pub reaction: Option<ReactionConfig>,
+    /// `target:`.
+    pub target: Option<TargetConfig>,
+    /// `detectors:`, when every item parsed.
+    pub detectors: Option<Vec<DetectorConfig>>,
+    /// `runs:`.
+    pub runs: Option<Vec<String>>,
+    /// `stages:`, when every item parsed.
+    pub stages: Option<Vec<StageConfig>>,
+}
+
+/// Parse an experiment config section by section and list item by list item, so that every
+/// problem is reported at once.
 ///
-/// # Errors
-/// Every diagnostic found: syntax, unknown or missing sections, and each section's or
-/// list item's own problems.
-pub fn parse_experiment(file: &YamlFile) -> Result<ExperimentConfig, Vec<Diagnostic>> {
+/// Returns the sections that parsed and the diagnostics of the rest (syntax, unknown or
+/// missing sections, each item's own problems).
+pub fn parse_experiment(file: &YamlFile) -> (PartialConfig, Vec<Diagnostic>) {
     let mut diags = Vec::new();
     let Some(map) = file.value.as_mapping() else {
-        return Err(vec![Diagnostic::new(&file.path, "", "expected a mapping with sections experiment, reaction, target, detectors, runs, stages")]);
+        let d = Diagnostic::new(
+            &file.path,
+            "",
+            "expected a mapping with sections experiment, reaction, target, detectors, runs, stages",
+        );
+        return (PartialConfig::default(), vec![d]);
     };
     for k in map.keys() {
         let name = k.as_str().unwrap_or("");
@@ -150,38 +177,55 @@ pub fn parse_experiment(file: &YamlFile) -> Result<ExperimentConfig, Vec<Diagnos
                 Some(best) => format!("did you mean `{best}`? sections: {}", SECTIONS.join(", ")),
                 None => format!("sections: {}", SECTIONS.join(", ")),
             };
-            diags.push(Diagnostic::new(&file.path, name, format!("unknown section `{}`", yaml_text(k))).at(file.locations.find(name)).with_help(help));
+            diags.push(
+                Diagnostic::new(&file.path, name, format!("unknown section `{}`", yaml_text(k)))
+                    .at(file.locations.find(name))
+                    .with_help(help),
+            );
         }
     }
     let section = |name: &str, diags: &mut Vec<Diagnostic>| -> Option<Value> {
         let v = map.get(name).cloned();
         if v.is_none() {
-            diags.push(Diagnostic::new(&file.path, name, "missing section").at(Some((1, 1))).with_help(format!("add `{name}:`; schemas/config.schema.json shows its form")));
+            diags.push(
+                Diagnostic::new(&file.path, name, "missing section")
+                    .at(Some((1, 1)))
+                    .with_help(format!("add `{name}:`; schemas/config.schema.json shows its form")),
+            );
         }
         v
     };
-    let experiment = section("experiment", &mut diags).and_then(|v| keep(file.parse::<ExperimentInfo>("experiment", &v), &mut diags));
-    let reaction = section("reaction", &mut diags).and_then(|v| keep(file.parse::<ReactionConfig>("reaction", &v), &mut diags));
-    let target = section("target", &mut diags).and_then(|v| keep(file.parse::<TargetConfig>("target", &v), &mut diags));
-    let detectors = section("detectors", &mut diags).and_then(|v| parse_list::<DetectorConfig>(file, "detectors", &v, &mut diags));
-    let runs = section("runs", &mut diags).and_then(|v| keep(file.parse::<Vec<String>>("runs", &v), &mut diags));
-    let stages = section("stages", &mut diags).and_then(|v| parse_list::<StageConfig>(file, "stages", &v, &mut diags));
-    match (experiment, reaction, target, detectors, runs, stages) {
-        (Some(experiment), Some(reaction), Some(target), Some(detectors), Some(runs), Some(stages)) if diags.is_empty() => {
-            Ok(ExperimentConfig { experiment, reaction, target, detectors, runs, stages })
-        }
-        _ => Err(diags),
-    }
+    let config = PartialConfig {
+        experiment: section("experiment", &mut diags).and_then(|v| keep(file.parse("experiment", &v), &mut diags)),
+        reaction: section("reaction", &mut diags).and_then(|v| keep(file.parse("reaction", &v), &mut diags)),
+        target: section("target", &mut diags).and_then(|v| keep(file.parse("target", &v), &mut diags)),
+        detectors: section("detectors", &mut diags).and_then(|v| parse_list(file, "detectors", &v, &mut diags)),
+        runs: section("runs", &mut diags).and_then(|v| keep(file.parse("runs", &v), &mut diags)),
+        stages: section("stages", &mut diags).and_then(|v| parse_list(file, "stages", &v, &mut diags)),
+    };
+    (config, diags)
 }
 
 /// Parse a YAML list item by item; `None` if any item failed (its diagnostics are kept).
-fn parse_list<T: DeserializeOwned>(file: &YamlFile, key: &str, value: &Value, diags: &mut Vec<Diagnostic>) -> Option<Vec<T>> {
+fn parse_list<T: DeserializeOwned>(
+    file: &YamlFile,
+    key: &str,
+    value: &Value,
+    diags: &mut Vec<Diagnostic>,
+) -> Option<Vec<T>> {
     let Some(items) = value.as_sequence() else {
-        diags.push(Diagnostic::new(&file.path, key, format!("found {}, expected a list", yaml_text(value))).at(file.locations.find(key)));
+        diags.push(
+            Diagnostic::new(&file.path, key, format!("found {}, expected a list", yaml_text(value)))
+                .at(file.locations.find(key)),
+        );
         return None;
     };
     let before = diags.len();
-    let parsed: Vec<T> = items.iter().enumerate().filter_map(|(i, item)| keep(file.parse::<T>(&format!("{key}[{i}]"), item), diags)).collect();
+    let parsed: Vec<T> = items
+        .iter()
+        .enumerate()
+        .filter_map(|(i, item)| keep(file.parse::<T>(&format!("{key}[{i}]"), item), diags))
+        .collect();
     (diags.len() == before).then_some(parsed)
 }
 

@@ -27,7 +27,14 @@ pub struct Diagnostic {
 impl Diagnostic {
     /// A problem in `file` at `key`, not yet located to a line.
     pub fn new(file: &Path, key: impl Into<String>, message: impl Into<String>) -> Self {
-        Diagnostic { file: file.to_path_buf(), line: None, column: None, key: key.into(), message: message.into(), help: None }
+        Diagnostic {
+            file: file.to_path_buf(),
+            line: None,
+            column: None,
+            key: key.into(),
+            message: message.into(),
+            help: None,
+        }
     }
 
     /// Add a help line.

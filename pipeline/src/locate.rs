@@ -13,8 +13,18 @@ pub struct Locations {
 }
 
 enum Frame {
-    Map { path: String, key: Option<String> },
-    Seq { path: String, next: usize },
+    /// A mapping: its path, the key whose value comes next, and where it started (used for
+    /// the mapping's own place only when it has no key; otherwise its first key is its place,
+    /// which is where a reader looks).
+    Map {
+        path: String,
+        key: Option<String>,
+        start: (usize, usize),
+    },
+    Seq {
+        path: String,
+        next: usize,
+    },
 }
 
 #[derive(Default)]
@@ -33,7 +43,7 @@ impl Walker {
                 *next += 1;
                 Some(p)
             }
-            Some(Frame::Map { path, key }) => key.take().map(|k| stages::problem_key(path, &k)),
+            Some(Frame::Map { path, key, .. }) => key.take().map(|k| stages::problem_key(path, &k)),
         }
     }
 }
@@ -47,19 +57,26 @@ impl MarkedEventReceiver for Walker {
                     self.places.entry(path).or_insert(here);
                 }
                 None => {
-                    if let Some(Frame::Map { path, key }) = self.stack.last_mut() {
+                    if let Some(Frame::Map { path, key, .. }) = self.stack.last_mut() {
+                        self.places.entry(path.clone()).or_insert(here);
                         self.places.insert(stages::problem_key(path, &value), here);
                         *key = Some(value);
                     }
                 }
             },
-            Event::MappingStart(..) | Event::SequenceStart(..) => {
+            Event::MappingStart(..) => {
+                let path = self.node_path().unwrap_or_default();
+                self.stack.push(Frame::Map { path, key: None, start: here });
+            }
+            Event::SequenceStart(..) => {
                 let path = self.node_path().unwrap_or_default();
                 self.places.entry(path.clone()).or_insert(here);
-                self.stack.push(if matches!(ev, Event::MappingStart(..)) { Frame::Map { path, key: None } } else { Frame::Seq { path, next: 0 } });
+                self.stack.push(Frame::Seq { path, next: 0 });
             }
             Event::MappingEnd | Event::SequenceEnd => {
-                self.stack.pop();
+                if let Some(Frame::Map { path, start, .. }) = self.stack.pop() {
+                    self.places.entry(path).or_insert(start);
+                }
             }
             Event::Alias(_) => {
                 self.node_path();
@@ -104,7 +121,7 @@ mod tests {
         let loc = Locations::of(text);
         assert_eq!(loc.find("a"), Some((1, 1)));
         assert_eq!(loc.find("list[0].id"), Some((3, 5)));
-        assert_eq!(loc.find("list[0].deep.r"), Some((4, 15)));
+        assert_eq!(loc.find("list[0].deep.r"), Some((4, 13)));
         assert_eq!(loc.find("list[1].id"), Some((5, 5)));
         assert_eq!(loc.find("list[1].missing"), Some((5, 5)));
     }

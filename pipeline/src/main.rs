@@ -43,7 +43,12 @@ fn init_logs(verbose: u8, quiet: bool) {
     };
     let filter = EnvFilter::try_from_default_env().unwrap_or_else(|_| EnvFilter::new(level));
     let ansi = std::io::IsTerminal::is_terminal(&std::io::stderr());
-    tracing_subscriber::fmt().with_env_filter(filter).with_writer(std::io::stderr).with_target(false).with_ansi(ansi).init();
+    tracing_subscriber::fmt()
+        .with_env_filter(filter)
+        .with_writer(std::io::stderr)
+        .with_target(false)
+        .with_ansi(ansi)
+        .init();
 }
 
 fn print_problems(format: Format, config: &[Diagnostic], runs: &[RunFailure]) {
@@ -97,7 +102,10 @@ fn reduce(config: &Path, out: Option<&Path>, runs: &[String], format: Format) ->
     let out_dir = out.map_or_else(|| p.config_dir.join("out"), Path::to_path_buf);
     let (summary, failures) = reduce_all(&p, &out_dir);
     match format {
-        Format::Json => println!("{}", serde_json::json!({ "ok": summary.ok, "failed": summary.failed, "out": out_dir, "failures": failures })),
+        Format::Json => println!(
+            "{}",
+            serde_json::json!({ "ok": summary.ok, "failed": summary.failed, "out": out_dir, "failures": failures })
+        ),
         Format::Text => print_problems(format, &[], &failures),
     }
     eprintln!("{} run(s) reduced, {} failed; outputs in {}", summary.ok, summary.failed, out_dir.display());

@@ -47,7 +47,10 @@ impl PlannedRun {
     pub fn label(&self) -> String {
         match &self.loaded {
             Ok(run) => run.record.run.0.clone(),
-            Err(_) => self.record_path.file_name().map_or_else(|| self.record_path.display().to_string(), |n| n.to_string_lossy().into_owned()),
+            Err(_) => self
+                .record_path
+                .file_name()
+                .map_or_else(|| self.record_path.display().to_string(), |n| n.to_string_lossy().into_owned()),
         }
     }
 }
@@ -76,43 +79,72 @@ pub struct Plan {
 /// Every config-level problem at once (the runs' own problems are kept per run).
 pub fn plan(config_path: &Path) -> Result<Plan, Vec<Diagnostic>> {
     let file = YamlFile::read(config_path).map_err(|d| vec![d])?;
-    let config = parse_experiment(&file)?;
+    let (config, mut diags) = parse_experiment(&file);
     let config_dir = config_path.parent().map_or_else(|| PathBuf::from("."), Path::to_path_buf);
-    let located = |problems: Vec<Problem>| problems.iter().map(|p| file.problem(p)).collect::<Vec<_>>();
+    let locate = |problems: Vec<Problem>| problems.iter().map(|p| file.problem(p)).collect::<Vec<_>>();
 
-    let mut diags = Vec::new();
-    let setup = Setup::new(config.reaction, config.target, config.detectors).map_err(located);
-    let setup = match setup {
-        Ok(s) => Some(s),
-        Err(d) => {
-            diags.extend(d);
+    // Each section's own ranges are checked even when another section failed to parse.
+    let setup = match (config.reaction.clone(), config.target.clone(), config.detectors.clone()) {
+        (Some(reaction), Some(target), Some(detectors)) => {
+            let (setup, problems) = Setup::new(reaction, target, detectors);
+            diags.extend(locate(problems));
+            Some(setup)
+        }
+        (reaction, target, detectors) => {
+            diags.extend(locate(
+                reaction.map(|r| r.validate()).unwrap_or_default().into_iter().map(|p| p.under("reaction")).collect(),
+            ));
+            diags.extend(locate(
+                target.map(|t| t.validate()).unwrap_or_default().into_iter().map(|p| p.under("target")).collect(),
+            ));
+            for (i, d) in detectors.unwrap_or_default().iter().enumerate() {
+                diags.extend(locate(d.validate().into_iter().map(|p| p.under(&format!("detectors[{i}]"))).collect()));
+            }
             None
         }
     };
     let mut stages = Vec::new();
-    if let Some(setup) = &setup {
-        for (i, sc) in config.stages.iter().enumerate() {
+    if let Some(configs) = &config.stages {
+        for (i, sc) in configs.iter().enumerate() {
             let key = format!("stages[{i}]");
-            match sc.build(setup) {
+            match sc.build(setup.as_ref()) {
                 Ok(stage) => stages.push(PlannedStage { key, stage }),
-                Err(problems) => diags.extend(located(problems.into_iter().map(|p| p.under(&key)).collect())),
+                Err(problems) => diags.extend(locate(problems.into_iter().map(|p| p.under(&key)).collect())),
             }
         }
-        if diags.is_empty() {
-            diags.extend(trace_columns(&stages).into_iter().map(|p| file.problem(&p)));
+        if stages.len() == configs.len() {
+            diags.extend(locate(trace_columns(&stages)));
+        }
+        if configs.is_empty() {
+            diags.push(file.problem(&Problem::new("stages", "an empty list", "at least one stage")));
         }
     }
-    if config.stages.is_empty() {
-        diags.push(file.problem(&Problem::new("stages", "an empty list", "at least one stage")));
-    }
-    let record_paths = discover_runs(&file, &config_dir, &config.runs, &mut diags);
-    match setup {
-        Some(setup) if diags.is_empty() => {
-            let runs = record_paths.into_iter().map(|record_path| PlannedRun { loaded: load_run(&record_path, &stages), record_path }).collect();
-            let plan = Plan { config_sha256: sha256_hex(&file.bytes), config_path: config_path.to_path_buf(), config_dir, experiment: config.experiment, setup, stages, runs };
+    let record_paths = config
+        .runs
+        .as_deref()
+        .map(|patterns| discover_runs(&file, &config_dir, patterns, &mut diags))
+        .unwrap_or_default();
+    match (setup, config.experiment) {
+        (Some(setup), Some(experiment)) if diags.is_empty() => {
+            let runs = record_paths
+                .into_iter()
+                .map(|record_path| PlannedRun { loaded: load_run(&record_path, &stages), record_path })
+                .collect();
+            let plan = Plan {
+                config_sha256: sha256_hex(&file.bytes),
+                config_path: config_path.to_path_buf(),
+                config_dir,
+                experiment,
+                setup,
+                stages,
+                runs,
+            };
             plan.check_unique_runs().map(|()| plan)
         }
-        _ => Err(diags),
+        _ => {
+            diags.sort_by_key(|d| (d.line.unwrap_or(usize::MAX), d.column.unwrap_or(0)));
+            Err(diags)
+        }
     }
 }
 
@@ -126,7 +158,9 @@ fn trace_columns(stages: &[PlannedStage]) -> Vec<Problem> {
             if !available.contains(&need) && !OPTIONAL_COLUMNS.contains(&need) {
                 let later = stages[i + 1..].iter().find(|l| l.stage.adds().contains(&need)).map(|l| l.stage.name());
                 let expected = match later {
-                    Some(name) => format!("column `{need}` added by an earlier stage: move `{name}` before `{}`", s.stage.name()),
+                    Some(name) => {
+                        format!("column `{need}` added by an earlier stage: move `{name}` before `{}`", s.stage.name())
+                    }
                     None => format!("column `{need}` added by an earlier stage (available: {})", available.join(", ")),
                 };
                 problems.push(Problem::new(format!("{}.type", s.key), s.stage.name(), &expected));
@@ -141,7 +175,11 @@ fn trace_columns(stages: &[PlannedStage]) -> Vec<Problem> {
 fn discover_runs(file: &YamlFile, config_dir: &Path, patterns: &[String], diags: &mut Vec<Diagnostic>) -> Vec<PathBuf> {
     let mut found = std::collections::BTreeSet::new();
     if patterns.is_empty() {
-        diags.push(file.problem(&Problem::new("runs", "an empty list", "at least one run record path or glob pattern")));
+        diags.push(file.problem(&Problem::new(
+            "runs",
+            "an empty list",
+            "at least one run record path or glob pattern",
+        )));
     }
     for (i, pattern) in patterns.iter().enumerate() {
         let key = format!("runs[{i}]");
@@ -153,15 +191,23 @@ fn discover_runs(file: &YamlFile, config_dir: &Path, patterns: &[String], diags:
                     let before = found.len();
                     found.extend(paths.filter_map(Result::ok).filter(|p| p.is_file()));
                     if found.len() == before {
-                        diags.push(file.problem(&Problem::new(key, pattern, &format!("a pattern that matches at least one run record (looked for {text})"))));
+                        diags.push(file.problem(&Problem::new(
+                            key,
+                            pattern,
+                            format!("a pattern that matches at least one run record (looked for {text})"),
+                        )));
                     }
                 }
-                Err(e) => diags.push(file.problem(&Problem::new(key, pattern, &format!("a valid glob pattern ({e})")))),
+                Err(e) => diags.push(file.problem(&Problem::new(key, pattern, format!("a valid glob pattern ({e})")))),
             }
         } else if full.is_file() {
             found.insert(full);
         } else {
-            diags.push(file.problem(&Problem::new(key, pattern, &format!("an existing run record file (not found: {text})"))));
+            diags.push(file.problem(&Problem::new(
+                key,
+                pattern,
+                format!("an existing run record file (not found: {text})"),
+            )));
         }
     }
     found.into_iter().collect()
@@ -178,14 +224,22 @@ fn load_run(record_path: &Path, stages: &[PlannedStage]) -> Result<LoadedRun, Ve
     let record: RunRecord = file.parse("", &file.value).map_err(|d| vec![d])?;
     let mut problems = record.validate();
     if !safe_id(&record.run.0) {
-        problems.push(Problem::new("run", &record.run, "an id of letters, digits, '-', '_' and '.' (it names the output folder)"));
+        problems.push(Problem::new(
+            "run",
+            &record.run,
+            "an id of letters, digits, '-', '_' and '.' (it names the output folder)",
+        ));
     }
     for s in stages {
         problems.extend(s.stage.check_run(&record));
     }
     let yields_path = record_path.parent().unwrap_or(Path::new(".")).join(&record.yields_file);
     if problems.is_empty() && !yields_path.is_file() {
-        problems.push(Problem::new("yields_file", &record.yields_file, &format!("an existing yields table (not found: {})", yields_path.display())));
+        problems.push(Problem::new(
+            "yields_file",
+            &record.yields_file,
+            format!("an existing yields table (not found: {})", yields_path.display()),
+        ));
     }
     if !problems.is_empty() {
         return Err(problems.iter().map(|p| file.problem(p)).collect());
@@ -201,7 +255,15 @@ impl Plan {
         for run in &self.runs {
             if let Ok(l) = &run.loaded {
                 if let Some(prev) = first.insert(&l.record.run.0, &l.record_path) {
-                    diags.push(Diagnostic::new(&l.record_path, "run", format!("found run id {}, expected an id not used by another record ({} has it)", l.record.run, prev.display())));
+                    diags.push(Diagnostic::new(
+                        &l.record_path,
+                        "run",
+                        format!(
+                            "found run id {}, expected an id not used by another record ({} has it)",
+                            l.record.run,
+                            prev.display()
+                        ),
+                    ));
                 }
             }
         }
@@ -222,7 +284,11 @@ impl Plan {
         }
         let labels: Vec<String> = self.runs.iter().map(PlannedRun::label).collect();
         if let Some(bad) = ids.iter().find(|id| !labels.contains(id)) {
-            return Err(Diagnostic::new(&self.config_path, "runs", format!("--run {bad}: no such run; runs found: {}", labels.join(", "))));
+            return Err(Diagnostic::new(
+                &self.config_path,
+                "runs",
+                format!("--run {bad}: no such run; runs found: {}", labels.join(", ")),
+            ));
         }
         self.runs.retain(|r| ids.contains(&r.label()));
         Ok(())

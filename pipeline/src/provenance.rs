@@ -53,10 +53,9 @@ impl Provenance {
 
 /// Seconds since 1970 for the record: `SOURCE_DATE_EPOCH` if set and valid, else now.
 pub fn record_time_s() -> i64 {
-    std::env::var("SOURCE_DATE_EPOCH")
-        .ok()
-        .and_then(|s| s.trim().parse::<i64>().ok())
-        .unwrap_or_else(|| SystemTime::now().duration_since(UNIX_EPOCH).map_or(0, |d| i64::try_from(d.as_secs()).unwrap_or(i64::MAX)))
+    std::env::var("SOURCE_DATE_EPOCH").ok().and_then(|s| s.trim().parse::<i64>().ok()).unwrap_or_else(|| {
+        SystemTime::now().duration_since(UNIX_EPOCH).map_or(0, |d| i64::try_from(d.as_secs()).unwrap_or(i64::MAX))
+    })
 }
 
 /// RFC 3339 UTC text of a Unix time, by the days-to-civil algorithm of H. Hinnant,

@@ -35,12 +35,17 @@ pub struct Reduced {
 /// Every problem of the yields table, or the first stage that fails; located.
 pub fn reduce_run(plan: &Plan, run: &LoadedRun) -> Result<Reduced, Vec<Diagnostic>> {
     let yields = &run.yields_path;
-    let bytes = std::fs::read(yields).map_err(|e| vec![Diagnostic::new(yields, "", format!("cannot read the yields table: {e}"))])?;
-    let raw = read_table(yields).map_err(|m| vec![Diagnostic::new(yields, "", m).with_help("a yields table needs columns detector, state, counts_gross (schemas/yields.schema.json)")])?;
+    let bytes = std::fs::read(yields)
+        .map_err(|e| vec![Diagnostic::new(yields, "", format!("cannot read the yields table: {e}"))])?;
+    let raw = read_table(yields).map_err(|m| {
+        vec![Diagnostic::new(yields, "", m)
+            .with_help("a yields table needs columns detector, state, counts_gross (schemas/yields.schema.json)")]
+    })?;
     if raw.height() == 0 {
         warn!(run = %run.record.run, file = %yields.display(), "yields table has no rows");
     }
-    let prepared = stages::yields::prepare(&raw, &plan.setup, &run.record.run.0).map_err(|errs| errs.iter().map(|e| table_diagnostic(yields, "", e)).collect::<Vec<_>>())?;
+    let prepared = stages::yields::prepare(&raw, &plan.setup, &run.record.run.0)
+        .map_err(|errs| errs.iter().map(|e| table_diagnostic(yields, "", e)).collect::<Vec<_>>())?;
     for c in &prepared.ignored_columns {
         warn!(run = %run.record.run, column = %c, "yields column is not part of the yields table and is ignored");
     }
@@ -51,12 +56,18 @@ pub fn reduce_run(plan: &Plan, run: &LoadedRun) -> Result<Reduced, Vec<Diagnosti
         let key = format!("{} ({})", s.key, s.stage.name());
         for need in s.stage.needs() {
             if table.column(need).is_err() {
-                let e = StageError::MissingColumn { column: need.to_string(), found: stages::table::column_list(&table) };
-                return Err(vec![table_diagnostic(yields, &key, &e).with_help("add the column to the yields table, or a stage that adds it earlier in the config")]);
+                let e =
+                    StageError::MissingColumn { column: need.to_string(), found: stages::table::column_list(&table) };
+                return Err(vec![table_diagnostic(yields, &key, &e)
+                    .with_help("add the column to the yields table, or a stage that adds it earlier in the config")]);
             }
         }
         table = s.stage.run(table, &ctx).map_err(|e| {
-            let file = if matches!(e, StageError::MissingRunValue { .. } | StageError::Physics { .. }) { &run.record_path } else { yields };
+            let file = if matches!(e, StageError::MissingRunValue { .. } | StageError::Physics { .. }) {
+                &run.record_path
+            } else {
+                yields
+            };
             vec![table_diagnostic(file, &key, &e)]
         })?;
         debug!(rows = table.height(), "stage done");
@@ -69,7 +80,10 @@ pub fn reduce_run(plan: &Plan, run: &LoadedRun) -> Result<Reduced, Vec<Diagnosti
         config_sha256: plan.config_sha256.clone(),
         run: run.record.run.0.clone(),
         stages: plan.stages.iter().map(|s| s.stage.name().to_string()).collect(),
-        inputs: vec![Provenance::input(base, &run.record_path, &run.record_bytes), Provenance::input(base, yields, &bytes)],
+        inputs: vec![
+            Provenance::input(base, &run.record_path, &run.record_bytes),
+            Provenance::input(base, yields, &bytes),
+        ],
         created_utc: rfc3339_utc(record_time_s()),
     };
     Ok(Reduced { table, provenance })
@@ -78,7 +92,9 @@ pub fn reduce_run(plan: &Plan, run: &LoadedRun) -> Result<Reduced, Vec<Diagnosti
 /// A stage or table error as a diagnostic; a data row of a CSV file gets its line number.
 fn table_diagnostic(file: &Path, key: &str, e: &StageError) -> Diagnostic {
     let line = match e {
-        StageError::BadValue { row, .. } | StageError::UnknownDetector { row, .. } if is_csv(file) && *row > 0 => Some((row + 1, 1)),
+        StageError::BadValue { row, .. } | StageError::UnknownDetector { row, .. } if is_csv(file) && *row > 0 => {
+            Some((row + 1, 1))
+        }
         _ => None,
     };
     Diagnostic::new(file, key, e.to_string()).at(line)
@@ -90,12 +106,20 @@ fn table_diagnostic(file: &Path, key: &str, e: &StageError) -> Diagnostic {
 /// A diagnostic naming the file that could not be written.
 pub fn write_outputs(out_dir: &Path, reduced: &mut Reduced) -> Result<Vec<PathBuf>, Diagnostic> {
     let dir = out_dir.join(&reduced.provenance.run);
-    let fail = |path: &Path, e: &dyn std::fmt::Display| Diagnostic::new(path, "", format!("cannot write the output: {e}")).with_help("check that the output folder is writable and the disk is not full");
+    let fail = |path: &Path, e: &dyn std::fmt::Display| {
+        Diagnostic::new(path, "", format!("cannot write the output: {e}"))
+            .with_help("check that the output folder is writable and the disk is not full")
+    };
     std::fs::create_dir_all(&dir).map_err(|e| fail(&dir, &e))?;
     let record = serde_json::to_string_pretty(&reduced.provenance).map_err(|e| fail(&dir, &e))?;
-    let parquet = parquet_bytes(&mut reduced.table, vec![(PROVENANCE_KEY.to_string(), record.clone())]).map_err(|e| fail(&dir, &e))?;
+    let parquet = parquet_bytes(&mut reduced.table, vec![(PROVENANCE_KEY.to_string(), record.clone())])
+        .map_err(|e| fail(&dir, &e))?;
     let csv = csv_bytes(&mut reduced.table).map_err(|e| fail(&dir, &e))?;
-    let files = [(CROSS_SECTIONS_PARQUET, parquet), (CROSS_SECTIONS_CSV, csv), (PROVENANCE_JSON, format!("{record}\n").into_bytes())];
+    let files = [
+        (CROSS_SECTIONS_PARQUET, parquet),
+        (CROSS_SECTIONS_CSV, csv),
+        (PROVENANCE_JSON, format!("{record}\n").into_bytes()),
+    ];
     let mut written = Vec::new();
     for (name, bytes) in files {
         let path = dir.join(name);
@@ -155,9 +179,14 @@ pub fn check_runs(plan: &Plan) -> Vec<RunFailure> {
                         .stages
                         .iter()
                         .flat_map(|s| s.stage.needs().into_iter().map(move |n| (s, n)))
-                        .filter(|(_, need)| stages::yields::OPTIONAL_COLUMNS.contains(need) && prepared.table.column(need).is_err())
+                        .filter(|(_, need)| {
+                            stages::yields::OPTIONAL_COLUMNS.contains(need) && prepared.table.column(need).is_err()
+                        })
                         .map(|(s, need)| {
-                            let e = StageError::MissingColumn { column: need.to_string(), found: stages::table::column_list(&prepared.table) };
+                            let e = StageError::MissingColumn {
+                                column: need.to_string(),
+                                found: stages::table::column_list(&prepared.table),
+                            };
                             table_diagnostic(&run.yields_path, &format!("{} ({})", s.key, s.stage.name()), &e)
                         })
                         .collect(),

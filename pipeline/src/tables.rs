@@ -56,7 +56,10 @@ pub fn csv_bytes(table: &mut DataFrame) -> PolarsResult<Vec<u8>> {
 /// The writer's error.
 pub fn parquet_bytes(table: &mut DataFrame, metadata: Vec<(String, String)>) -> PolarsResult<Vec<u8>> {
     let mut out = Vec::new();
-    ParquetWriter::new(&mut out).set_parallel(false).with_key_value_metadata(Some(KeyValueMetadata::from_static(metadata))).finish(table)?;
+    ParquetWriter::new(&mut out)
+        .set_parallel(false)
+        .with_key_value_metadata(Some(KeyValueMetadata::from_static(metadata)))
+        .finish(table)?;
     Ok(out)
 }
 
@@ -81,4 +84,20 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> std::io::Result<()> {
         let _ = std::fs::remove_file(&tmp);
     }
     result
+}
+
+/// The file-level key-value metadata of a Parquet file (where xsflow keeps provenance).
+///
+/// # Errors
+/// An unreadable file or one that is not Parquet.
+pub fn parquet_metadata(path: &Path) -> Result<Vec<(String, String)>, String> {
+    let file = File::open(path).map_err(|e| format!("cannot open it: {e}"))?;
+    let mut reader = ParquetReader::new(file);
+    let meta = reader.get_metadata().map_err(|e| format!("cannot read it as Parquet: {e}"))?;
+    Ok(meta
+        .key_value_metadata()
+        .iter()
+        .flatten()
+        .map(|kv| (kv.key.clone(), kv.value.clone().unwrap_or_default()))
+        .collect())
 }

@@ -23,12 +23,15 @@ pub struct ApplyEfficiency {
 }
 
 impl ApplyEfficiencyConfig {
-    /// Build the stage; it needs `energy_lab_mev` when a detector has an efficiency table.
+    /// Build the stage; it needs `energy_lab_mev` when a detector has an efficiency table
+    /// (`setup` as in [`crate::StageConfig::build`]).
     ///
     /// # Errors
     /// None today; the detectors were checked with the set-up.
-    pub fn build(&self, setup: &Setup) -> Result<ApplyEfficiency, Vec<Problem>> {
-        Ok(ApplyEfficiency { uses_energy: setup.detectors.iter().any(|d| d.efficiency_table.is_some()) })
+    pub fn build(&self, setup: Option<&Setup>) -> Result<ApplyEfficiency, Vec<Problem>> {
+        Ok(ApplyEfficiency {
+            uses_energy: setup.is_some_and(|s| s.detectors.iter().any(|d| d.efficiency_table.is_some())),
+        })
     }
 }
 
@@ -48,7 +51,8 @@ impl Stage for ApplyEfficiency {
     }
     fn run(&self, table: DataFrame, ctx: &RunContext<'_>) -> Result<DataFrame, StageError> {
         let detectors = row_detectors(&table, ctx.setup)?;
-        let energies = if self.uses_energy { f64_values(&table, "energy_lab_mev")? } else { vec![f64::NAN; table.height()] };
+        let energies =
+            if self.uses_energy { f64_values(&table, "energy_lab_mev")? } else { vec![f64::NAN; table.height()] };
         let mut value = Vec::with_capacity(detectors.len());
         let mut err = Vec::with_capacity(detectors.len());
         for (row, (det, energy)) in detectors.iter().zip(energies).enumerate() {
@@ -59,7 +63,10 @@ impl Stage for ApplyEfficiency {
                 }
                 Some(t) => {
                     let context = || format!("data row {}, detector {} efficiency_table", row + 1, det.id);
-                    let at = |ys: &[f64]| interpolate::linear(&t.energy_lab_mev, ys, energy, "energy_lab_mev").map_err(|source| StageError::Physics { context: context(), source });
+                    let at = |ys: &[f64]| {
+                        interpolate::linear(&t.energy_lab_mev, ys, energy, "energy_lab_mev")
+                            .map_err(|source| StageError::Physics { context: context(), source })
+                    };
                     value.push(at(&t.efficiency)?);
                     err.push(if t.efficiency_err.is_empty() { 0.0 } else { at(&t.efficiency_err)? });
                 }

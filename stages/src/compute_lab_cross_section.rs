@@ -74,13 +74,24 @@ pub struct LabCrossSection {
 /// The statistical part is k·u(Y) rather than |σ|·u(Y)/Y, so that a peak with zero net
 /// counts keeps its honest error.
 pub fn lab_cross_section(p: &LabPoint) -> LabCrossSection {
-    let k = lab_mb_sr_per_count(p.efficiency.0, p.live_fraction.0, p.beam_particles.0, p.target_atoms_per_cm2.0, p.solid_angle_msr.0);
+    let k = lab_mb_sr_per_count(
+        p.efficiency.0,
+        p.live_fraction.0,
+        p.beam_particles.0,
+        p.target_atoms_per_cm2.0,
+        p.solid_angle_msr.0,
+    );
     let dsdo = k * p.counts_net.0;
     LabCrossSection {
         dsdo_mb_sr: dsdo,
         stat_err_mb_sr: k * p.counts_net.1,
-        sys_err_mb_sr: dsdo.abs() * quadrature(&[p.efficiency.1 / p.efficiency.0, p.solid_angle_msr.1 / p.solid_angle_msr.0]),
-        norm_rel_err: quadrature(&[p.live_fraction.1 / p.live_fraction.0, p.beam_particles.1, p.target_atoms_per_cm2.1]),
+        sys_err_mb_sr: dsdo.abs()
+            * quadrature(&[p.efficiency.1 / p.efficiency.0, p.solid_angle_msr.1 / p.solid_angle_msr.0]),
+        norm_rel_err: quadrature(&[
+            p.live_fraction.1 / p.live_fraction.0,
+            p.beam_particles.1,
+            p.target_atoms_per_cm2.1,
+        ]),
     }
 }
 

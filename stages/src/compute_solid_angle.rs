@@ -37,11 +37,16 @@ impl ComputeSolidAngleConfig {
 pub fn detector_solid_angle_msr(det: &DetectorConfig) -> (f64, f64) {
     let d = det.distance_mm.unwrap_or(f64::NAN);
     let (omega, errs) = match det.aperture {
-        ApertureConfig::Given { solid_angle_msr, solid_angle_err_msr } => return (solid_angle_msr, solid_angle_err_msr),
-        ApertureConfig::Circle { radius_mm, radius_err_mm } => (solid_angle::circle(d, radius_mm), [det.distance_err_mm, radius_err_mm, 0.0]),
-        ApertureConfig::Rectangle { half_width_mm, half_height_mm, half_width_err_mm, half_height_err_mm } => {
-            (solid_angle::rectangle(d, half_width_mm, half_height_mm), [det.distance_err_mm, half_width_err_mm, half_height_err_mm])
+        ApertureConfig::Given { solid_angle_msr, solid_angle_err_msr } => {
+            return (solid_angle_msr, solid_angle_err_msr)
         }
+        ApertureConfig::Circle { radius_mm, radius_err_mm } => {
+            (solid_angle::circle(d, radius_mm), [det.distance_err_mm, radius_err_mm, 0.0])
+        }
+        ApertureConfig::Rectangle { half_width_mm, half_height_mm, half_width_err_mm, half_height_err_mm } => (
+            solid_angle::rectangle(d, half_width_mm, half_height_mm),
+            [det.distance_err_mm, half_width_err_mm, half_height_err_mm],
+        ),
     };
     let err_sr = propagate(&[omega.d_distance, omega.d_size_1, omega.d_size_2], &errs);
     (omega.sr * 1e3, err_sr * 1e3)
@@ -58,7 +63,8 @@ impl Stage for ComputeSolidAngle {
         vec!["solid_angle_msr", "solid_angle_err_msr"]
     }
     fn run(&self, table: DataFrame, ctx: &RunContext<'_>) -> Result<DataFrame, StageError> {
-        let (omega, err): (Vec<f64>, Vec<f64>) = row_detectors(&table, ctx.setup)?.into_iter().map(detector_solid_angle_msr).unzip();
+        let (omega, err): (Vec<f64>, Vec<f64>) =
+            row_detectors(&table, ctx.setup)?.into_iter().map(detector_solid_angle_msr).unzip();
         with_f64_columns(table, vec![("solid_angle_msr", omega), ("solid_angle_err_msr", err)])
     }
 }

@@ -76,8 +76,15 @@ impl CorrectDeadTimeConfig {
         c.rel_err("method_rel_err", self.method_rel_err);
         match (self.method.is_model(), self.resolving_time_us) {
             (true, Some(t)) => c.positive("resolving_time_us", t),
-            (true, None) => c.require(false, "resolving_time_us", "missing", "the resolving time in µs (the models need it)"),
-            (false, Some(t)) => c.require(false, "resolving_time_us", t, "no resolving time: only the non_paralyzable and paralyzable methods use it"),
+            (true, None) => {
+                c.require(false, "resolving_time_us", "missing", "the resolving time in µs (the models need it)")
+            }
+            (false, Some(t)) => c.require(
+                false,
+                "resolving_time_us",
+                t,
+                "no resolving time: only the non_paralyzable and paralyzable methods use it",
+            ),
             (false, None) => {}
         }
         if !c.problems.is_empty() {
@@ -98,7 +105,10 @@ impl CorrectDeadTime {
     /// # Errors
     /// A run-record value the method needs is missing, or the model is out of range.
     pub fn live_fraction(&self, run: &RunRecord) -> Result<LiveFraction, StageError> {
-        let missing = |key: &str| StageError::MissingRunValue { key: key.to_string(), needed_by: format!("correct_dead_time with method {:?}", self.method) };
+        let missing = |key: &str| StageError::MissingRunValue {
+            key: key.to_string(),
+            needed_by: format!("correct_dead_time with method {:?}", self.method),
+        };
         let measured = match self.method {
             DeadTimeMethod::ClockRatio => {
                 let live = run.live_time_s.ok_or_else(|| missing("live_time_s"))?;
@@ -116,9 +126,16 @@ impl CorrectDeadTime {
                 dead_time::count_ratio(accepted, raw)
             }
             DeadTimeMethod::NonParalyzable | DeadTimeMethod::Paralyzable => {
-                let rate = run.recorded_rate_per_s().ok_or_else(|| missing("recorded_rate_per_s (or triggers_accepted with real_time_s)"))?;
-                let model = if self.method == DeadTimeMethod::Paralyzable { dead_time::paralyzable } else { dead_time::non_paralyzable };
-                let (value, df_dtau) = model(rate, self.resolving_time_s).map_err(|source| StageError::Physics { context: format!("run {}", run.run), source })?;
+                let rate = run
+                    .recorded_rate_per_s()
+                    .ok_or_else(|| missing("recorded_rate_per_s (or triggers_accepted with real_time_s)"))?;
+                let model = if self.method == DeadTimeMethod::Paralyzable {
+                    dead_time::paralyzable
+                } else {
+                    dead_time::non_paralyzable
+                };
+                let (value, df_dtau) = model(rate, self.resolving_time_s)
+                    .map_err(|source| StageError::Physics { context: format!("run {}", run.run), source })?;
                 LiveFraction { value, err: (df_dtau * self.resolving_time_err_s).abs() }
             }
         };
@@ -145,8 +162,12 @@ impl Stage for CorrectDeadTime {
     fn check_run(&self, run: &RunRecord) -> Vec<Problem> {
         match self.live_fraction(run) {
             Ok(_) => Vec::new(),
-            Err(StageError::MissingRunValue { key, needed_by }) => vec![Problem::new(key, "missing", &format!("a value ({needed_by} reads it)"))],
-            Err(e) => vec![Problem::new("recorded_rate_per_s", run.recorded_rate_per_s().unwrap_or(f64::NAN), &e.to_string())],
+            Err(StageError::MissingRunValue { key, needed_by }) => {
+                vec![Problem::new(key, "missing", format!("a value ({needed_by} reads it)"))]
+            }
+            Err(e) => {
+                vec![Problem::new("recorded_rate_per_s", run.recorded_rate_per_s().unwrap_or(f64::NAN), e.to_string())]
+            }
         }
     }
 }

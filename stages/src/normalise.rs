@@ -9,6 +9,7 @@ use serde::Deserialize;
 
 use crate::physics::normalisation::{beam_particles, target_atoms_per_cm2};
 use crate::problem::Checks;
+use crate::setup::TargetConfig;
 use crate::table::with_f64_columns;
 use crate::{Problem, RunContext, RunRecord, Setup, Stage, StageError};
 
@@ -44,24 +45,27 @@ pub struct Normalise {
 }
 
 impl NormaliseConfig {
-    /// Check the settings and build the stage from the set-up's reaction and target.
+    /// Check the settings and build the stage from the set-up's reaction and target
+    /// (`setup` as in [`crate::StageConfig::build`]).
     ///
     /// # Errors
     /// Every problem of the settings, or a target without an areal density.
-    pub fn build(&self, setup: &Setup) -> Result<Normalise, Vec<Problem>> {
+    pub fn build(&self, setup: Option<&Setup>) -> Result<Normalise, Vec<Problem>> {
         let mut c = Checks::default();
         c.rel_err("charge_rel_err", self.charge_rel_err);
-        let target = &setup.target;
-        let density = target.areal_density_g_cm2();
-        c.require(density.is_some(), "mode", "absolute without target areal density", "a target with areal_density_ug_cm2 or areal_density_mg_cm2");
         if !c.problems.is_empty() {
             return Err(c.problems);
         }
+        // The target section's own check reports a missing areal density.
+        let target = setup.map(|s| &s.target);
+        let density = target.and_then(TargetConfig::areal_density_g_cm2).unwrap_or(f64::NAN);
         Ok(Normalise {
             charge_rel_err: self.charge_rel_err,
-            charge_state: setup.reaction.beam_charge_state,
-            target_atoms_per_cm2: target_atoms_per_cm2(density.unwrap_or(f64::NAN), target.molar_mass_g_mol, target.isotopic_fraction, target.tilt_deg.to_radians()),
-            target_atoms_rel_err: target.areal_density_rel_err,
+            charge_state: setup.map_or(1, |s| s.reaction.beam_charge_state),
+            target_atoms_per_cm2: target.map_or(f64::NAN, |t| {
+                target_atoms_per_cm2(density, t.molar_mass_g_mol, t.isotopic_fraction, t.tilt_deg.to_radians())
+            }),
+            target_atoms_rel_err: target.map_or(0.0, |t| t.areal_density_rel_err),
         })
     }
 }
@@ -77,7 +81,10 @@ impl Stage for Normalise {
         vec!["beam_particles", "beam_particles_rel_err", "target_atoms_per_cm2", "target_atoms_rel_err"]
     }
     fn run(&self, table: DataFrame, ctx: &RunContext<'_>) -> Result<DataFrame, StageError> {
-        let charge = ctx.run.charge_c().ok_or_else(|| StageError::MissingRunValue { key: "charge_c".into(), needed_by: "normalise with mode absolute".into() })?;
+        let charge = ctx.run.charge_c().ok_or_else(|| StageError::MissingRunValue {
+            key: "charge_c".into(),
+            needed_by: "normalise with mode absolute".into(),
+        })?;
         let n = table.height();
         with_f64_columns(
             table,
@@ -92,7 +99,11 @@ impl Stage for Normalise {
     fn check_run(&self, run: &RunRecord) -> Vec<Problem> {
         match run.charge_c() {
             Some(_) => Vec::new(),
-            None => vec![Problem::new("charge_c", "missing", "the integrated charge (normalise with mode absolute reads it)")],
+            None => vec![Problem::new(
+                "charge_c",
+                "missing",
+                "the integrated charge (normalise with mode absolute reads it)",
+            )],
         }
     }
 }

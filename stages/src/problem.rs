@@ -18,11 +18,7 @@ pub struct Problem {
 impl Problem {
     /// A problem at `key`: `found` is the offending value, `expected` what is accepted.
     pub fn new(key: impl Into<String>, found: impl fmt::Display, expected: impl Into<String>) -> Self {
-        Problem {
-            key: key.into(),
-            found: found.to_string(),
-            expected: expected.into(),
-        }
+        Problem { key: key.into(), found: found.to_string(), expected: expected.into() }
     }
 
     /// The same problem seen from a parent item: `prefix` goes in front of the key path.

@@ -32,14 +32,25 @@ pub enum StageConfig {
 }
 
 /// The `type:` names, in the order a reduction usually runs them.
-pub const STAGE_TYPES: [&str; 6] = ["subtract_background", "correct_dead_time", "apply_efficiency", "compute_solid_angle", "normalise", "compute_lab_cross_section"];
+pub const STAGE_TYPES: [&str; 6] = [
+    "subtract_background",
+    "correct_dead_time",
+    "apply_efficiency",
+    "compute_solid_angle",
+    "normalise",
+    "compute_lab_cross_section",
+];
 
 impl StageConfig {
     /// Check the settings against the set-up and build the stage.
     ///
+    /// `setup` is `None` when the config's set-up sections did not parse: the settings are
+    /// still checked so that every problem is reported at once, but the stage built then
+    /// must not run.
+    ///
     /// # Errors
     /// Every problem of the settings, keys relative to the stage entry.
-    pub fn build(&self, setup: &Setup) -> Result<Box<dyn Stage>, Vec<Problem>> {
+    pub fn build(&self, setup: Option<&Setup>) -> Result<Box<dyn Stage>, Vec<Problem>> {
         Ok(match self {
             StageConfig::SubtractBackground(c) => Box::new(c.build()?),
             StageConfig::CorrectDeadTime(c) => Box::new(c.build()?),

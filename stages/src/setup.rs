@@ -133,8 +133,15 @@ impl TargetConfig {
         match (self.areal_density_ug_cm2, self.areal_density_mg_cm2) {
             (Some(v), None) => c.positive("areal_density_ug_cm2", v),
             (None, Some(v)) => c.positive("areal_density_mg_cm2", v),
-            (None, None) => c.require(false, "areal_density_ug_cm2", "missing", "areal_density_ug_cm2 or areal_density_mg_cm2"),
-            (Some(_), Some(_)) => c.require(false, "areal_density_mg_cm2", "both areal_density_ug_cm2 and areal_density_mg_cm2", "only one of the two"),
+            (None, None) => {
+                c.require(false, "areal_density_ug_cm2", "missing", "areal_density_ug_cm2 or areal_density_mg_cm2")
+            }
+            (Some(_), Some(_)) => c.require(
+                false,
+                "areal_density_mg_cm2",
+                "both areal_density_ug_cm2 and areal_density_mg_cm2",
+                "only one of the two",
+            ),
         }
         c.rel_err("areal_density_rel_err", self.areal_density_rel_err);
         c.positive("molar_mass_g_mol", self.molar_mass_g_mol);
@@ -229,7 +236,12 @@ impl DetectorConfig {
     /// Every range problem of one detector.
     pub fn validate(&self) -> Vec<Problem> {
         let mut c = Checks::default();
-        c.require(self.theta_lab_deg > 0.0 && self.theta_lab_deg < 180.0, "theta_lab_deg", self.theta_lab_deg, "an angle in (0, 180) degrees");
+        c.require(
+            self.theta_lab_deg > 0.0 && self.theta_lab_deg < 180.0,
+            "theta_lab_deg",
+            self.theta_lab_deg,
+            "an angle in (0, 180) degrees",
+        );
         c.non_negative("theta_lab_err_deg", self.theta_lab_err_deg);
         c.non_negative("distance_err_mm", self.distance_err_mm);
         match &self.aperture {
@@ -251,7 +263,12 @@ impl DetectorConfig {
         let needs_distance = !matches!(self.aperture, ApertureConfig::Given { .. });
         match self.distance_mm {
             Some(d) => c.positive("distance_mm", d),
-            None => c.require(!needs_distance, "distance_mm", "missing", "the target-to-aperture distance in mm (needed for circle and rectangle apertures)"),
+            None => c.require(
+                !needs_distance,
+                "distance_mm",
+                "missing",
+                "the target-to-aperture distance in mm (needed for circle and rectangle apertures)",
+            ),
         }
         match &self.efficiency_table {
             None => {
@@ -270,9 +287,24 @@ impl EfficiencyTableConfig {
         let mut c = Checks::default();
         let n = self.energy_lab_mev.len();
         c.require(n >= 2, "energy_lab_mev", format!("{n} points"), "at least 2 points");
-        c.require(self.energy_lab_mev.windows(2).all(|w| w[0] < w[1]), "energy_lab_mev", format!("{:?}", self.energy_lab_mev), "strictly increasing energies");
-        c.require(self.efficiency.len() == n, "efficiency", format!("{} values", self.efficiency.len()), &format!("{n} values, one per energy"));
-        c.require(self.efficiency_err.is_empty() || self.efficiency_err.len() == n, "efficiency_err", format!("{} values", self.efficiency_err.len()), &format!("{n} values, one per energy, or none"));
+        c.require(
+            self.energy_lab_mev.windows(2).all(|w| w[0] < w[1]),
+            "energy_lab_mev",
+            format!("{:?}", self.energy_lab_mev),
+            "strictly increasing energies",
+        );
+        c.require(
+            self.efficiency.len() == n,
+            "efficiency",
+            format!("{} values", self.efficiency.len()),
+            &format!("{n} values, one per energy"),
+        );
+        c.require(
+            self.efficiency_err.is_empty() || self.efficiency_err.len() == n,
+            "efficiency_err",
+            format!("{} values", self.efficiency_err.len()),
+            &format!("{n} values, one per energy, or none"),
+        );
         for (i, e) in self.efficiency.iter().enumerate() {
             c.fraction(&format!("efficiency[{i}]"), *e);
         }
@@ -296,11 +328,10 @@ pub struct Setup {
 }
 
 impl Setup {
-    /// Assemble a set-up; returns every problem (ranges, duplicate detector ids) at once.
-    ///
-    /// # Errors
-    /// The list of problems, keys relative to the config's top level.
-    pub fn new(reaction: ReactionConfig, target: TargetConfig, detectors: Vec<DetectorConfig>) -> Result<Self, Vec<Problem>> {
+    /// Assemble a set-up and list every problem of it (ranges, duplicate detector ids),
+    /// keys relative to the config's top level. The set-up is returned even with problems,
+    /// so that the stages can still be built and checked; it must not be run then.
+    pub fn new(reaction: ReactionConfig, target: TargetConfig, detectors: Vec<DetectorConfig>) -> (Self, Vec<Problem>) {
         let mut c = Checks::default();
         c.nested("reaction", reaction.validate());
         c.nested("target", target.validate());
@@ -310,14 +341,15 @@ impl Setup {
             let key = format!("detectors[{i}]");
             c.nested(&key, d.validate());
             if let Some(first) = index.insert(d.id.0.clone(), i) {
-                c.require(false, &format!("{key}.id"), &d.id, &format!("an id not used before (detectors[{first}] has it)"));
+                c.require(
+                    false,
+                    &format!("{key}.id"),
+                    &d.id,
+                    &format!("an id not used before (detectors[{first}] has it)"),
+                );
             }
         }
-        if c.problems.is_empty() {
-            Ok(Setup { reaction, target, detectors, index })
-        } else {
-            Err(c.problems)
-        }
+        (Setup { reaction, target, detectors, index }, c.problems)
     }
 
     /// Position of a detector in config order.
@@ -421,14 +453,24 @@ impl RunRecord {
     /// Every range and consistency problem of the record.
     pub fn validate(&self) -> Vec<Problem> {
         let mut c = Checks::default();
-        c.require(!self.yields_file.trim().is_empty(), "yields_file", "an empty path", "the path of the run's yields table");
+        c.require(
+            !self.yields_file.trim().is_empty(),
+            "yields_file",
+            "an empty path",
+            "the path of the run's yields table",
+        );
         match self.charge() {
             Some(Charge::Coulomb(q)) => c.positive("charge_c", q),
             Some(Charge::Integrator { counts, scale_c_per_count }) => {
                 c.positive("integrator_counts", counts);
                 c.positive("integrator_scale_c_per_count", scale_c_per_count);
             }
-            None => c.require(false, "charge_c", "missing or mixed charge keys", "charge_c, or integrator_counts with integrator_scale_c_per_count"),
+            None => c.require(
+                false,
+                "charge_c",
+                "missing or mixed charge keys",
+                "charge_c, or integrator_counts with integrator_scale_c_per_count",
+            ),
         }
         if let Some(t) = self.real_time_s {
             c.positive("real_time_s", t);

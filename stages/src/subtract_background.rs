@@ -64,15 +64,20 @@ impl Stage for SubtractBackground {
     fn run(&self, table: DataFrame, _ctx: &RunContext<'_>) -> Result<DataFrame, StageError> {
         let gross = f64_values(&table, "counts_gross")?;
         let has = |name: &str| table.column(name).is_ok();
-        let background = if has("counts_background") { f64_values(&table, "counts_background")? } else { vec![0.0; gross.len()] };
+        let background =
+            if has("counts_background") { f64_values(&table, "counts_background")? } else { vec![0.0; gross.len()] };
         let background_err = if has("counts_background_err") {
             f64_values(&table, "counts_background_err")?
         } else if !has("counts_background") || self.poisson_background_if_no_err {
             background.iter().map(|b| b.max(0.0).sqrt()).collect()
         } else {
-            return Err(StageError::MissingColumn { column: "counts_background_err".into(), found: crate::table::column_list(&table) });
+            return Err(StageError::MissingColumn {
+                column: "counts_background_err".into(),
+                found: crate::table::column_list(&table),
+            });
         };
-        let (net, err): (Vec<f64>, Vec<f64>) = gross.iter().zip(&background).zip(&background_err).map(|((g, b), u)| net_counts(*g, *b, *u)).unzip();
+        let (net, err): (Vec<f64>, Vec<f64>) =
+            gross.iter().zip(&background).zip(&background_err).map(|((g, b), u)| net_counts(*g, *b, *u)).unzip();
         with_f64_columns(table, vec![("counts_net", net), ("counts_net_err", err)])
     }
 }

@@ -28,7 +28,12 @@ pub fn column<'a>(table: &'a DataFrame, name: &str) -> Result<&'a Column, StageE
 pub fn f64_values(table: &DataFrame, name: &str) -> Result<Vec<f64>, StageError> {
     let col = column(table, name)?;
     if !col.dtype().is_primitive_numeric() {
-        return Err(StageError::BadValue { row: 1, column: name.to_string(), value: format!("a column of type {}", col.dtype()), expected: "numbers".into() });
+        return Err(StageError::BadValue {
+            row: 1,
+            column: name.to_string(),
+            value: format!("a column of type {}", col.dtype()),
+            expected: "numbers".into(),
+        });
     }
     let cast = col.cast(&DataType::Float64)?;
     cast.f64()?
@@ -56,7 +61,12 @@ pub fn str_values(table: &DataFrame, name: &str) -> Result<Vec<String>, StageErr
         .iter()
         .enumerate()
         .map(|(i, v)| {
-            v.map(str::to_string).ok_or_else(|| StageError::BadValue { row: i + 1, column: name.to_string(), value: "an empty cell".into(), expected: "a name".into() })
+            v.map(str::to_string).ok_or_else(|| StageError::BadValue {
+                row: i + 1,
+                column: name.to_string(),
+                value: "an empty cell".into(),
+                expected: "a name".into(),
+            })
         })
         .collect()
 }
@@ -76,10 +86,19 @@ pub fn with_f64_columns(mut table: DataFrame, columns: Vec<(&str, Vec<f64>)>) ->
 ///
 /// # Errors
 /// [`StageError::UnknownDetector`] for an id the config does not list.
-pub fn row_detectors<'a>(table: &DataFrame, setup: &'a crate::Setup) -> Result<Vec<&'a crate::setup::DetectorConfig>, StageError> {
+pub fn row_detectors<'a>(
+    table: &DataFrame,
+    setup: &'a crate::Setup,
+) -> Result<Vec<&'a crate::setup::DetectorConfig>, StageError> {
     str_values(table, "detector")?
         .into_iter()
         .enumerate()
-        .map(|(i, id)| setup.detector(&id).ok_or_else(|| StageError::UnknownDetector { row: i + 1, detector: id, known: setup.detector_ids() }))
+        .map(|(i, id)| {
+            setup.detector(&id).ok_or_else(|| StageError::UnknownDetector {
+                row: i + 1,
+                detector: id,
+                known: setup.detector_ids(),
+            })
+        })
         .collect()
 }

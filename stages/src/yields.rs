@@ -79,7 +79,12 @@ pub fn prepare(table: &DataFrame, setup: &Setup, run: &str) -> Result<Prepared, 
                     let strictly = *name == "energy_lab_mev";
                     for (i, x) in v.iter().enumerate() {
                         if *x < 0.0 || (strictly && *x <= 0.0) {
-                            errors.push(StageError::BadValue { row: i + 1, column: (*name).to_string(), value: x.to_string(), expected: if strictly { "an energy > 0 MeV" } else { "a count >= 0" }.into() });
+                            errors.push(StageError::BadValue {
+                                row: i + 1,
+                                column: (*name).to_string(),
+                                value: x.to_string(),
+                                expected: if strictly { "an energy > 0 MeV" } else { "a count >= 0" }.into(),
+                            });
                         }
                     }
                     numeric.insert(name, v);
@@ -92,21 +97,40 @@ pub fn prepare(table: &DataFrame, setup: &Setup, run: &str) -> Result<Prepared, 
     let mut seen = HashMap::new();
     for (i, (det, state)) in detectors.iter().zip(&states).enumerate() {
         match setup.detector_index(det) {
-            None => errors.push(StageError::UnknownDetector { row: i + 1, detector: det.clone(), known: setup.detector_ids() }),
+            None => errors.push(StageError::UnknownDetector {
+                row: i + 1,
+                detector: det.clone(),
+                known: setup.detector_ids(),
+            }),
             Some(d) => order.push((d, state.clone(), i)),
         }
         if state.trim().is_empty() {
-            errors.push(StageError::BadValue { row: i + 1, column: "state".into(), value: "an empty name".into(), expected: "a state name such as elastic".into() });
+            errors.push(StageError::BadValue {
+                row: i + 1,
+                column: "state".into(),
+                value: "an empty name".into(),
+                expected: "a state name such as elastic".into(),
+            });
         }
         if let Some(first) = seen.insert((det.clone(), state.clone()), i) {
-            errors.push(StageError::BadValue { row: i + 1, column: "state".into(), value: format!("detector {det}, state {state} again (first at data row {})", first + 1), expected: "one row per detector and state".into() });
+            errors.push(StageError::BadValue {
+                row: i + 1,
+                column: "state".into(),
+                value: format!("detector {det}, state {state} again (first at data row {})", first + 1),
+                expected: "one row per detector and state".into(),
+            });
         }
     }
     if !errors.is_empty() {
         let n = errors.len();
         errors.truncate(MAX_LISTED);
         if n > MAX_LISTED {
-            errors.push(StageError::BadValue { row: 0, column: "(all)".into(), value: format!("{} more problems", n - MAX_LISTED), expected: "a clean table".into() });
+            errors.push(StageError::BadValue {
+                row: 0,
+                column: "(all)".into(),
+                value: format!("{} more problems", n - MAX_LISTED),
+                expected: "a clean table".into(),
+            });
         }
         return Err(errors);
     }
@@ -129,6 +153,7 @@ pub fn prepare(table: &DataFrame, setup: &Setup, run: &str) -> Result<Prepared, 
     }
     let table_out = DataFrame::new_infer_height(columns).map_err(|e| vec![StageError::Table(e)])?;
     let known: Vec<&str> = REQUIRED_COLUMNS.iter().chain(&OPTIONAL_COLUMNS).copied().collect();
-    let ignored_columns = table.get_column_names().iter().map(|c| c.to_string()).filter(|c| !known.contains(&c.as_str())).collect();
+    let ignored_columns =
+        table.get_column_names().iter().map(|c| c.to_string()).filter(|c| !known.contains(&c.as_str())).collect();
     Ok(Prepared { table: table_out, ignored_columns })
 }

@@ -12,6 +12,12 @@ use super::constants::{MB_PER_CM2, SR_PER_MSR};
 ///
 /// Returns the cross section per net count, in mb/sr, so that the caller can scale both the
 /// value and its statistical error by the same factor.
-pub fn lab_mb_sr_per_count(efficiency: f64, live_fraction: f64, beam_particles: f64, target_atoms_per_cm2: f64, solid_angle_msr: f64) -> f64 {
+pub fn lab_mb_sr_per_count(
+    efficiency: f64,
+    live_fraction: f64,
+    beam_particles: f64,
+    target_atoms_per_cm2: f64,
+    solid_angle_msr: f64,
+) -> f64 {
     MB_PER_CM2 / (efficiency * live_fraction * beam_particles * target_atoms_per_cm2 * solid_angle_msr * SR_PER_MSR)
 }

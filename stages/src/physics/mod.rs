@@ -33,7 +33,9 @@ pub enum PhysicsError {
         resolving_time_us: f64,
     },
     /// An interpolation table does not cover the point asked for.
-    #[error("{quantity} = {value} lies outside the table range [{min}, {max}]; extend the table (no extrapolation is done)")]
+    #[error(
+        "{quantity} = {value} lies outside the table range [{min}, {max}]; extend the table (no extrapolation is done)"
+    )]
     OutsideTable {
         /// Name of the abscissa with its unit.
         quantity: String,

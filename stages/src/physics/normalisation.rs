@@ -18,7 +18,12 @@ pub fn beam_particles(charge_c: f64, charge_state: u32) -> f64 {
 /// α: angle between the foil normal and the beam in rad (the path is ρx / cos α).
 /// Holds for a uniform foil thin enough that the beam energy loss is negligible
 /// (common practice).
-pub fn target_atoms_per_cm2(areal_density_g_cm2: f64, molar_mass_g_mol: f64, isotopic_fraction: f64, tilt_rad: f64) -> f64 {
+pub fn target_atoms_per_cm2(
+    areal_density_g_cm2: f64,
+    molar_mass_g_mol: f64,
+    isotopic_fraction: f64,
+    tilt_rad: f64,
+) -> f64 {
     areal_density_g_cm2 * AVOGADRO_PER_MOL / molar_mass_g_mol * isotopic_fraction / tilt_rad.cos()
 }
 
@@ -40,6 +45,10 @@ mod tests {
         // 12 g/cm² of carbon-12 (M = 12 g/mol) holds N_A atoms per cm² (definition of the mole).
         assert_relative_eq!(target_atoms_per_cm2(12.0, 12.0, 1.0, 0.0), 6.022_140_76e23, max_relative = 1e-15);
         // At 60° tilt the path doubles (cos 60° = 1/2).
-        assert_relative_eq!(target_atoms_per_cm2(12.0, 12.0, 0.5, 60f64.to_radians()), 6.022_140_76e23, max_relative = 1e-14);
+        assert_relative_eq!(
+            target_atoms_per_cm2(12.0, 12.0, 0.5, 60f64.to_radians()),
+            6.022_140_76e23,
+            max_relative = 1e-14
+        );
     }
 }

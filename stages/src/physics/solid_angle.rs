@@ -77,11 +77,31 @@ mod tests {
     fn derivatives_match_central_differences() {
         let h = 1e-6;
         let c = circle(100.0, 5.0);
-        assert_relative_eq!(c.d_distance, (circle(100.0 + h, 5.0).sr - circle(100.0 - h, 5.0).sr) / (2.0 * h), max_relative = 1e-6);
-        assert_relative_eq!(c.d_size_1, (circle(100.0, 5.0 + h).sr - circle(100.0, 5.0 - h).sr) / (2.0 * h), max_relative = 1e-6);
+        assert_relative_eq!(
+            c.d_distance,
+            (circle(100.0 + h, 5.0).sr - circle(100.0 - h, 5.0).sr) / (2.0 * h),
+            max_relative = 1e-6
+        );
+        assert_relative_eq!(
+            c.d_size_1,
+            (circle(100.0, 5.0 + h).sr - circle(100.0, 5.0 - h).sr) / (2.0 * h),
+            max_relative = 1e-6
+        );
         let r = rectangle(50.0, 10.0, 3.0);
-        assert_relative_eq!(r.d_distance, (rectangle(50.0 + h, 10.0, 3.0).sr - rectangle(50.0 - h, 10.0, 3.0).sr) / (2.0 * h), max_relative = 1e-6);
-        assert_relative_eq!(r.d_size_1, (rectangle(50.0, 10.0 + h, 3.0).sr - rectangle(50.0, 10.0 - h, 3.0).sr) / (2.0 * h), max_relative = 1e-6);
-        assert_relative_eq!(r.d_size_2, (rectangle(50.0, 10.0, 3.0 + h).sr - rectangle(50.0, 10.0, 3.0 - h).sr) / (2.0 * h), max_relative = 1e-6);
+        assert_relative_eq!(
+            r.d_distance,
+            (rectangle(50.0 + h, 10.0, 3.0).sr - rectangle(50.0 - h, 10.0, 3.0).sr) / (2.0 * h),
+            max_relative = 1e-6
+        );
+        assert_relative_eq!(
+            r.d_size_1,
+            (rectangle(50.0, 10.0 + h, 3.0).sr - rectangle(50.0, 10.0 - h, 3.0).sr) / (2.0 * h),
+            max_relative = 1e-6
+        );
+        assert_relative_eq!(
+            r.d_size_2,
+            (rectangle(50.0, 10.0, 3.0 + h).sr - rectangle(50.0, 10.0, 3.0 - h).sr) / (2.0 * h),
+            max_relative = 1e-6
+        );
     }
 }

@@ -1,0 +1,87 @@
+//! Shared helpers: run the `xsflow` binary, copy the demo into a scratch folder, read
+//! fixture CSV files.
+
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+
+/// The repository root (the workspace folder).
+pub fn repo_root() -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR")).parent().expect("the pipeline crate sits in the workspace root").to_path_buf()
+}
+
+/// The demo experiment folder.
+pub fn demo_dir() -> PathBuf {
+    repo_root().join("sample-runs/alpha-ni58")
+}
+
+/// Run `xsflow` with `args` in `dir`, with a fixed record time so outputs are reproducible.
+pub fn xsflow(dir: &Path, args: &[&str]) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_xsflow"))
+        .args(args)
+        .current_dir(dir)
+        .env("SOURCE_DATE_EPOCH", "1764633600")
+        .env_remove("RUST_LOG")
+        .output()
+        .expect("the xsflow binary runs")
+}
+
+/// Everything the command printed, stdout then stderr.
+pub fn text(out: &Output) -> String {
+    format!("{}{}", String::from_utf8_lossy(&out.stdout), String::from_utf8_lossy(&out.stderr))
+}
+
+/// A scratch copy of the demo: `experiment.yaml` and `runs/` (no outputs).
+pub fn demo_copy() -> tempfile::TempDir {
+    let tmp = tempfile::tempdir().expect("a scratch folder");
+    let src = demo_dir();
+    std::fs::copy(src.join("experiment.yaml"), tmp.path().join("experiment.yaml")).expect("copy config");
+    std::fs::create_dir(tmp.path().join("runs")).expect("runs folder");
+    for entry in std::fs::read_dir(src.join("runs")).expect("demo runs") {
+        let path = entry.expect("entry").path();
+        std::fs::copy(&path, tmp.path().join("runs").join(path.file_name().expect("file name")))
+            .expect("copy run file");
+    }
+    tmp
+}
+
+/// Replace the first occurrence of `from` by `to` in a file; panics if absent, so a test
+/// cannot silently stop planting its mistake.
+pub fn edit(path: &Path, from: &str, to: &str) {
+    let text = std::fs::read_to_string(path).expect("readable");
+    assert!(text.contains(from), "{} does not contain {from:?}", path.display());
+    std::fs::write(path, text.replacen(from, to, 1)).expect("writable");
+}
+
+/// Rows of a fixture CSV (lines starting with `#` skipped), as maps from column name to text.
+pub fn fixture_rows(name: &str) -> Vec<std::collections::HashMap<String, String>> {
+    let path = repo_root().join("tests/reference/fixtures").join(name);
+    let text = std::fs::read_to_string(&path).unwrap_or_else(|e| panic!("{}: {e}", path.display()));
+    let mut lines = text.lines().filter(|l| !l.starts_with('#'));
+    let header: Vec<String> = lines.next().expect("a header line").split(',').map(str::to_string).collect();
+    lines.map(|l| header.iter().cloned().zip(l.split(',').map(str::to_string)).collect()).collect()
+}
+
+/// A numeric field of a fixture row.
+pub fn num(row: &std::collections::HashMap<String, String>, key: &str) -> f64 {
+    row.get(key)
+        .unwrap_or_else(|| panic!("fixture has no column {key}"))
+        .parse()
+        .unwrap_or_else(|e| panic!("{key}: {e}"))
+}
+
+/// Files below `dir`, recursively (empty if it does not exist).
+pub fn files_below(dir: &Path) -> Vec<PathBuf> {
+    let mut out = Vec::new();
+    if let Ok(entries) = std::fs::read_dir(dir) {
+        for e in entries.flatten() {
+            let p = e.path();
+            if p.is_dir() {
+                out.extend(files_below(&p));
+            } else {
+                out.push(p);
+            }
+        }
+    }
+    out.sort();
+    out
+}

@@ -1,0 +1,127 @@
+//! The demo reduced end to end and compared with its committed expected output.
+
+use std::path::Path;
+
+use crate::common::{demo_copy, demo_dir, files_below, text, xsflow};
+
+/// Compare two CSV texts: same header, same text fields, numbers within `rel` relative.
+fn assert_csv_close(got: &str, want: &str, rel: f64, what: &str) {
+    let (g, w): (Vec<&str>, Vec<&str>) = (got.lines().collect(), want.lines().collect());
+    assert_eq!(g.first(), w.first(), "{what}: header");
+    assert_eq!(g.len(), w.len(), "{what}: row count");
+    for (i, (gl, wl)) in g.iter().zip(&w).enumerate().skip(1) {
+        for (j, (a, b)) in gl.split(',').zip(wl.split(',')).enumerate() {
+            match (a.parse::<f64>(), b.parse::<f64>()) {
+                (Ok(x), Ok(y)) => assert!(
+                    (x - y).abs() <= rel * y.abs().max(f64::MIN_POSITIVE),
+                    "{what}: line {}, field {}: {x} vs {y}",
+                    i + 1,
+                    j + 1
+                ),
+                _ => assert_eq!(a, b, "{what}: line {}, field {}", i + 1, j + 1),
+            }
+        }
+    }
+}
+
+fn reduce_demo(dir: &Path) {
+    let out = xsflow(dir, &["reduce", "experiment.yaml", "--out", "out"]);
+    assert_eq!(out.status.code(), Some(0), "{}", text(&out));
+}
+
+#[test]
+fn demo_reduces_to_its_expected_output() {
+    // Tolerance 1e-12 relative: the expected files were written by this program; the margin
+    // allows a different libm on another machine, nothing more.
+    let tmp = demo_copy();
+    reduce_demo(tmp.path());
+    for run in ["0101", "0102", "0103"] {
+        let got = std::fs::read_to_string(tmp.path().join("out").join(run).join("cross_sections.csv"))
+            .expect("output written");
+        let want = std::fs::read_to_string(demo_dir().join("expected").join(run).join("cross_sections.csv"))
+            .expect("expected output committed");
+        assert_csv_close(&got, &want, 1e-12, run);
+    }
+}
+
+#[test]
+fn identical_inputs_give_identical_bytes() {
+    let (a, b) = (demo_copy(), demo_copy());
+    reduce_demo(a.path());
+    reduce_demo(b.path());
+    let files_a = files_below(&a.path().join("out"));
+    assert_eq!(files_a.len(), 9, "three files for each of three runs: {files_a:?}");
+    for fa in files_a {
+        let rel = fa.strip_prefix(a.path()).expect("below the scratch folder");
+        let fb = b.path().join(rel);
+        assert!(
+            std::fs::read(&fa).expect("a") == std::fs::read(&fb).expect("b"),
+            "{} differs between two reductions",
+            rel.display()
+        );
+    }
+}
+
+#[test]
+fn parquet_holds_the_same_table_and_its_provenance() {
+    let tmp = demo_copy();
+    reduce_demo(tmp.path());
+    let dir = tmp.path().join("out/0102");
+    let mut table = xsflow::tables::read_table(&dir.join("cross_sections.parquet")).expect("parquet readable");
+    let csv = xsflow::tables::csv_bytes(&mut table).expect("csv");
+    assert_csv_close(
+        &String::from_utf8_lossy(&csv),
+        &std::fs::read_to_string(dir.join("cross_sections.csv")).expect("csv"),
+        0.0,
+        "parquet vs csv",
+    );
+
+    let meta = xsflow::tables::parquet_metadata(&dir.join("cross_sections.parquet")).expect("metadata");
+    let record = &meta.iter().find(|(k, _)| k == "xsflow.provenance").expect("provenance key").1;
+    let prov: serde_json::Value = serde_json::from_str(record).expect("provenance is JSON");
+    let beside: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("provenance.json")).expect("json")).expect("json");
+    assert_eq!(prov, beside);
+    assert_eq!(prov["run"], "0102");
+    assert_eq!(prov["version"], env!("CARGO_PKG_VERSION"));
+    assert_eq!(prov["created_utc"], "2025-12-02T00:00:00Z", "SOURCE_DATE_EPOCH is honoured");
+    let inputs = prov["inputs"].as_array().expect("inputs");
+    assert_eq!(inputs[0]["path"], "runs/run0102.run.yaml");
+    assert_eq!(inputs[1]["path"], "runs/run0102.yields.csv");
+    let yields = std::fs::read(tmp.path().join("runs/run0102.yields.csv")).expect("yields");
+    assert_eq!(inputs[1]["sha256"], xsflow::provenance::sha256_hex(&yields));
+    assert_eq!(
+        prov["config_sha256"],
+        xsflow::provenance::sha256_hex(&std::fs::read(tmp.path().join("experiment.yaml")).expect("config"))
+    );
+}
+
+#[test]
+fn run_filter_reduces_only_the_named_run() {
+    let tmp = demo_copy();
+    let out = xsflow(tmp.path(), &["reduce", "experiment.yaml", "--out", "out", "--run", "0102"]);
+    assert_eq!(out.status.code(), Some(0), "{}", text(&out));
+    let runs: Vec<String> = std::fs::read_dir(tmp.path().join("out"))
+        .expect("out")
+        .flatten()
+        .map(|e| e.file_name().to_string_lossy().into_owned())
+        .collect();
+    assert_eq!(runs, ["0102"]);
+}
+
+#[test]
+fn rows_follow_detector_config_order_and_no_temporary_files_remain() {
+    let tmp = demo_copy();
+    reduce_demo(tmp.path());
+    let csv = std::fs::read_to_string(tmp.path().join("out/0101/cross_sections.csv")).expect("csv");
+    let detectors: Vec<&str> = csv.lines().skip(1).map(|l| l.split(',').nth(1).expect("detector")).collect();
+    let mut sorted = detectors.clone();
+    sorted.sort_unstable();
+    assert_eq!(detectors, sorted, "D01..D12 are in config order, which here is sorted");
+    assert_eq!(detectors.len(), 24);
+    assert!(files_below(&tmp.path().join("out")).iter().all(|p| !p
+        .file_name()
+        .expect("name")
+        .to_string_lossy()
+        .starts_with('.')));
+}
