@@ -64,7 +64,7 @@ fn negative_thickness_is_refused() {
     assert_config_error(
         "areal_density_ug_cm2: 210.0",
         "areal_density_ug_cm2: -210.0",
-        &["experiment.yaml:17:3 target.areal_density_ug_cm2: found -210, expected a finite number > 0"],
+        &["experiment.yaml:21:3 target.areal_density_ug_cm2: found -210, expected a finite number > 0"],
     );
 }
 
@@ -82,7 +82,7 @@ fn live_time_longer_than_real_time_is_refused() {
 fn zero_charge_is_refused() {
     assert_run_error(
         "run0101.run.yaml",
-        "charge_c: 2.0000e-06",
+        "charge_c: 2.0000e-05",
         "charge_c: 0",
         &["run0101.run.yaml:4:1 charge_c: found 0, expected a finite number > 0"],
     );
@@ -114,7 +114,7 @@ fn yields_table_missing_a_column_lists_the_columns_found() {
         "run0101.yields.csv",
         "detector,state,counts_gross,",
         "detector,state,counts,",
-        &["run0101.yields.csv", "column `counts_gross` is missing; columns found: detector, state, counts, counts_background, counts_background_err, energy_lab_mev"],
+        &["run0101.yields.csv", "column `counts_gross` is missing; columns found: detector, state, counts, counts_background, counts_background_err, peak_energy_lab_mev"],
     );
 }
 
@@ -122,7 +122,7 @@ fn yields_table_missing_a_column_lists_the_columns_found() {
 fn nan_counts_are_refused_with_their_line() {
     assert_run_error(
         "run0101.yields.csv",
-        "D01,2+_1.454,1217,",
+        "D01,2+_1.454,16079,",
         "D01,2+_1.454,NaN,",
         &["run0101.yields.csv:3:1 data row 2, column `counts_gross`: found NaN, expected a finite number"],
     );
@@ -132,9 +132,9 @@ fn nan_counts_are_refused_with_their_line() {
 fn negative_counts_are_refused_with_their_line() {
     assert_run_error(
         "run0101.yields.csv",
-        "D02,elastic,5518,",
-        "D02,elastic,-5518,",
-        &["run0101.yields.csv:4:1 data row 3, column `counts_gross`: found -5518, expected a count >= 0"],
+        "D02,elastic,58596,",
+        "D02,elastic,-58596,",
+        &["run0101.yields.csv:4:1 data row 3, column `counts_gross`: found -58596, expected a count >= 0"],
     );
 }
 
@@ -142,7 +142,7 @@ fn negative_counts_are_refused_with_their_line() {
 fn empty_count_cell_is_refused() {
     assert_run_error(
         "run0101.yields.csv",
-        "D02,elastic,5518,",
+        "D02,elastic,58596,",
         "D02,elastic,,",
         &["run0101.yields.csv:4:1 data row 3, column `counts_gross`: found an empty cell, expected a finite number"],
     );

@@ -84,10 +84,10 @@ fn three_planted_mistakes_are_all_reported_with_key_paths() {
     let out = xsflow(tmp.path(), &["check", "experiment.yaml"]);
     let msg = text(&out);
     assert_eq!(out.status.code(), Some(2), "{msg}");
-    assert!(msg.contains("experiment.yaml:24:"), "line of the radius: {msg}");
+    assert!(msg.contains("experiment.yaml:28:"), "line of the radius: {msg}");
     assert!(msg.contains("detectors[0].aperture.radius_mm: found -2.5, expected a finite number > 0"), "{msg}");
     assert!(
-        msg.contains("experiment.yaml:18:3 target.areal_density_rel_eror: unknown field `areal_density_rel_eror`"),
+        msg.contains("experiment.yaml:22:3 target.areal_density_rel_eror: unknown field `areal_density_rel_eror`"),
         "{msg}"
     );
     assert!(msg.contains("did you mean `areal_density_rel_err`?"), "{msg}");
@@ -108,17 +108,27 @@ fn a_stage_that_needs_a_later_column_is_reported_before_any_run() {
     let out = xsflow(tmp.path(), &["reduce", "experiment.yaml", "--out", "out"]);
     let msg = text(&out);
     assert_eq!(out.status.code(), Some(2), "{msg}");
-    assert!(msg.contains("stages[4].type: found compute_lab_cross_section, expected column `counts_net` added by an earlier stage: move `subtract_background` before `compute_lab_cross_section`"), "{msg}");
+    assert!(msg.contains("stages[5].type: found compute_lab_cross_section, expected column `counts_net` added by an earlier stage: move `subtract_background` before `compute_lab_cross_section`"), "{msg}");
     assert!(!tmp.path().join("out").exists());
 }
 
 #[test]
 fn cross_section_schema_lists_the_output_columns_in_order() {
+    // The demo uses every stage; its columns are the schema's, in the schema's order, less
+    // only optional columns of other modes (monitor normalisation).
     let schema: serde_json::Value =
         serde_json::from_str(&xsflow::schema::schema_json("cross_sections").expect("known")).expect("JSON");
     let listed: Vec<&str> = schema["properties"].as_object().expect("properties").keys().map(String::as_str).collect();
+    let required: Vec<&str> =
+        schema["required"].as_array().expect("required").iter().filter_map(|v| v.as_str()).collect();
     let csv =
         std::fs::read_to_string(demo_dir().join("expected/0101/cross_sections.csv")).expect("expected demo output");
     let header: Vec<&str> = csv.lines().next().expect("header").split(',').collect();
-    assert_eq!(header, listed);
+    let in_order: Vec<&str> = listed.iter().copied().filter(|c| header.contains(c)).collect();
+    assert_eq!(header, in_order, "every output column is in the schema, in order");
+    for c in required {
+        assert!(header.contains(&c), "required column {c} missing from the demo output");
+    }
+    let absent: Vec<&str> = listed.iter().copied().filter(|c| !header.contains(c)).collect();
+    assert_eq!(absent, ["luminosity_monitor_over_absolute"]);
 }

@@ -132,8 +132,8 @@ fn detector(
 }
 
 fn setup(charge_state: u32, target: TargetConfig, det: DetectorConfig) -> Setup {
-    let reaction =
-        ReactionConfig { beam: "4He".into(), target: "58Ni".into(), energy_mev: 24.0, beam_charge_state: charge_state };
+    let yaml = format!("{{ beam: 4He, target: 58Ni, energy_mev: 24.0, beam_charge_state: {charge_state} }}");
+    let reaction: ReactionConfig = serde_yaml::from_str(&yaml).expect("reaction parses");
     let (setup, problems) = Setup::new(reaction, target, vec![det]);
     assert!(problems.is_empty(), "{problems:?}");
     setup

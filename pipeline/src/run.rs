@@ -4,7 +4,7 @@
 use std::path::{Path, PathBuf};
 
 use polars::prelude::DataFrame;
-use stages::{RunContext, StageError};
+use stages::{Origin, RunContext, StageError};
 use tracing::{debug, info, info_span, warn};
 
 use crate::error::{Diagnostic, RunFailure};
@@ -63,10 +63,10 @@ pub fn reduce_run(plan: &Plan, run: &LoadedRun) -> Result<Reduced, Vec<Diagnosti
             }
         }
         table = s.stage.run(table, &ctx).map_err(|e| {
-            let file = if matches!(e, StageError::MissingRunValue { .. } | StageError::Physics { .. }) {
-                &run.record_path
-            } else {
-                yields
+            let file = match e.origin() {
+                Origin::Table => yields,
+                Origin::RunRecord => &run.record_path,
+                Origin::Config => &plan.config_path,
             };
             vec![table_diagnostic(file, &key, &e)]
         })?;

@@ -2,9 +2,10 @@
 
 Everything here is invented for the demo: the laboratory ("Lakeside Tandem Hall" does not
 exist), the runs, the detector set-up and the counts. The counts are drawn (fixed seed) from
-an invented smooth angular distribution, loosely shaped like elastic alpha scattering: a
-Rutherford-like 1/sin^4(theta/2) fall-off times a made-up diffraction-like damping. It is
-NOT a physics model and must not be compared with measured data.
+an invented angular distribution: the point-Coulomb (Rutherford) cross section, taken to the
+lab with non-relativistic elastic kinematics, times a made-up smooth fall-off with a weak
+diffraction-like wiggle. It is NOT a physics model and must not be compared with measured
+data.
 
 Run:  python3 sample-runs/alpha-ni58/generate.py      (needs numpy)
 It rewrites runs/*.run.yaml and runs/*.yields.csv beside this script.
@@ -40,9 +41,9 @@ STATES = [("elastic", 0.0, 1.0), ("2+_1.454", 1.454, 0.04)]
 
 RUNS = [
     # run, charge C, live s, real s, pulser sent, pulser recorded, triggers raw, accepted
-    ("0101", 2.0e-6, 3421.0, 3600.0, 36000, 34210, 1_250_000, 1_187_900),
-    ("0102", 3.5e-6, 5050.5, 5400.0, 54000, 50505, 2_100_000, 1_963_500),
-    ("0103", 1.2e-6, 1765.0, 1800.0, 18000, 17650, 560_000, 549_100),
+    ("0101", 2.0e-5, 3421.0, 3600.0, 36000, 34210, 1_250_000, 1_187_900),
+    ("0102", 3.5e-5, 5050.5, 5400.0, 54000, 50505, 2_100_000, 1_963_500),
+    ("0103", 1.2e-5, 1765.0, 1800.0, 18000, 17650, 560_000, 549_100),
 ]
 
 AREAL_DENSITY_G_CM2 = 210e-6
@@ -52,12 +53,23 @@ BEAM_CHARGE_STATE = 2
 BEAM_ENERGY_MEV = 24.0
 
 
-def invented_dsdo_mb_sr(theta_deg, state_scale):
-    """Invented lab distribution in mb/sr: Rutherford-like fall-off with a made-up damping."""
-    half = math.radians(theta_deg) / 2.0
-    coulomb = 1.296 * (2 * 28 / BEAM_ENERGY_MEV) ** 2 / math.sin(half) ** 4  # mb/sr, shape only
-    damping = 1.0 / (1.0 + math.exp((theta_deg - 45.0) / 9.0)) + 0.02 * (1 + math.cos(math.radians(6 * theta_deg)))
-    return state_scale * coulomb * damping
+M_ALPHA_U, M_NI58_U = 4.0026, 57.9353  # rounded atomic masses, enough for invented data
+E2_MEV_FM = 1.439964  # e^2/(4 pi eps0) = hbar c alpha (CODATA 2018)
+
+
+def invented_dsdo_mb_sr(theta_lab_deg, state_scale):
+    """Invented lab cross section in mb/sr: Rutherford in the CM times a made-up fall-off."""
+    x = M_ALPHA_U / M_NI58_U
+    th = math.radians(theta_lab_deg)
+    th_cm = th + math.asin(x * math.sin(th))  # non-relativistic elastic kinematics
+    e_cm = BEAM_ENERGY_MEV / (1 + x)
+    rutherford_cm = 10 * (2 * 28 * E2_MEV_FM / (4 * e_cm)) ** 2 / math.sin(th_cm / 2) ** 4
+    jacobian = abs(1 + x * math.cos(th_cm)) / (1 + x * x + 2 * x * math.cos(th_cm)) ** 1.5  # dOmega_lab/dOmega_cm
+    deg = math.degrees(th_cm)
+    falloff = 1.0 / (1.0 + math.exp((deg - 48.0) / 7.0)) + 0.03 * (1 + 0.7 * math.cos(math.radians(7 * deg))) * math.exp(-deg / 90)
+    if state_scale < 1.0:
+        falloff = state_scale * (0.3 + 1.0 / (1.0 + math.exp((deg - 60.0) / 10.0)))
+    return rutherford_cm * falloff / jacobian
 
 
 def solid_angle_sr(d, r):
@@ -73,15 +85,15 @@ def main():
     for run, charge, live, real, p_sent, p_rec, t_raw, t_acc in RUNS:
         n_beam = charge / (BEAM_CHARGE_STATE * E_CHARGE_C)
         live_fraction = live / real
-        lines = ["detector,state,counts_gross,counts_background,counts_background_err,energy_lab_mev"]
+        lines = ["detector,state,counts_gross,counts_background,counts_background_err,peak_energy_lab_mev"]
         for det, theta, dist, _, eff in DETECTORS:
             omega = solid_angle_sr(dist, RADIUS_MM)
             for state, ex_mev, scale in STATES:
                 expected = invented_dsdo_mb_sr(theta, scale) * 1e-27 * n_beam * n_target * omega * eff * live_fraction
-                background = 0.002 * expected + 15.0
+                background = 0.002 * expected + 3.0
                 gross = int(rng.poisson(expected + background))
                 bg = float(rng.poisson(background))
-                # Kinematic-like energy, invented: falls with angle and excitation.
+                # Measured peak energy, invented: falls with angle and excitation.
                 energy = BEAM_ENERGY_MEV * (1 - 0.03 * (1 - math.cos(math.radians(theta)))) - ex_mev
                 lines.append(f"{det},{state},{gross},{bg:.1f},{math.sqrt(bg):.4f},{energy:.4f}")
         (runs_dir / f"run{run}.yields.csv").write_text("\n".join(lines) + "\n")

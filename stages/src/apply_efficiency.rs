@@ -64,8 +64,9 @@ impl Stage for ApplyEfficiency {
                 Some(t) => {
                     let context = || format!("data row {}, detector {} efficiency_table", row + 1, det.id);
                     let at = |ys: &[f64]| {
-                        interpolate::linear(&t.energy_lab_mev, ys, energy, "energy_lab_mev")
-                            .map_err(|source| StageError::Physics { context: context(), source })
+                        interpolate::linear(&t.energy_lab_mev, ys, energy, "energy_lab_mev").map_err(|source| {
+                            StageError::Physics { context: context(), source, origin: crate::Origin::Config }
+                        })
                     };
                     value.push(at(&t.efficiency)?);
                     err.push(if t.efficiency_err.is_empty() { 0.0 } else { at(&t.efficiency_err)? });

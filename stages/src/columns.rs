@@ -25,8 +25,8 @@ pub struct CrossSectionRow {
     pub counts_background: Option<f64>,
     /// Standard uncertainty of the background (present when the yields table has it).
     pub counts_background_err: Option<f64>,
-    /// Lab energy of the detected particle in MeV (present when the yields table has it).
-    pub energy_lab_mev: Option<f64>,
+    /// Measured peak energy in MeV (present when the yields table has it).
+    pub peak_energy_lab_mev: Option<f64>,
     /// Net counts, gross minus background.
     pub counts_net: f64,
     /// Standard uncertainty of the net counts (Poisson on gross, background error).
@@ -35,6 +35,16 @@ pub struct CrossSectionRow {
     pub live_fraction: f64,
     /// Standard uncertainty of the live fraction.
     pub live_fraction_err: f64,
+    /// CM angle of the ejectile in degrees.
+    pub theta_cm_deg: f64,
+    /// Standard uncertainty of the CM angle in degrees (from the lab angle's).
+    pub theta_cm_err_deg: f64,
+    /// Jacobian dΩ_lab/dΩ_cm of the detected particle.
+    pub domega_lab_per_domega_cm: f64,
+    /// Expected lab energy of the detected particle in this state, MeV.
+    pub energy_lab_mev: f64,
+    /// Kinematic branch: 1, or 2 for the lower-energy solution of a double-valued angle.
+    pub branch: i32,
     /// Detection efficiency.
     pub efficiency: f64,
     /// Standard uncertainty of the efficiency.
@@ -43,20 +53,35 @@ pub struct CrossSectionRow {
     pub solid_angle_msr: f64,
     /// Standard uncertainty of the solid angle in msr.
     pub solid_angle_err_msr: f64,
-    /// Beam particles, Q/(q e).
-    pub beam_particles: f64,
+    /// Integrated luminosity (beam particles × target atoms per cm²) in 1/cm².
+    pub luminosity_per_cm2: f64,
+    /// Common normalisation relative standard uncertainty (charge, target and live
+    /// fraction; or the monitor's), the same for every row of a run.
+    pub norm_rel_err: f64,
+    /// Beam particles, Q/(q e) (absolute normalisation).
+    pub beam_particles: Option<f64>,
     /// Relative standard uncertainty of the beam particles.
-    pub beam_particles_rel_err: f64,
-    /// Target atoms per cm² along the beam.
-    pub target_atoms_per_cm2: f64,
+    pub beam_particles_rel_err: Option<f64>,
+    /// Target atoms per cm² along the beam (absolute normalisation).
+    pub target_atoms_per_cm2: Option<f64>,
     /// Relative standard uncertainty of the target atoms per cm².
-    pub target_atoms_rel_err: f64,
+    pub target_atoms_rel_err: Option<f64>,
+    /// Monitor luminosity over absolute luminosity (monitor mode with `compare_absolute`).
+    pub luminosity_monitor_over_absolute: Option<f64>,
     /// Lab differential cross section dσ/dΩ_lab in mb/sr.
     pub dsdo_lab_mb_sr: f64,
     /// Statistical standard uncertainty of dσ/dΩ_lab in mb/sr.
     pub stat_err_lab_mb_sr: f64,
     /// Point-to-point systematic standard uncertainty of dσ/dΩ_lab in mb/sr.
     pub sys_err_lab_mb_sr: f64,
-    /// Common normalisation relative standard uncertainty (charge, target, live fraction).
-    pub norm_rel_err: f64,
+    /// CM differential cross section dσ/dΩ_cm in mb/sr.
+    pub dsdo_cm_mb_sr: f64,
+    /// Statistical standard uncertainty of dσ/dΩ_cm in mb/sr.
+    pub stat_err_mb_sr: f64,
+    /// Point-to-point systematic standard uncertainty of dσ/dΩ_cm in mb/sr.
+    pub sys_err_mb_sr: f64,
+    /// Rutherford dσ/dΩ_cm at the same CM angle, mb/sr (elastic states; empty otherwise).
+    pub dsdo_rutherford_cm_mb_sr: Option<f64>,
+    /// dσ/dΩ_cm over Rutherford (elastic states; empty otherwise).
+    pub ratio_rutherford: Option<f64>,
 }

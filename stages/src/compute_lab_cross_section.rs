@@ -4,9 +4,9 @@
 //! - `stat_err_lab_mb_sr`: counting statistics of the peak and its background;
 //! - `sys_err_lab_mb_sr`: point-to-point systematic (efficiency, solid angle), which differs
 //!   between detectors;
-//! - `norm_rel_err`: the common normalisation (charge, target, live fraction), the same
-//!   relative error for every point of a run, kept apart so that fits can treat it as one
-//!   scale factor.
+//! - the common normalisation (charge, target, live fraction, or the monitor), the same
+//!   relative error for every point of a run, is `norm_rel_err`, added by `normalise` and
+//!   kept apart so that fits can treat it as one scale factor.
 
 use polars::prelude::DataFrame;
 use schemars::JsonSchema;
@@ -36,7 +36,8 @@ impl ComputeLabCrossSectionConfig {
     }
 }
 
-/// Inputs of one point's lab cross section, each with its standard uncertainty.
+/// Inputs of one point's lab cross section, each with its standard uncertainty where it
+/// enters the point-to-point errors.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct LabPoint {
     /// Net counts Y and u(Y).
@@ -45,15 +46,13 @@ pub struct LabPoint {
     pub efficiency: (f64, f64),
     /// Solid angle in msr and its uncertainty.
     pub solid_angle_msr: (f64, f64),
-    /// Live fraction and its uncertainty.
-    pub live_fraction: (f64, f64),
-    /// Beam particles and their relative uncertainty.
-    pub beam_particles: (f64, f64),
-    /// Target atoms per cm² and their relative uncertainty.
-    pub target_atoms_per_cm2: (f64, f64),
+    /// Live fraction (its error is in the normalisation).
+    pub live_fraction: f64,
+    /// Integrated luminosity in 1/cm² (its error is in the normalisation).
+    pub luminosity_per_cm2: f64,
 }
 
-/// A lab cross section with its three uncertainty parts.
+/// A lab cross section with its statistical and point-to-point uncertainty.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct LabCrossSection {
     /// dσ/dΩ_lab in mb/sr.
@@ -62,40 +61,26 @@ pub struct LabCrossSection {
     pub stat_err_mb_sr: f64,
     /// Point-to-point systematic standard uncertainty in mb/sr.
     pub sys_err_mb_sr: f64,
-    /// Common normalisation relative standard uncertainty.
-    pub norm_rel_err: f64,
 }
 
-/// dσ/dΩ_lab = Y / (ε f_live N_beam n_t ΔΩ) (see [`lab_mb_sr_per_count`]) and its
-/// uncertainty. For a product of powers of independent inputs the relative uncertainties add
-/// in quadrature (JCGM 100:2008, section 5.1.6), grouped as
-///     u_stat = k u(Y),   u_sys = |σ| sqrt((u(ε)/ε)² + (u(ΔΩ)/ΔΩ)²),
-///     u_norm/σ = sqrt((u(f)/f)² + u_rel(N_beam)² + u_rel(n_t)²),   k = σ / Y
+/// dσ/dΩ_lab = Y / (ε f_live L ΔΩ) (see [`lab_mb_sr_per_count`]) and its uncertainty. For a
+/// product of powers of independent inputs the relative uncertainties add in quadrature
+/// (JCGM 100:2008, section 5.1.6), grouped as
+///     u_stat = k u(Y),   u_sys = |σ| sqrt((u(ε)/ε)² + (u(ΔΩ)/ΔΩ)²),   k = σ / Y
 /// The statistical part is k·u(Y) rather than |σ|·u(Y)/Y, so that a peak with zero net
 /// counts keeps its honest error.
 pub fn lab_cross_section(p: &LabPoint) -> LabCrossSection {
-    let k = lab_mb_sr_per_count(
-        p.efficiency.0,
-        p.live_fraction.0,
-        p.beam_particles.0,
-        p.target_atoms_per_cm2.0,
-        p.solid_angle_msr.0,
-    );
+    let k = lab_mb_sr_per_count(p.efficiency.0, p.live_fraction, p.luminosity_per_cm2, p.solid_angle_msr.0);
     let dsdo = k * p.counts_net.0;
     LabCrossSection {
         dsdo_mb_sr: dsdo,
         stat_err_mb_sr: k * p.counts_net.1,
         sys_err_mb_sr: dsdo.abs()
             * quadrature(&[p.efficiency.1 / p.efficiency.0, p.solid_angle_msr.1 / p.solid_angle_msr.0]),
-        norm_rel_err: quadrature(&[
-            p.live_fraction.1 / p.live_fraction.0,
-            p.beam_particles.1,
-            p.target_atoms_per_cm2.1,
-        ]),
     }
 }
 
-const INPUTS: [&str; 12] = [
+const INPUTS: [&str; 8] = [
     "counts_net",
     "counts_net_err",
     "efficiency",
@@ -103,11 +88,7 @@ const INPUTS: [&str; 12] = [
     "solid_angle_msr",
     "solid_angle_err_msr",
     "live_fraction",
-    "live_fraction_err",
-    "beam_particles",
-    "beam_particles_rel_err",
-    "target_atoms_per_cm2",
-    "target_atoms_rel_err",
+    "luminosity_per_cm2",
 ];
 
 impl Stage for ComputeLabCrossSection {
@@ -118,7 +99,7 @@ impl Stage for ComputeLabCrossSection {
         INPUTS.to_vec()
     }
     fn adds(&self) -> Vec<&'static str> {
-        vec!["dsdo_lab_mb_sr", "stat_err_lab_mb_sr", "sys_err_lab_mb_sr", "norm_rel_err"]
+        vec!["dsdo_lab_mb_sr", "stat_err_lab_mb_sr", "sys_err_lab_mb_sr"]
     }
     fn run(&self, table: DataFrame, _ctx: &RunContext<'_>) -> Result<DataFrame, StageError> {
         let cols = INPUTS.iter().map(|name| f64_values(&table, name)).collect::<Result<Vec<_>, _>>()?;
@@ -129,9 +110,8 @@ impl Stage for ComputeLabCrossSection {
                     counts_net: pair(0, r),
                     efficiency: pair(2, r),
                     solid_angle_msr: pair(4, r),
-                    live_fraction: pair(6, r),
-                    beam_particles: pair(8, r),
-                    target_atoms_per_cm2: pair(10, r),
+                    live_fraction: cols[6][r],
+                    luminosity_per_cm2: cols[7][r],
                 })
             })
             .collect();
@@ -141,7 +121,6 @@ impl Stage for ComputeLabCrossSection {
                 ("dsdo_lab_mb_sr", points.iter().map(|p| p.dsdo_mb_sr).collect()),
                 ("stat_err_lab_mb_sr", points.iter().map(|p| p.stat_err_mb_sr).collect()),
                 ("sys_err_lab_mb_sr", points.iter().map(|p| p.sys_err_mb_sr).collect()),
-                ("norm_rel_err", points.iter().map(|p| p.norm_rel_err).collect()),
             ],
         )
     }

@@ -134,8 +134,11 @@ impl CorrectDeadTime {
                 } else {
                     dead_time::non_paralyzable
                 };
-                let (value, df_dtau) = model(rate, self.resolving_time_s)
-                    .map_err(|source| StageError::Physics { context: format!("run {}", run.run), source })?;
+                let (value, df_dtau) = model(rate, self.resolving_time_s).map_err(|source| StageError::Physics {
+                    context: format!("run {}", run.run),
+                    source,
+                    origin: crate::Origin::RunRecord,
+                })?;
                 LiveFraction { value, err: (df_dtau * self.resolving_time_err_s).abs() }
             }
         };

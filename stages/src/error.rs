@@ -3,6 +3,28 @@
 use crate::physics::PhysicsError;
 use polars::prelude::PolarsError;
 
+/// Which input a problem comes from, so that the message names the right file.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Origin {
+    /// The run's yields table.
+    Table,
+    /// The run record.
+    RunRecord,
+    /// The experiment config.
+    Config,
+}
+
+impl StageError {
+    /// The input that holds the value to fix.
+    pub fn origin(&self) -> Origin {
+        match self {
+            StageError::MissingRunValue { .. } => Origin::RunRecord,
+            StageError::Physics { origin, .. } => *origin,
+            _ => Origin::Table,
+        }
+    }
+}
+
 /// Why a stage could not finish a run. Every variant names what is needed to find and fix
 /// the problem: the column, the data row (1-based), the value.
 #[derive(Debug, thiserror::Error)]
@@ -52,6 +74,8 @@ pub enum StageError {
         context: String,
         /// What went wrong.
         source: PhysicsError,
+        /// Which input holds the value to fix.
+        origin: Origin,
     },
     /// The table library failed.
     #[error("table operation failed: {0}")]

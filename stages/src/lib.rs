@@ -9,6 +9,7 @@
 
 pub mod apply_efficiency;
 pub mod columns;
+pub mod compute_kinematics;
 pub mod compute_lab_cross_section;
 pub mod compute_solid_angle;
 pub mod correct_dead_time;
@@ -20,9 +21,10 @@ pub mod registry;
 pub mod setup;
 pub mod subtract_background;
 pub mod table;
+pub mod transform_to_cm;
 pub mod yields;
 
-pub use error::StageError;
+pub use error::{Origin, StageError};
 pub use polars;
 pub use problem::{join_key as problem_key, Problem};
 pub use registry::StageConfig;

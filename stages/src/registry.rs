@@ -6,11 +6,13 @@ use schemars::JsonSchema;
 use serde::Deserialize;
 
 use crate::apply_efficiency::ApplyEfficiencyConfig;
+use crate::compute_kinematics::ComputeKinematicsConfig;
 use crate::compute_lab_cross_section::ComputeLabCrossSectionConfig;
 use crate::compute_solid_angle::ComputeSolidAngleConfig;
 use crate::correct_dead_time::CorrectDeadTimeConfig;
 use crate::normalise::NormaliseConfig;
 use crate::subtract_background::SubtractBackgroundConfig;
+use crate::transform_to_cm::TransformToCmConfig;
 use crate::{Problem, Setup, Stage};
 
 /// One entry of the config's `stages:` list; `type:` names the stage.
@@ -21,6 +23,8 @@ pub enum StageConfig {
     SubtractBackground(SubtractBackgroundConfig),
     /// Live fraction of the acquisition.
     CorrectDeadTime(CorrectDeadTimeConfig),
+    /// CM angle, Jacobian and expected energy per detector and state.
+    ComputeKinematics(ComputeKinematicsConfig),
     /// Detection efficiency per detector.
     ApplyEfficiency(ApplyEfficiencyConfig),
     /// Solid angle per detector from its aperture.
@@ -29,6 +33,8 @@ pub enum StageConfig {
     Normalise(NormaliseConfig),
     /// Absolute lab differential cross section with its uncertainty parts.
     ComputeLabCrossSection(ComputeLabCrossSectionConfig),
+    /// Cross section in the CM frame and the ratio to Rutherford.
+    TransformToCm(TransformToCmConfig),
 }
 
 /// The `type:` names, in the order a reduction usually runs them.
@@ -54,10 +60,12 @@ impl StageConfig {
         Ok(match self {
             StageConfig::SubtractBackground(c) => Box::new(c.build()?),
             StageConfig::CorrectDeadTime(c) => Box::new(c.build()?),
+            StageConfig::ComputeKinematics(c) => Box::new(c.build(setup)?),
             StageConfig::ApplyEfficiency(c) => Box::new(c.build(setup)?),
             StageConfig::ComputeSolidAngle(c) => Box::new(c.build()?),
             StageConfig::Normalise(c) => Box::new(c.build(setup)?),
             StageConfig::ComputeLabCrossSection(c) => Box::new(c.build()?),
+            StageConfig::TransformToCm(c) => Box::new(c.build(setup)?),
         })
     }
 }

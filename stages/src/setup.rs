@@ -8,6 +8,10 @@ use std::collections::HashMap;
 use schemars::{json_schema, JsonSchema, Schema, SchemaGenerator};
 use serde::{Deserialize, Deserializer};
 
+use std::collections::BTreeMap;
+
+use crate::physics::kinematics::{Channel, Detect, KinematicsError, Masses};
+use crate::physics::nuclide::{self, nuclear_mass_mev, Nuclide};
 use crate::problem::Checks;
 use crate::Problem;
 
@@ -62,7 +66,42 @@ fn one() -> f64 {
     1.0
 }
 
-/// The nuclear reaction: beam, target nucleus and beam energy.
+/// Which outgoing particle the detectors see.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Deserialize, JsonSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum DetectConfig {
+    /// The ejectile (for elastic scattering, the scattered beam particle).
+    #[default]
+    Ejectile,
+    /// The residual (recoil) nucleus.
+    Recoil,
+}
+
+impl From<DetectConfig> for Detect {
+    fn from(d: DetectConfig) -> Self {
+        match d {
+            DetectConfig::Ejectile => Detect::Ejectile,
+            DetectConfig::Recoil => Detect::Recoil,
+        }
+    }
+}
+
+/// A state of the residual nucleus whose peak is counted.
+#[derive(Debug, Clone, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct StateConfig {
+    /// State name as it appears in the yields tables (`elastic`, `2+_1.454`).
+    pub name: String,
+    /// Excitation energy of the residual in MeV; default 0 (ground state), >= 0.
+    #[serde(default)]
+    pub excitation_mev: f64,
+}
+
+fn elastic_only() -> Vec<StateConfig> {
+    vec![StateConfig { name: "elastic".into(), excitation_mev: 0.0 }]
+}
+
+/// The nuclear reaction: beam, target nucleus, beam energy, and what is detected.
 #[derive(Debug, Clone, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ReactionConfig {
@@ -73,19 +112,192 @@ pub struct ReactionConfig {
     /// Beam kinetic energy in the lab at the target centre, in MeV; > 0.
     pub energy_mev: f64,
     /// Charge state q of the beam ions at the charge collector (the integrated charge is
-    /// q·e per ion); a whole number >= 1.
-    pub beam_charge_state: u32,
+    /// q·e per ion); a whole number >= 1; needed by absolute normalisation.
+    #[serde(default)]
+    pub beam_charge_state: Option<u32>,
+    /// Outgoing light particle; default the beam particle (elastic and inelastic
+    /// scattering). The residual nucleus follows from charge and mass number.
+    #[serde(default)]
+    pub ejectile: Option<String>,
+    /// Which outgoing particle the detectors see: `ejectile` (default) or `recoil`.
+    #[serde(default)]
+    pub detect: DetectConfig,
+    /// The states whose peaks are counted, each with its excitation energy; default one
+    /// state `elastic` at 0 MeV. Names are unique.
+    #[serde(default = "elastic_only")]
+    pub states: Vec<StateConfig>,
+    /// Atomic masses in u that replace the embedded AME2020 values, by nuclide name
+    /// (`{ 58Ni: 57.9353424 }`); default none.
+    #[serde(default)]
+    pub atomic_masses_u: BTreeMap<String, f64>,
+}
+
+/// A particle of the reaction with its nuclear mass.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Particle {
+    /// Name as in the table (`4He`).
+    pub name: String,
+    /// Charge number.
+    pub z: u32,
+    /// Mass number.
+    pub a: u32,
+    /// Nuclear mass in MeV (ground state).
+    pub mass_mev: f64,
+}
+
+/// The reaction with its particles and one kinematic channel per state.
+#[derive(Debug, Clone)]
+pub struct ResolvedReaction {
+    /// Beam particle.
+    pub beam: Particle,
+    /// Target nucleus.
+    pub target: Particle,
+    /// Ejectile.
+    pub ejectile: Particle,
+    /// Residual nucleus.
+    pub recoil: Particle,
+    /// What the detectors see.
+    pub detect: Detect,
+    /// One channel per state, in the order of `states`.
+    pub channels: Vec<(StateConfig, Channel)>,
+}
+
+impl ResolvedReaction {
+    /// The channel of a state by name.
+    pub fn channel(&self, state: &str) -> Option<&Channel> {
+        self.channels.iter().find(|(s, _)| s.name == state).map(|(_, c)| c)
+    }
+
+    /// The state names, comma separated, for messages.
+    pub fn state_names(&self) -> String {
+        self.channels.iter().map(|(s, _)| s.name.as_str()).collect::<Vec<_>>().join(", ")
+    }
+
+    /// Whether a state is elastic scattering (ejectile = beam, residual in its ground state).
+    pub fn is_elastic(&self, state: &str) -> bool {
+        self.ejectile == self.beam && self.channels.iter().any(|(s, _)| s.name == state && s.excitation_mev == 0.0)
+    }
+
+    /// The four ground-state masses.
+    pub fn masses(&self) -> Masses {
+        Masses {
+            beam_mev: self.beam.mass_mev,
+            target_mev: self.target.mass_mev,
+            ejectile_mev: self.ejectile.mass_mev,
+            recoil_mev: self.recoil.mass_mev,
+        }
+    }
 }
 
 impl ReactionConfig {
-    /// Every range problem of the reaction section.
-    pub fn validate(&self) -> Vec<Problem> {
+    /// Look up the particles (with the mass overrides) and build each state's channel.
+    ///
+    /// # Errors
+    /// Every problem: unknown nuclides (with suggestions), a residual that charge and mass
+    /// number do not allow, bad overrides, duplicate states, closed channels.
+    pub fn resolve(&self) -> Result<ResolvedReaction, Vec<Problem>> {
         let mut c = Checks::default();
-        c.require(!self.beam.trim().is_empty(), "beam", "an empty name", "a nuclide such as 4He");
-        c.require(!self.target.trim().is_empty(), "target", "an empty name", "a nuclide such as 58Ni");
         c.positive("energy_mev", self.energy_mev);
-        c.require(self.beam_charge_state >= 1, "beam_charge_state", self.beam_charge_state, "a whole number >= 1");
-        c.problems
+        if let Some(q) = self.beam_charge_state {
+            c.require(q >= 1, "beam_charge_state", q, "a whole number >= 1");
+        }
+        let mut overrides = HashMap::new();
+        for (name, mass) in &self.atomic_masses_u {
+            let key = format!("atomic_masses_u.{name}");
+            match nuclide::parse(name) {
+                Ok(n) => {
+                    c.positive(&key, *mass);
+                    overrides.insert((n.z, n.a), *mass);
+                }
+                Err(e) => c.require(false, &key, name, &format!("a nuclide name ({e})")),
+            }
+        }
+        let particle = |n: &Nuclide| Particle {
+            name: n.name(),
+            z: n.z,
+            a: n.a,
+            mass_mev: nuclear_mass_mev(n.z, overrides.get(&(n.z, n.a)).copied().unwrap_or(n.atomic_mass_u)),
+        };
+        let mut lookup = |key: &str, name: &str| match nuclide::parse(name) {
+            Ok(n) => Some(particle(n)),
+            Err(e) => {
+                c.require(false, key, name, &format!("a nuclide in the AME2020 table: {e}"));
+                None
+            }
+        };
+        let beam = lookup("beam", &self.beam);
+        let target = lookup("target", &self.target);
+        let ejectile = lookup("ejectile", self.ejectile.as_deref().unwrap_or(&self.beam));
+        let mut names = std::collections::HashSet::new();
+        for (i, st) in self.states.iter().enumerate() {
+            c.require(
+                !st.name.trim().is_empty(),
+                &format!("states[{i}].name"),
+                "an empty name",
+                "a state name such as elastic",
+            );
+            c.require(
+                names.insert(st.name.as_str()),
+                &format!("states[{i}].name"),
+                &st.name,
+                "a name not used by another state",
+            );
+            c.non_negative(&format!("states[{i}].excitation_mev"), st.excitation_mev);
+        }
+        c.require(!self.states.is_empty(), "states", "an empty list", "at least one state");
+        let (Some(beam), Some(target), Some(ejectile)) = (beam, target, ejectile) else {
+            return Err(c.problems);
+        };
+        let (z, a) = ((beam.z + target.z).checked_sub(ejectile.z), (beam.a + target.a).checked_sub(ejectile.a));
+        let recoil = match (z, a) {
+            (Some(z), Some(a)) if a > 0 => nuclide::by_za(z, a).map(particle),
+            _ => None,
+        };
+        let Some(recoil) = recoil else {
+            c.require(
+                false,
+                "ejectile",
+                &ejectile.name,
+                &format!(
+                    "an ejectile that leaves a residual nucleus of {} + {} in the mass table",
+                    beam.name, target.name
+                ),
+            );
+            return Err(c.problems);
+        };
+        if !c.problems.is_empty() {
+            return Err(c.problems);
+        }
+        let masses = Masses {
+            beam_mev: beam.mass_mev,
+            target_mev: target.mass_mev,
+            ejectile_mev: ejectile.mass_mev,
+            recoil_mev: recoil.mass_mev,
+        };
+        let mut channels = Vec::new();
+        for (i, st) in self.states.iter().enumerate() {
+            match Channel::new(masses, self.energy_mev, st.excitation_mev) {
+                Ok(ch) => channels.push((st.clone(), ch)),
+                Err(e @ KinematicsError::BelowThreshold { .. }) => {
+                    c.require(false, "energy_mev", self.energy_mev, &format!("an open channel: {e}"))
+                }
+                Err(e) => c.require(
+                    false,
+                    &format!("states[{i}].excitation_mev"),
+                    st.excitation_mev,
+                    &format!("an excitation the beam can reach: {e}"),
+                ),
+            }
+        }
+        if !c.problems.is_empty() {
+            return Err(c.problems);
+        }
+        Ok(ResolvedReaction { beam, target, ejectile, recoil, detect: self.detect.into(), channels })
+    }
+
+    /// Every problem of the reaction section.
+    pub fn validate(&self) -> Vec<Problem> {
+        self.resolve().err().unwrap_or_default()
     }
 }
 
@@ -324,6 +536,8 @@ pub struct Setup {
     pub target: TargetConfig,
     /// The detectors, in config order (which is the output row order).
     pub detectors: Vec<DetectorConfig>,
+    /// Particles, masses and channels; `None` when the reaction section has problems.
+    pub resolved: Option<ResolvedReaction>,
     index: HashMap<String, usize>,
 }
 
@@ -333,7 +547,7 @@ impl Setup {
     /// so that the stages can still be built and checked; it must not be run then.
     pub fn new(reaction: ReactionConfig, target: TargetConfig, detectors: Vec<DetectorConfig>) -> (Self, Vec<Problem>) {
         let mut c = Checks::default();
-        c.nested("reaction", reaction.validate());
+        let resolved = reaction.resolve().map_err(|p| c.nested("reaction", p)).ok();
         c.nested("target", target.validate());
         c.require(!detectors.is_empty(), "detectors", "an empty list", "at least one detector");
         let mut index = HashMap::new();
@@ -349,7 +563,7 @@ impl Setup {
                 );
             }
         }
-        (Setup { reaction, target, detectors, index }, c.problems)
+        (Setup { reaction, target, detectors, resolved, index }, c.problems)
     }
 
     /// Position of a detector in config order.

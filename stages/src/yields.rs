@@ -29,15 +29,18 @@ pub struct YieldsRow {
     /// Standard uncertainty of the background counts, >= 0. Optional, default sqrt of the
     /// background (Poisson).
     pub counts_background_err: Option<f64>,
-    /// Lab energy of the detected particle in MeV, > 0 (needed by energy-dependent
-    /// efficiencies). Optional.
-    pub energy_lab_mev: Option<f64>,
+    /// Measured lab energy of the peak in MeV, > 0; picks the kinematic solution where a
+    /// lab angle is double valued. Optional.
+    pub peak_energy_lab_mev: Option<f64>,
+    /// Kinematic branch of the peak where the lab angle is double valued: 1 (higher
+    /// energy) or 2. Optional; takes precedence over `peak_energy_lab_mev`.
+    pub branch: Option<i32>,
 }
 
 /// Columns every yields table must have.
 pub const REQUIRED_COLUMNS: [&str; 3] = ["detector", "state", "counts_gross"];
 /// Columns a yields table may have.
-pub const OPTIONAL_COLUMNS: [&str; 3] = ["counts_background", "counts_background_err", "energy_lab_mev"];
+pub const OPTIONAL_COLUMNS: [&str; 4] = ["counts_background", "counts_background_err", "peak_energy_lab_mev", "branch"];
 /// Columns [`prepare`] adds in front.
 pub const ADDED_COLUMNS: [&str; 3] = ["run", "theta_lab_deg", "theta_lab_err_deg"];
 
@@ -148,7 +151,12 @@ pub fn prepare(table: &DataFrame, setup: &Setup, run: &str) -> Result<Prepared, 
     ];
     for name in ["counts_gross"].iter().chain(&OPTIONAL_COLUMNS) {
         if let Some(v) = numeric.get(name) {
-            columns.push(Column::new((*name).into(), pick(v)));
+            if *name == "branch" {
+                // Checked above to be 1 or 2.
+                columns.push(Column::new((*name).into(), pick(v).iter().map(|b| *b as i32).collect::<Vec<_>>()));
+            } else {
+                columns.push(Column::new((*name).into(), pick(v)));
+            }
         }
     }
     let table_out = DataFrame::new_infer_height(columns).map_err(|e| vec![StageError::Table(e)])?;

@@ -12,3 +12,18 @@ pub const MB_PER_CM2: f64 = 1e27;
 
 /// Steradian per millisteradian.
 pub const SR_PER_MSR: f64 = 1e-3;
+
+/// Atomic mass constant (unified atomic mass unit) m_u c² in MeV (CODATA 2018).
+pub const ATOMIC_MASS_UNIT_MEV: f64 = 931.494_102_42;
+
+/// Electron mass m_e c² in MeV (CODATA 2018).
+pub const ELECTRON_MASS_MEV: f64 = 0.510_998_950_00;
+
+/// Reduced Planck constant times the speed of light, ħc, in MeV fm (CODATA 2018).
+pub const HBAR_C_MEV_FM: f64 = 197.326_980_4;
+
+/// Fine-structure constant α (CODATA 2018: 1/α = 137.035999084).
+pub const FINE_STRUCTURE: f64 = 1.0 / 137.035_999_084;
+
+/// Millibarn per fm²: 1 fm² = 1e-26 cm² = 10 mb.
+pub const MB_PER_FM2: f64 = 10.0;

@@ -5,7 +5,11 @@ pub mod constants;
 pub mod cross_section;
 pub mod dead_time;
 pub mod interpolate;
+pub mod kinematics;
+pub mod luminosity;
 pub mod normalisation;
+pub mod nuclide;
+pub mod rutherford;
 pub mod solid_angle;
 pub mod uncertainty;
 
