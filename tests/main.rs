@@ -5,5 +5,6 @@ mod bad_input;
 mod cli;
 mod common;
 mod config;
+mod kinematics;
 mod reference;
 mod regression;

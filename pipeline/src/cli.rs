@@ -28,6 +28,26 @@ pub enum Format {
     Json,
 }
 
+/// How a table is printed.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum TableFormat {
+    /// Aligned columns for a terminal.
+    Table,
+    /// A JSON array, one object per row.
+    Json,
+    /// CSV with a header line.
+    Csv,
+}
+
+/// The detected particle, on the command line.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum DetectArg {
+    /// The ejectile (the scattered beam particle for elastic and inelastic scattering).
+    Ejectile,
+    /// The residual nucleus.
+    Recoil,
+}
+
 /// The verbs.
 #[derive(Debug, Subcommand)]
 pub enum Command {
@@ -55,6 +75,38 @@ pub enum Command {
         /// Output format of the summary.
         #[arg(long, value_enum, default_value_t = Format::Text)]
         format: Format,
+    },
+    /// Two-body kinematics a + A -> b + B at lab angles of the detected particle: CM angle,
+    /// lab energy, Jacobian, both solutions where the angle is double valued, and the
+    /// partner's angle and energy. Angles past the kinematic limit give no row and a warning.
+    Kinematics {
+        /// Beam particle: 4He, He4, he-4, alpha, p, d, t, n, 16O, ...
+        #[arg(long)]
+        beam: String,
+        /// Target nucleus, e.g. 58Ni.
+        #[arg(long)]
+        target: String,
+        /// Beam kinetic energy in MeV.
+        #[arg(long = "energy-mev", allow_negative_numbers = true)]
+        energy_mev: f64,
+        /// Lab angles in degrees: A:B:STEP or a comma list.
+        #[arg(long)]
+        angles: String,
+        /// Excitation energy of the residual nucleus in MeV.
+        #[arg(long = "excitation-mev", default_value_t = 0.0, allow_negative_numbers = true)]
+        excitation_mev: f64,
+        /// Which particle the detector sees.
+        #[arg(long, value_enum, default_value_t = DetectArg::Ejectile)]
+        detect: DetectArg,
+        /// Outgoing light particle; default the beam (elastic and inelastic scattering).
+        #[arg(long)]
+        ejectile: Option<String>,
+        /// Galilean kinematics instead of relativistic, for comparison.
+        #[arg(long)]
+        non_relativistic: bool,
+        /// Output format.
+        #[arg(long, value_enum, default_value_t = TableFormat::Table)]
+        format: TableFormat,
     },
     /// Print a JSON Schema: the config (default), a run record, or a table.
     Schema {

@@ -5,9 +5,12 @@ use std::path::Path;
 use std::process::ExitCode;
 
 use clap::Parser;
+use stages::physics::kinematics::Mode;
+use stages::setup::DetectConfig;
 use tracing_subscriber::EnvFilter;
-use xsflow::cli::{Cli, Command, Format};
+use xsflow::cli::{Cli, Command, DetectArg, Format, TableFormat};
 use xsflow::error::{report, Diagnostic, RunFailure};
+use xsflow::kinematics;
 use xsflow::plan::plan;
 use xsflow::run::{check_runs, reduce_all};
 
@@ -24,6 +27,31 @@ fn main() -> ExitCode {
     ExitCode::from(match cli.command {
         Command::Check { config, format } => check(&config, format),
         Command::Reduce { config, out, runs, format } => reduce(&config, out.as_deref(), &runs, format),
+        Command::Kinematics {
+            beam,
+            target,
+            energy_mev,
+            angles,
+            excitation_mev,
+            detect,
+            ejectile,
+            non_relativistic,
+            format,
+        } => {
+            let request = kinematics::Request {
+                beam: &beam,
+                target: &target,
+                ejectile: ejectile.as_deref(),
+                energy_mev,
+                excitation_mev,
+                detect: match detect {
+                    DetectArg::Ejectile => DetectConfig::Ejectile,
+                    DetectArg::Recoil => DetectConfig::Recoil,
+                },
+                non_relativistic,
+            };
+            kinematics_table(&request, &angles, format)
+        }
         Command::Schema { name } => match xsflow::schema::schema_json(&name) {
             Some(s) => {
                 print!("{s}");
@@ -110,4 +138,27 @@ fn reduce(config: &Path, out: Option<&Path>, runs: &[String], format: Format) ->
     }
     eprintln!("{} run(s) reduced, {} failed; outputs in {}", summary.ok, summary.failed, out_dir.display());
     u8::from(summary.failed > 0)
+}
+
+fn kinematics_table(request: &kinematics::Request<'_>, angles: &str, format: TableFormat) -> u8 {
+    let angles = match kinematics::parse_angles(angles) {
+        Ok(a) => a,
+        Err(msg) => {
+            eprintln!("{msg}");
+            return 2;
+        }
+    };
+    let reaction = match kinematics::resolve(request) {
+        Ok(r) => r,
+        Err(lines) => {
+            for l in lines {
+                eprintln!("{l}");
+            }
+            return 2;
+        }
+    };
+    let mode = if request.non_relativistic { Mode::NonRelativistic } else { Mode::Relativistic };
+    let rows = kinematics::rows(&reaction, &angles, mode);
+    print!("{}", kinematics::render(&reaction, &rows, format, mode));
+    0
 }

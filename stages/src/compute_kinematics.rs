@@ -90,7 +90,8 @@ impl Stage for ComputeKinematics {
         let optional =
             |name: &str| if table.column(name).is_ok() { f64_values(&table, name).map(Some) } else { Ok(None) };
         // The yields check accepted only 1 and 2.
-        let branches: Option<Vec<u8>> = optional("branch")?.map(|v| v.iter().map(|b| if *b > 1.5 { 2 } else { 1 }).collect());
+        let branches: Option<Vec<u8>> =
+            optional("branch")?.map(|v| v.iter().map(|b| if *b > 1.5 { 2 } else { 1 }).collect());
         let peaks = optional("peak_energy_lab_mev")?;
         let n = table.height();
         let (mut theta_cm, mut theta_cm_err, mut jacobian, mut energy, mut branch) = (

@@ -3,7 +3,7 @@
 //!
 //! [`prepare`] checks a yields table read from a run file and turns it into the first stage
 //! table: columns cast to their types, the run id and the detector's lab angle added, rows in
-//! a stable order (detector in config order, then state by name).
+//! a stable order (detector in config order, then state by name, then branch).
 
 use std::collections::HashMap;
 
@@ -96,6 +96,8 @@ pub fn prepare(table: &DataFrame, setup: &Setup, run: &str) -> Result<Prepared, 
             }
         }
     }
+    // A double-valued lab angle shows two peaks of one state: the branch tells them apart.
+    let branch_of = |i: usize| numeric.get("branch").map_or(0, |b| b[i] as i64);
     let mut order = Vec::with_capacity(detectors.len());
     let mut seen = HashMap::new();
     for (i, (det, state)) in detectors.iter().zip(&states).enumerate() {
@@ -105,7 +107,7 @@ pub fn prepare(table: &DataFrame, setup: &Setup, run: &str) -> Result<Prepared, 
                 detector: det.clone(),
                 known: setup.detector_ids(),
             }),
-            Some(d) => order.push((d, state.clone(), i)),
+            Some(d) => order.push((d, state.clone(), branch_of(i), i)),
         }
         if state.trim().is_empty() {
             errors.push(StageError::BadValue {
@@ -115,12 +117,12 @@ pub fn prepare(table: &DataFrame, setup: &Setup, run: &str) -> Result<Prepared, 
                 expected: "a state name such as elastic".into(),
             });
         }
-        if let Some(first) = seen.insert((det.clone(), state.clone()), i) {
+        if let Some(first) = seen.insert((det.clone(), state.clone(), branch_of(i)), i) {
             errors.push(StageError::BadValue {
                 row: i + 1,
                 column: "state".into(),
                 value: format!("detector {det}, state {state} again (first at data row {})", first + 1),
-                expected: "one row per detector and state".into(),
+                expected: "one row per detector, state (and branch, where a `branch` column is given)".into(),
             });
         }
     }
@@ -138,10 +140,10 @@ pub fn prepare(table: &DataFrame, setup: &Setup, run: &str) -> Result<Prepared, 
         return Err(errors);
     }
     order.sort();
-    let rows: Vec<usize> = order.iter().map(|(_, _, i)| *i).collect();
+    let rows: Vec<usize> = order.iter().map(|(_, _, _, i)| *i).collect();
     let pick_str = |v: &[String]| rows.iter().map(|&i| v[i].clone()).collect::<Vec<_>>();
     let pick = |v: &[f64]| rows.iter().map(|&i| v[i]).collect::<Vec<_>>();
-    let dets: Vec<_> = order.iter().map(|(d, _, _)| &setup.detectors[*d]).collect();
+    let dets: Vec<_> = order.iter().map(|(d, _, _, _)| &setup.detectors[*d]).collect();
     let mut columns = vec![
         Column::new("run".into(), vec![run.to_string(); rows.len()]),
         Column::new("detector".into(), pick_str(&detectors)),

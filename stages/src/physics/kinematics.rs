@@ -159,11 +159,14 @@ impl Frame {
         let (c, s) = (theta.cos(), theta.sin());
         let mut roots = match self.mode {
             Mode::Relativistic => {
-                let (g, b, m, es) = (self.gamma, self.beta, self.mass, self.e_star());
+                let (g, b, m, ks) = (self.gamma, self.beta, self.mass, self.k_star);
+                // Written without differences of large numbers: with γ²m² − E*² = γ²β²m² − p*²,
+                // C = (γβm − p*)(γβm + p*) and B² − AC = γ²(p* − γβm sin θ)(p* + γβm sin θ).
+                let gbm = g * b * m;
                 let a = g * g * (1.0 - b * b * c * c);
-                let half_b = es * g * b * c;
-                let cc = g * g * m * m - es * es;
-                let disc = half_b * half_b - a * cc;
+                let half_b = self.e_star() * g * b * c;
+                let cc = (gbm - ks) * (gbm + ks);
+                let disc = g * g * (ks - gbm * s) * (ks + gbm * s);
                 if disc < 0.0 {
                     return Vec::new();
                 }
@@ -173,7 +176,7 @@ impl Frame {
                     r.push(cc / q);
                 }
                 // Squaring admitted E = E*/γ + β p c < 0; keep physical roots only.
-                r.retain(|&p| p > 0.0 && es / g + b * p * c > 0.0);
+                r.retain(|&p| p > 0.0 && self.e_star() / g + b * p * c > 0.0);
                 r
             }
             Mode::NonRelativistic => {
@@ -210,13 +213,13 @@ impl Frame {
         // dθ*/dθ = sin θ / (sin θ* J); at θ = 0 or π the limit is 1/√J.
         let dtheta = if sin_star.abs() > 1e-12 { s / (sin_star * jacobian) } else { 1.0 / jacobian.sqrt() };
         let (energy, momentum) = match self.mode {
-            Mode::Relativistic => (k.hypot(self.mass) - self.mass, k),
+            Mode::Relativistic => (kinetic_energy(k, self.mass), k),
             Mode::NonRelativistic => (0.5 * self.mass * k * k, self.mass * k),
         };
         let (p_par, p_perp) = (self.momentum_in - momentum * c, momentum * s);
         let partner_p2 = p_par * p_par + p_perp * p_perp;
         let partner_energy = match self.mode {
-            Mode::Relativistic => partner_p2.sqrt().hypot(self.partner_mass) - self.partner_mass,
+            Mode::Relativistic => kinetic_energy(partner_p2.sqrt(), self.partner_mass),
             Mode::NonRelativistic => partner_p2 / (2.0 * self.partner_mass),
         };
         Solution {
@@ -230,6 +233,12 @@ impl Frame {
             branch,
         }
     }
+}
+
+/// Kinetic energy T = √(p² + m²) − m written as p² / (√(p² + m²) + m), which keeps its
+/// precision for a slow heavy recoil (p ≪ m).
+fn kinetic_energy(p: f64, m: f64) -> f64 {
+    p * p / (p.hypot(m) + m)
 }
 
 impl Channel {

@@ -1,0 +1,256 @@
+//! `xsflow kinematics`: a two-body kinematics table at chosen lab angles, for a person (an
+//! aligned table) or a script (JSON, CSV).
+
+use std::collections::BTreeMap;
+use std::fmt::Write as _;
+
+use serde::Serialize;
+use stages::physics::kinematics::{Detect, Mode, Solution};
+use stages::setup::{DetectConfig, ReactionConfig, ResolvedReaction, StateConfig};
+use tracing::warn;
+
+use crate::cli::TableFormat;
+
+/// One solution at one lab angle, as printed.
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct KinematicsRow {
+    /// Lab angle of the detected particle, degrees.
+    pub theta_lab_deg: f64,
+    /// CM angle of the ejectile, degrees.
+    pub theta_cm_deg: f64,
+    /// Lab kinetic energy of the detected particle, MeV.
+    pub energy_lab_mev: f64,
+    /// dΩ_lab/dΩ_cm of the detected particle.
+    pub domega_lab_per_domega_cm: f64,
+    /// 1, or 2 for the lower-energy solution of a double-valued angle.
+    pub branch: u8,
+    /// Lab angle of the residual nucleus, degrees.
+    pub recoil_theta_lab_deg: f64,
+    /// Lab kinetic energy of the residual nucleus, MeV.
+    pub recoil_energy_lab_mev: f64,
+    /// Lab angle of the ejectile, degrees.
+    pub ejectile_theta_lab_deg: f64,
+    /// Lab kinetic energy of the ejectile, MeV.
+    pub ejectile_energy_lab_mev: f64,
+}
+
+impl KinematicsRow {
+    fn new(s: &Solution, detect: Detect) -> Self {
+        let (own, partner) = (
+            (s.theta_lab_rad.to_degrees(), s.energy_lab_mev),
+            (s.partner_theta_lab_rad.to_degrees(), s.partner_energy_lab_mev),
+        );
+        let (ejectile, recoil) = if detect == Detect::Ejectile { (own, partner) } else { (partner, own) };
+        KinematicsRow {
+            theta_lab_deg: own.0,
+            theta_cm_deg: s.theta_cm_rad.to_degrees(),
+            energy_lab_mev: own.1,
+            domega_lab_per_domega_cm: s.domega_lab_per_domega_cm,
+            branch: s.branch,
+            recoil_theta_lab_deg: recoil.0,
+            recoil_energy_lab_mev: recoil.1,
+            ejectile_theta_lab_deg: ejectile.0,
+            ejectile_energy_lab_mev: ejectile.1,
+        }
+    }
+}
+
+/// Parse `A:B:STEP` (inclusive of B when the steps reach it) or a comma list `10,20,35`.
+///
+/// # Errors
+/// A message naming the text and the accepted forms.
+pub fn parse_angles(text: &str) -> Result<Vec<f64>, String> {
+    let bad = |why: &str| {
+        format!("--angles {text}: {why}; accepted: A:B:STEP (e.g. 10:170:10) or a list (e.g. 15,30,45), angles in (0, 180) degrees")
+    };
+    let number = |s: &str| {
+        s.trim().parse::<f64>().ok().filter(|x| x.is_finite()).ok_or_else(|| bad(&format!("`{s}` is not a number")))
+    };
+    let angles = if text.contains(':') {
+        let parts: Vec<&str> = text.split(':').collect();
+        let [a, b, step] = parts[..] else { return Err(bad("a range needs three numbers")) };
+        let (a, b, step) = (number(a)?, number(b)?, number(step)?);
+        if step <= 0.0 || b < a {
+            return Err(bad("a range needs A <= B and STEP > 0"));
+        }
+        let n = ((b - a) / step + 1e-9).floor() as usize;
+        if n > 100_000 {
+            return Err(bad("more than 100000 angles"));
+        }
+        (0..=n).map(|i| a + step * i as f64).collect()
+    } else {
+        text.split(',').map(number).collect::<Result<Vec<_>, _>>()?
+    };
+    if let Some(x) = angles.iter().find(|x| !(**x > 0.0 && **x < 180.0)) {
+        return Err(bad(&format!("{x} is outside (0, 180)")));
+    }
+    Ok(angles)
+}
+
+/// What the command was asked for.
+pub struct Request<'a> {
+    /// Beam particle.
+    pub beam: &'a str,
+    /// Target nucleus.
+    pub target: &'a str,
+    /// Ejectile, default the beam.
+    pub ejectile: Option<&'a str>,
+    /// Beam kinetic energy in MeV.
+    pub energy_mev: f64,
+    /// Excitation of the residual in MeV.
+    pub excitation_mev: f64,
+    /// Which particle is detected.
+    pub detect: DetectConfig,
+    /// Galilean instead of relativistic kinematics.
+    pub non_relativistic: bool,
+}
+
+/// The reaction of a request, or the problems, phrased with the command-line flags.
+///
+/// # Errors
+/// Each problem as a line naming the flag.
+pub fn resolve(req: &Request<'_>) -> Result<ResolvedReaction, Vec<String>> {
+    let config = ReactionConfig {
+        beam: req.beam.to_string(),
+        target: req.target.to_string(),
+        energy_mev: req.energy_mev,
+        beam_charge_state: None,
+        ejectile: req.ejectile.map(str::to_string),
+        detect: req.detect,
+        states: vec![StateConfig { name: "state".into(), excitation_mev: req.excitation_mev }],
+        atomic_masses_u: BTreeMap::new(),
+    };
+    config.resolve().map_err(|problems| {
+        problems
+            .iter()
+            .map(|p| {
+                let flag = match p.key.as_str() {
+                    "energy_mev" => "--energy-mev",
+                    "states[0].excitation_mev" => "--excitation-mev",
+                    "beam" => "--beam",
+                    "target" => "--target",
+                    "ejectile" => "--ejectile",
+                    other => other,
+                };
+                format!("{flag}: found {}, expected {}", p.found, p.expected)
+            })
+            .collect()
+    })
+}
+
+/// Every solution at every angle; angles past the kinematic limit give no row and a warning
+/// naming the limit.
+pub fn rows(reaction: &ResolvedReaction, angles_deg: &[f64], mode: Mode) -> Vec<KinematicsRow> {
+    let Some((_, channel)) = reaction.channels.first() else { return Vec::new() };
+    let mut out = Vec::new();
+    for &deg in angles_deg {
+        let solutions = channel.at_lab_angle(deg.to_radians(), reaction.detect, mode);
+        if solutions.is_empty() {
+            let max = channel.max_lab_angle_rad(reaction.detect, mode).to_degrees();
+            warn!(
+                theta_lab_deg = deg,
+                max_lab_angle_deg = max,
+                "no solution: the angle is beyond the maximum lab angle {max:.4} deg"
+            );
+        }
+        out.extend(solutions.iter().map(|s| KinematicsRow::new(s, reaction.detect)));
+    }
+    out
+}
+
+const COLUMNS: [&str; 9] = [
+    "theta_lab_deg",
+    "theta_cm_deg",
+    "energy_lab_mev",
+    "domega_lab_per_domega_cm",
+    "branch",
+    "recoil_theta_lab_deg",
+    "recoil_energy_lab_mev",
+    "ejectile_theta_lab_deg",
+    "ejectile_energy_lab_mev",
+];
+
+fn values(r: &KinematicsRow) -> [f64; 9] {
+    [
+        r.theta_lab_deg,
+        r.theta_cm_deg,
+        r.energy_lab_mev,
+        r.domega_lab_per_domega_cm,
+        f64::from(r.branch),
+        r.recoil_theta_lab_deg,
+        r.recoil_energy_lab_mev,
+        r.ejectile_theta_lab_deg,
+        r.ejectile_energy_lab_mev,
+    ]
+}
+
+/// The rows in the chosen format, with a heading for the table format.
+pub fn render(reaction: &ResolvedReaction, rows: &[KinematicsRow], format: TableFormat, mode: Mode) -> String {
+    match format {
+        TableFormat::Json => {
+            serde_json::to_string_pretty(rows).unwrap_or_else(|e| format!("{{\"error\": \"{e}\"}}")) + "\n"
+        }
+        TableFormat::Csv => {
+            let mut s = COLUMNS.join(",") + "\n";
+            for r in rows {
+                let line: Vec<String> = values(r).iter().map(f64::to_string).collect();
+                s += &(line.join(",") + "\n");
+            }
+            s
+        }
+        TableFormat::Table => {
+            let mut s = String::new();
+            if let Some((_, ch)) = reaction.channels.first() {
+                let detected =
+                    if reaction.detect == Detect::Ejectile { &reaction.ejectile.name } else { &reaction.recoil.name };
+                let _ = writeln!(
+                    s,
+                    "{}({}, {}){}  T = {} MeV  E_x = {} MeV  Q = {:.4} MeV  detected: {detected}  max lab angle: {:.4} deg  ({})",
+                    reaction.target.name,
+                    reaction.beam.name,
+                    reaction.ejectile.name,
+                    reaction.recoil.name,
+                    ch.energy_mev(),
+                    ch.excitation_mev(),
+                    ch.q_value_mev(),
+                    ch.max_lab_angle_rad(reaction.detect, mode).to_degrees(),
+                    if mode == Mode::Relativistic { "relativistic" } else { "non-relativistic" },
+                );
+            }
+            let heads = [
+                "theta_lab",
+                "theta_cm",
+                "E_lab/MeV",
+                "dOmega_lab/dOmega_cm",
+                "branch",
+                "recoil_theta",
+                "recoil_E/MeV",
+                "ejectile_theta",
+                "ejectile_E/MeV",
+            ];
+            let widths: Vec<usize> = heads.iter().map(|h| h.len().max(10)).collect();
+            let line = |cells: Vec<String>| {
+                cells.iter().zip(&widths).map(|(c, w)| format!("{c:>w$}")).collect::<Vec<_>>().join("  ") + "\n"
+            };
+            s += &line(heads.iter().map(|h| (*h).to_string()).collect());
+            for r in rows {
+                let v = values(r);
+                s += &line(
+                    v.iter()
+                        .enumerate()
+                        .map(|(i, x)| {
+                            if i == 4 {
+                                format!("{x}")
+                            } else if i == 3 {
+                                format!("{x:.6}")
+                            } else {
+                                format!("{x:.4}")
+                            }
+                        })
+                        .collect(),
+                );
+            }
+            s
+        }
+    }
+}
