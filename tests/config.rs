@@ -91,7 +91,10 @@ fn three_planted_mistakes_are_all_reported_with_key_paths() {
         "{msg}"
     );
     assert!(msg.contains("did you mean `areal_density_rel_err`?"), "{msg}");
-    assert!(msg.contains("stages[1].resolving_time_us: found 2, expected no resolving time"), "{msg}");
+    assert!(
+        msg.contains("stages[1].resolving_time_us: (correct_dead_time) found 2, expected no resolving time"),
+        "{msg}"
+    );
     assert!(msg.contains("3 problem(s)"), "{msg}");
 }
 

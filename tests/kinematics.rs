@@ -298,7 +298,12 @@ fn neutral_beam_with_rutherford_is_a_config_error() {
     let out = xsflow(tmp.path(), &["check", "experiment.yaml"]);
     let msg = text(&out);
     assert_eq!(out.status.code(), Some(2), "{msg}");
-    assert!(msg.contains("rutherford: found Relativistic with the neutral n, expected rutherford: none"), "{msg}");
+    assert!(
+        msg.contains(
+            "stages[7].rutherford: (transform_to_cm) found relativistic with the neutral n, expected rutherford: none"
+        ),
+        "{msg}"
+    );
 }
 
 #[test]

@@ -109,7 +109,12 @@ pub fn plan(config_path: &Path) -> Result<Plan, Vec<Diagnostic>> {
             let key = format!("stages[{i}]");
             match sc.build(setup.as_ref()) {
                 Ok(stage) => stages.push(PlannedStage { key, stage }),
-                Err(problems) => diags.extend(locate(problems.into_iter().map(|p| p.under(&key)).collect())),
+                Err(problems) => diags.extend(
+                    locate(problems.into_iter().map(|p| p.under(&key)).collect()).into_iter().map(|mut d| {
+                        d.message = format!("({}) {}", sc.type_name(), d.message);
+                        d
+                    }),
+                ),
             }
         }
         if stages.len() == configs.len() {

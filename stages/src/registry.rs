@@ -48,6 +48,20 @@ pub const STAGE_TYPES: [&str; 6] = [
 ];
 
 impl StageConfig {
+    /// The `type:` name of this entry.
+    pub fn type_name(&self) -> &'static str {
+        match self {
+            StageConfig::SubtractBackground(_) => "subtract_background",
+            StageConfig::CorrectDeadTime(_) => "correct_dead_time",
+            StageConfig::ComputeKinematics(_) => "compute_kinematics",
+            StageConfig::ApplyEfficiency(_) => "apply_efficiency",
+            StageConfig::ComputeSolidAngle(_) => "compute_solid_angle",
+            StageConfig::Normalise(_) => "normalise",
+            StageConfig::ComputeLabCrossSection(_) => "compute_lab_cross_section",
+            StageConfig::TransformToCm(_) => "transform_to_cm",
+        }
+    }
+
     /// Check the settings against the set-up and build the stage.
     ///
     /// `setup` is `None` when the config's set-up sections did not parse: the settings are

@@ -177,16 +177,6 @@ impl ResolvedReaction {
     pub fn is_elastic(&self, state: &str) -> bool {
         self.ejectile == self.beam && self.channels.iter().any(|(s, _)| s.name == state && s.excitation_mev == 0.0)
     }
-
-    /// The four ground-state masses.
-    pub fn masses(&self) -> Masses {
-        Masses {
-            beam_mev: self.beam.mass_mev,
-            target_mev: self.target.mass_mev,
-            ejectile_mev: self.ejectile.mass_mev,
-            recoil_mev: self.recoil.mass_mev,
-        }
-    }
 }
 
 impl ReactionConfig {
@@ -721,4 +711,54 @@ pub struct RunContext<'a> {
     pub setup: &'a Setup,
     /// The run being reduced (validated).
     pub run: &'a RunRecord,
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn reaction(yaml: &str) -> ReactionConfig {
+        serde_yaml::from_str(yaml).expect("reaction parses")
+    }
+
+    #[test]
+    fn residual_follows_from_charge_and_mass_number() {
+        // 58Ni(d,p)59Ni: Z 1 + 28 - 1 = 28, A 2 + 58 - 1 = 59.
+        let r = reaction("{ beam: d, target: 58Ni, ejectile: p, energy_mev: 12.0 }").resolve().expect("valid");
+        assert_eq!((r.recoil.z, r.recoil.a), (28, 59));
+        assert_eq!(r.recoil.name, "59Ni");
+        assert!(!r.is_elastic("elastic"), "a transfer reaction has no elastic state");
+    }
+
+    #[test]
+    fn atomic_mass_override_replaces_the_table_value() {
+        let table = reaction("{ beam: 4He, target: 58Ni, energy_mev: 24.0 }").resolve().expect("valid");
+        let over = reaction("{ beam: 4He, target: 58Ni, energy_mev: 24.0, atomic_masses_u: { 58Ni: 57.9 } }")
+            .resolve()
+            .expect("valid");
+        // 57.9353417 u in the table (AME2020); the override lowers the mass by 0.0353417 u.
+        let du = (table.target.mass_mev - over.target.mass_mev) / crate::physics::constants::ATOMIC_MASS_UNIT_MEV;
+        assert!((du - 0.035_341_7).abs() < 1e-9, "{du}");
+        let bad = reaction("{ beam: 4He, target: 58Ni, energy_mev: 24.0, atomic_masses_u: { 58Nx: 57.9 } }")
+            .resolve()
+            .expect_err("unknown name");
+        assert_eq!(bad[0].key, "atomic_masses_u.58Nx");
+    }
+
+    #[test]
+    fn duplicate_states_and_closed_channels_are_problems() {
+        let p = reaction(
+            "{ beam: 4He, target: 58Ni, energy_mev: 24.0, states: [{ name: a }, { name: a, excitation_mev: 40.0 }] }",
+        )
+        .resolve()
+        .expect_err("two problems");
+        let keys: Vec<&str> = p.iter().map(|p| p.key.as_str()).collect();
+        assert_eq!(keys, ["states[1].name"]);
+        let p =
+            reaction("{ beam: 4He, target: 58Ni, energy_mev: 24.0, states: [{ name: high, excitation_mev: 40.0 }] }")
+                .resolve()
+                .expect_err("closed");
+        assert_eq!(p[0].key, "states[0].excitation_mev");
+        assert!(p[0].expected.contains("above the"), "{}", p[0].expected);
+    }
 }

@@ -56,7 +56,14 @@ impl TransformToCmConfig {
                 let neutral = if r.beam.z == 0 { &r.beam.name } else { &r.target.name };
                 return Err(vec![Problem::new(
                     "rutherford",
-                    format!("{:?} with the neutral {neutral}", self.rutherford),
+                    format!(
+                        "{} with the neutral {neutral}",
+                        if self.rutherford == RutherfordChoice::Relativistic {
+                            "relativistic"
+                        } else {
+                            "non_relativistic"
+                        }
+                    ),
                     "rutherford: none (there is no Coulomb scattering without charge)",
                 )]);
             }
