@@ -6,5 +6,6 @@ mod cli;
 mod common;
 mod config;
 mod kinematics;
+mod nist;
 mod reference;
 mod regression;

@@ -4,8 +4,10 @@
 pub mod constants;
 pub mod cross_section;
 pub mod dead_time;
+pub mod dual;
 pub mod interpolate;
 pub mod kinematics;
+pub mod least_squares;
 pub mod luminosity;
 pub mod normalisation;
 pub mod nuclide;
