@@ -2,6 +2,7 @@
 //! symbols with units, where it holds, and its published source.
 
 pub mod constants;
+pub mod coulomb;
 pub mod cross_section;
 pub mod dead_time;
 pub mod dual;
