@@ -12,6 +12,7 @@
 //! 4. the Wronskian F'G − FG' = 1 (DLMF 33.2.12) fixes the scale:
 //!    F_0 = ±[q + (f_0 − p)²/q]^(-1/2), G_0 = (f_0 − p) F_0 / q, G'_0 = p G_0 − q F_0;
 //! 5. G and G' go up from L = 0 by the same recurrences (stable upward for G).
+//!
 //! CF2 converges where ρ lies outside the L = 0 turning point (ρ > η + √(η² + …), roughly
 //! ρ > 2η); elastic nuclear scattering matches well outside it. The Wronskian of every L
 //! is checked and reported.
