@@ -12,6 +12,8 @@ pub mod least_squares;
 pub mod luminosity;
 pub mod normalisation;
 pub mod nuclide;
+pub mod optical;
+pub mod partial_waves;
 pub mod rutherford;
 pub mod solid_angle;
 pub mod uncertainty;
