@@ -108,6 +108,18 @@ pub enum Command {
         #[arg(long, value_enum, default_value_t = TableFormat::Table)]
         format: TableFormat,
     },
+    /// A model curve at CM angles: optical model (Woods–Saxon, computed here), Rutherford,
+    /// or hard sphere, from a model file (`xsflow schema model` shows its form).
+    Theory {
+        /// The model file (YAML).
+        model: PathBuf,
+        /// CM angles in degrees: A:B:STEP or a comma list.
+        #[arg(long, default_value = "10:170:10")]
+        angles: String,
+        /// Output format.
+        #[arg(long, value_enum, default_value_t = TableFormat::Table)]
+        format: TableFormat,
+    },
     /// Print a JSON Schema: the config (default), a run record, or a table.
     Schema {
         /// Which schema.

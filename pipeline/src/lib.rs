@@ -12,3 +12,4 @@ pub mod provenance;
 pub mod run;
 pub mod schema;
 pub mod tables;
+pub mod theory;

@@ -10,9 +10,9 @@ use stages::setup::DetectConfig;
 use tracing_subscriber::EnvFilter;
 use xsflow::cli::{Cli, Command, DetectArg, Format, TableFormat};
 use xsflow::error::{report, Diagnostic, RunFailure};
-use xsflow::kinematics;
 use xsflow::plan::plan;
 use xsflow::run::{check_runs, reduce_all};
+use xsflow::{kinematics, theory};
 
 fn main() -> ExitCode {
     let cli = match Cli::try_parse() {
@@ -52,6 +52,7 @@ fn main() -> ExitCode {
             };
             kinematics_table(&request, &angles, format)
         }
+        Command::Theory { model, angles, format } => theory_curve(&model, &angles, format),
         Command::Schema { name } => match xsflow::schema::schema_json(&name) {
             Some(s) => {
                 print!("{s}");
@@ -161,4 +162,24 @@ fn kinematics_table(request: &kinematics::Request<'_>, angles: &str, format: Tab
     let rows = kinematics::rows(&reaction, &angles, mode);
     print!("{}", kinematics::render(&reaction, &rows, format, mode));
     0
+}
+
+fn theory_curve(model: &Path, angles: &str, format: TableFormat) -> u8 {
+    let angles = match kinematics::parse_angles(angles) {
+        Ok(a) => a,
+        Err(msg) => {
+            eprintln!("{msg}");
+            return 2;
+        }
+    };
+    match theory::curve(model, &angles) {
+        Ok(curve) => {
+            print!("{}", theory::render(&curve, format));
+            0
+        }
+        Err(diags) => {
+            report(&diags);
+            2
+        }
+    }
 }

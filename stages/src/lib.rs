@@ -21,6 +21,7 @@ pub mod registry;
 pub mod setup;
 pub mod subtract_background;
 pub mod table;
+pub mod theory;
 pub mod transform_to_cm;
 pub mod yields;
 
