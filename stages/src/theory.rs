@@ -120,6 +120,9 @@ pub enum ModelConfig {
     },
 }
 
+/// What the optical-model numerics used: step and the two matching radii, fm.
+pub type NumericsUsed = Option<(f64, (f64, f64))>;
+
 /// One point of a curve.
 #[derive(Debug, Clone, Serialize, PartialEq)]
 pub struct CurveRow {
@@ -203,7 +206,7 @@ impl ModelConfig {
     ///
     /// # Errors
     /// Every parameter problem, keys as in the model file.
-    pub fn waves(&self) -> Result<(PartialWaves, Option<(f64, (f64, f64))>), Vec<Problem>> {
+    pub fn waves(&self) -> Result<(PartialWaves, NumericsUsed), Vec<Problem>> {
         match self {
             ModelConfig::Optical { reaction, potential, numerics } => {
                 let (ch, beam, target) = reaction.channel()?;
@@ -253,7 +256,7 @@ impl ModelConfig {
                     l_max: numerics.l_max,
                 };
                 let sol = optical::solve(&pot, &ch, &num).map_err(|e| {
-                    vec![Problem::new("potential", "these parameters", &format!("a solvable potential: {e}"))]
+                    vec![Problem::new("potential", "these parameters", format!("a solvable potential: {e}"))]
                 })?;
                 Ok((sol.waves, Some((sol.step_fm, sol.matching_radii_fm))))
             }
@@ -286,7 +289,7 @@ impl ModelConfig {
                     vec![Problem::new(
                         "radius_fm",
                         radius_fm,
-                        &format!("a radius where the Coulomb functions converge: {e}"),
+                        format!("a radius where the Coulomb functions converge: {e}"),
                     )]
                 })?;
                 Ok((w, None))
