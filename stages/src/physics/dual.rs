@@ -1,8 +1,8 @@
 //! Forward-mode automatic differentiation with dual numbers: a value and its gradient with
 //! respect to up to [`MAX_PARAMS`] parameters, carried through arithmetic and the elementary
 //! functions by the chain rule. Gives exact Jacobians for model functions written once,
-//! generically over [`Real`] (L. B. Rall, Automatic Differentiation, Lecture Notes in
-//! Computer Science 120, Springer 1981; common practice).
+//! generically over [`Real`] (L. B. Rall, Automatic Differentiation: Techniques and
+//! Applications, Springer LNCS 120, 1981; common practice).
 
 use std::ops::{Add, Div, Mul, Neg, Sub};
 

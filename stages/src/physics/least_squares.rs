@@ -4,8 +4,8 @@
 //! Method: each step solves the damped linear problem
 //!     min_h ‖J h + r‖² + μ ‖D h‖²
 //! with Marquardt's diagonal scaling D (the running maximum of the Jacobian's column norms,
-//! J. J. Moré, "The Levenberg-Marquardt algorithm: implementation and theory", Lecture Notes
-//! in Mathematics 630 (1978) 105), solved by Householder QR of the stacked matrix
+//! J. J. Moré, "The Levenberg-Marquardt algorithm: implementation and theory", in Numerical
+//! Analysis (Dundee 1977), Springer LNM 630 (1978) 105), solved by Householder QR of the stacked matrix
 //! [J D⁻¹; √μ I] so that JᵀJ is never formed. The damping μ follows the gain ratio
 //! ρ = (actual reduction)/(predicted reduction): μ ← μ·max(1/3, 1 − (2ρ − 1)³) after a
 //! good step, μ ← μ·ν, ν ← 2ν after a bad one (K. Madsen, H. B. Nielsen, O. Tingleff,
