@@ -14,6 +14,7 @@ pub mod compute_lab_cross_section;
 pub mod compute_solid_angle;
 pub mod correct_dead_time;
 mod error;
+pub mod fit;
 pub mod normalise;
 pub mod physics;
 mod problem;

@@ -91,6 +91,18 @@ pub trait Residuals {
     }
     /// Residuals and Jacobian at `p`.
     fn eval(&self, p: &[f64], r: &mut [f64], jac: &mut [f64]) -> bool;
+    /// Residuals alone at `p` (a trial step); by default through [`Residuals::eval`].
+    fn residuals(&self, p: &[f64], r: &mut [f64]) -> bool {
+        let mut jac = vec![0.0; r.len() * p.len()];
+        self.eval(p, r, &mut jac)
+    }
+    /// Jacobian at `p` where the residuals `r` are already known (an accepted step); by
+    /// default through [`Residuals::eval`]. Models with finite-difference Jacobians override
+    /// it so that rejected trial steps cost one evaluation, not n + 1.
+    fn jacobian(&self, p: &[f64], r: &[f64], jac: &mut [f64]) -> bool {
+        let mut scratch = r.to_vec();
+        self.eval(p, &mut scratch, jac)
+    }
 }
 
 fn norm(v: &[f64]) -> f64 {
@@ -223,13 +235,18 @@ pub fn levenberg_marquardt<M: Residuals>(model: &M, p0: &[f64], opts: &LmOptions
         let ssr = rnorm * rnorm;
         let predicted = norm(&jh).powi(2) + 2.0 * mu * dp * dp;
         evaluations += 1;
-        let ok = model.eval(&trial, &mut r_new, &mut jac_new) && r_new.iter().chain(&jac_new).all(|x| x.is_finite());
+        let ok = model.residuals(&trial, &mut r_new) && r_new.iter().all(|x| x.is_finite());
         let actual = if ok { ssr - norm(&r_new).powi(2) } else { f64::NEG_INFINITY };
         let rho = if predicted > 0.0 { actual / predicted } else { -1.0 };
         // Near the minimum both reductions fall below the rounding of ‖r‖²; the ratio is then
         // noise, and a step the linear model predicts to be that small is taken.
         let at_rounding = ok && predicted <= 16.0 * f64::EPSILON * ssr && actual >= -16.0 * f64::EPSILON * ssr;
-        if rho > 0.0 || at_rounding {
+        // The Jacobian is needed only where the step is taken; a model that cannot give it
+        // there rejects the step.
+        let take = (rho > 0.0 || at_rounding)
+            && model.jacobian(&trial, &r_new, &mut jac_new)
+            && jac_new.iter().all(|x| x.is_finite());
+        if take {
             p = trial;
             std::mem::swap(&mut r, &mut r_new);
             std::mem::swap(&mut jac, &mut jac_new);

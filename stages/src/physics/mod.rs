@@ -10,6 +10,7 @@ pub mod interpolate;
 pub mod kinematics;
 pub mod least_squares;
 pub mod luminosity;
+pub mod model_fit;
 pub mod normalisation;
 pub mod nuclide;
 pub mod optical;

@@ -1,0 +1,686 @@
+//! χ² fits of a model curve to a measured angular distribution, with bounded parameters,
+//! the common normalisation as a nuisance parameter, parameter errors and correlations from
+//! the curvature matrix, χ²/ν and its p-value, profile-likelihood intervals, and several
+//! starts with every distinct minimum kept.
+//!
+//! The χ² (common practice; the normalisation treatment follows G. D'Agostini, Nucl.
+//! Instrum. Meth. A 346 (1994) 306, which shows that a fit with a full covariance matrix
+//! holding a normalisation error built from the measured values is biased low — citation
+//! from memory):
+//!     χ²(p, ν) = Σ_i (ν m_i(p) − y_i)² / σ_i² + (ν − 1)² / σ_N²,
+//! where σ_i is the statistical and point-to-point error of point i added in quadrature,
+//! σ_N the relative error of the common normalisation, and ν the fitted normalisation
+//! (`Prior`); `Free` drops the prior term (a free scale), `Fixed` holds ν = 1.
+//!
+//! Bounds by the usual transformations to an unbounded internal variable q (F. James,
+//! M. Roos, "MINUIT", CERN Program Library D506, section on parameter limits — citation
+//! from memory):
+//!     both bounds:   p = a + (b − a)(sin q + 1)/2
+//!     lower only:    p = a − 1 + √(q² + 1)
+//!     upper only:    p = b + 1 − √(q² + 1)
+//! The covariance is computed in the external parameters at the minimum, from the
+//! Jacobian of the residuals by central differences: C = (JᵀJ)⁻¹ (the residuals are already
+//! divided by their errors, so no scale factor; e.g. NIST/SEMATECH e-Handbook of
+//! Statistical Methods, section 4.4.4). A parameter at a bound has no reliable error and is
+//! flagged.
+
+use std::cell::RefCell;
+
+use statrs::distribution::{ChiSquared, ContinuousCDF};
+
+use super::least_squares::{inverse_normal_matrix, minimise, LmOptions, Residuals, Termination};
+
+/// A model curve: values at the data points for the shape parameters.
+pub trait Shape {
+    /// Number of data points the shape is evaluated at.
+    fn points(&self) -> usize;
+    /// Fill `out` (one value per point) at parameters `p`.
+    ///
+    /// # Errors
+    /// Parameters where the model cannot be evaluated, with the reason.
+    fn values(&self, p: &[f64], out: &mut [f64]) -> Result<(), String>;
+}
+
+/// One fitted parameter of a shape.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Parameter {
+    /// Name (e.g. `real.depth_mev`).
+    pub name: String,
+    /// Start value.
+    pub start: f64,
+    /// Lower bound.
+    pub min: Option<f64>,
+    /// Upper bound.
+    pub max: Option<f64>,
+}
+
+/// How the common normalisation enters.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Normalisation {
+    /// ν = 1.
+    Fixed,
+    /// ν fitted without a prior (a free scale).
+    Free,
+    /// ν fitted with a Gaussian prior of this relative width around 1.
+    Prior(f64),
+}
+
+/// Name of the normalisation parameter in results.
+pub const NORMALISATION: &str = "normalisation";
+
+/// The measured points: values and their errors (statistical ⊕ point-to-point).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Measured {
+    /// y_i.
+    pub y: Vec<f64>,
+    /// σ_i > 0.
+    pub sigma: Vec<f64>,
+}
+
+/// Why a fit cannot start.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum FitError {
+    /// A start value outside its bounds, or bounds that are not ordered.
+    #[error("parameter {name}: start {start} is outside its bounds [{min}, {max}]")]
+    StartOutsideBounds {
+        /// Parameter.
+        name: String,
+        /// Start.
+        start: f64,
+        /// Lower bound (−inf if none).
+        min: f64,
+        /// Upper bound (+inf if none).
+        max: f64,
+    },
+    /// More free parameters than constraints.
+    #[error("{free} free parameters but only {points} data points (and {priors} priors): the fit is underdetermined")]
+    TooFewPoints {
+        /// Free parameters including the normalisation.
+        free: usize,
+        /// Data points.
+        points: usize,
+        /// Prior terms.
+        priors: usize,
+    },
+    /// The model cannot be evaluated at the start.
+    #[error("the model cannot be evaluated at the start values: {0}")]
+    StartFails(String),
+}
+
+/// A parameter's result.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Estimate {
+    /// Name.
+    pub name: String,
+    /// Best value.
+    pub value: f64,
+    /// Standard error from the curvature matrix (`None` if it is singular or the parameter
+    /// sits at a bound).
+    pub error: Option<f64>,
+    /// Start value.
+    pub start: f64,
+    /// Bounds.
+    pub min: Option<f64>,
+    /// Bounds.
+    pub max: Option<f64>,
+    /// Whether the value is at (within 1e-6 of the range of) a bound.
+    pub at_bound: bool,
+}
+
+/// The outcome of one minimisation.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Minimum {
+    /// Parameters, the shape's first, then the normalisation if fitted.
+    pub estimates: Vec<Estimate>,
+    /// Covariance matrix (row-major, same order), if the curvature matrix is regular.
+    pub covariance: Option<Vec<f64>>,
+    /// χ² at the minimum (prior term included).
+    pub chi2: f64,
+    /// Degrees of freedom: points + priors − free parameters.
+    pub ndf: usize,
+    /// P(χ²_ν ≥ χ²).
+    pub p_value: Option<f64>,
+    /// Why the minimiser stopped.
+    pub termination: Termination,
+    /// Iterations.
+    pub iterations: usize,
+    /// Model evaluations (including the Jacobians).
+    pub evaluations: usize,
+    /// Model values (unnormalised) at the points, at the minimum.
+    pub model: Vec<f64>,
+}
+
+impl Minimum {
+    /// Whether the minimiser converged.
+    pub fn converged(&self) -> bool {
+        self.termination.converged()
+    }
+
+    /// The fitted normalisation ν (1 when fixed).
+    pub fn normalisation(&self) -> f64 {
+        self.estimates.iter().find(|e| e.name == NORMALISATION).map_or(1.0, |e| e.value)
+    }
+
+    /// Correlation matrix from the covariance.
+    pub fn correlations(&self) -> Option<Vec<f64>> {
+        let c = self.covariance.as_ref()?;
+        let n = self.estimates.len();
+        Some((0..n * n).map(|k| c[k] / (c[(k / n) * n + k / n] * c[(k % n) * n + k % n]).sqrt()).collect())
+    }
+}
+
+/// Settings of a fit.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct FitOptions {
+    /// Iteration limit of the minimiser.
+    pub max_iterations: usize,
+    /// Relative χ² reduction that counts as converged.
+    pub ftol: f64,
+    /// Relative step that counts as converged.
+    pub xtol: f64,
+}
+
+impl Default for FitOptions {
+    fn default() -> Self {
+        FitOptions { max_iterations: 200, ftol: 1e-10, xtol: 1e-9 }
+    }
+}
+
+fn transform_check(p: &Parameter) -> Result<(), FitError> {
+    let (lo, hi) = (p.min.unwrap_or(f64::NEG_INFINITY), p.max.unwrap_or(f64::INFINITY));
+    if !(p.start.is_finite() && lo <= p.start && p.start <= hi && lo < hi) {
+        return Err(FitError::StartOutsideBounds { name: p.name.clone(), start: p.start, min: lo, max: hi });
+    }
+    Ok(())
+}
+
+/// External value from the internal one.
+fn external(p: &Parameter, q: f64) -> f64 {
+    match (p.min, p.max) {
+        (Some(a), Some(b)) => a + (b - a) * (q.sin() + 1.0) / 2.0,
+        (Some(a), None) => a - 1.0 + (q * q + 1.0).sqrt(),
+        (None, Some(b)) => b + 1.0 - (q * q + 1.0).sqrt(),
+        (None, None) => q,
+    }
+}
+
+/// Internal value from the external one (the inverse of [`external`]).
+fn internal(p: &Parameter, x: f64) -> f64 {
+    match (p.min, p.max) {
+        (Some(a), Some(b)) => (2.0 * (x - a) / (b - a) - 1.0).clamp(-1.0, 1.0).asin(),
+        (Some(a), None) => ((x - a + 1.0).powi(2) - 1.0).max(0.0).sqrt(),
+        (None, Some(b)) => ((b - x + 1.0).powi(2) - 1.0).max(0.0).sqrt(),
+        (None, None) => x,
+    }
+}
+
+/// dp/dq.
+fn slope(p: &Parameter, q: f64) -> f64 {
+    match (p.min, p.max) {
+        (Some(a), Some(b)) => (b - a) * q.cos() / 2.0,
+        (Some(_), None) => q / (q * q + 1.0).sqrt(),
+        (None, Some(_)) => -q / (q * q + 1.0).sqrt(),
+        (None, None) => 1.0,
+    }
+}
+
+/// The residual vector of the χ² in the external parameters (shape's, then ν).
+struct Chi2<'a, S: Shape> {
+    shape: &'a S,
+    params: &'a [Parameter],
+    data: &'a Measured,
+    norm: Normalisation,
+}
+
+impl<S: Shape> Chi2<'_, S> {
+    fn n_shape(&self) -> usize {
+        self.params.len()
+    }
+    fn fits_norm(&self) -> bool {
+        !matches!(self.norm, Normalisation::Fixed)
+    }
+    fn rows(&self) -> usize {
+        self.data.y.len() + usize::from(matches!(self.norm, Normalisation::Prior(_)))
+    }
+
+    /// Residuals at external shape parameters `p` and normalisation `nu`; the model values
+    /// are left in `m`.
+    fn residuals_ext(&self, p: &[f64], nu: f64, m: &mut [f64], r: &mut [f64]) -> bool {
+        if self.shape.values(p, m).is_err() {
+            return false;
+        }
+        for (i, ((y, s), mi)) in self.data.y.iter().zip(&self.data.sigma).zip(m.iter()).enumerate() {
+            r[i] = (nu * mi - y) / s;
+        }
+        if let Normalisation::Prior(w) = self.norm {
+            r[self.data.y.len()] = (nu - 1.0) / w;
+        }
+        r.iter().all(|x| x.is_finite())
+    }
+
+    /// Jacobian of the residuals in the external parameters, by finite differences for the
+    /// shape (central where both neighbours are inside the bounds, else one-sided) and
+    /// analytically for ν.
+    fn jacobian_ext(&self, p: &[f64], nu: f64, m: &[f64], central: bool, jac: &mut [f64]) -> bool {
+        let (rows, n) = (self.rows(), self.n_shape() + usize::from(self.fits_norm()));
+        let pts = self.data.y.len();
+        let mut mp = vec![0.0; pts];
+        let mut mm = vec![0.0; pts];
+        let mut x = p.to_vec();
+        for j in 0..self.n_shape() {
+            let par = &self.params[j];
+            let room = match (par.min, par.max) {
+                (Some(a), Some(b)) => 0.25 * (b - a),
+                _ => f64::INFINITY,
+            };
+            let h = ((if central { 6e-6 } else { 1.5e-8 }) * p[j].abs().max(1e-3)).min(room);
+            let up_ok = par.max.is_none_or(|b| p[j] + h <= b);
+            let down_ok = par.min.is_none_or(|a| p[j] - h >= a);
+            let (up, down) = match (central, up_ok, down_ok) {
+                (true, true, true) => (h, -h),
+                (_, true, _) => (h, 0.0),
+                (_, false, true) => (0.0, -h),
+                _ => return false,
+            };
+            x[j] = p[j] + up;
+            if up != 0.0 && self.shape.values(&x, &mut mp).is_err() {
+                return false;
+            }
+            if up == 0.0 {
+                mp.copy_from_slice(m);
+            }
+            x[j] = p[j] + down;
+            if down != 0.0 && self.shape.values(&x, &mut mm).is_err() {
+                return false;
+            }
+            if down == 0.0 {
+                mm.copy_from_slice(m);
+            }
+            x[j] = p[j];
+            for i in 0..pts {
+                jac[i * n + j] = nu * (mp[i] - mm[i]) / (up - down) / self.data.sigma[i];
+            }
+            if rows > pts {
+                jac[pts * n + j] = 0.0;
+            }
+        }
+        if self.fits_norm() {
+            let j = self.n_shape();
+            for i in 0..pts {
+                jac[i * n + j] = m[i] / self.data.sigma[i];
+            }
+            if let Normalisation::Prior(w) = self.norm {
+                jac[pts * n + j] = 1.0 / w;
+            }
+        }
+        jac.iter().all(|x| x.is_finite())
+    }
+
+    /// External parameters (shape, ν) from the internal vector.
+    fn to_external(&self, q: &[f64]) -> (Vec<f64>, f64) {
+        let p: Vec<f64> = self.params.iter().zip(q).map(|(par, q)| external(par, *q)).collect();
+        let nu = if self.fits_norm() { q[self.n_shape()] } else { 1.0 };
+        (p, nu)
+    }
+}
+
+impl<S: Shape> Residuals for Chi2<'_, S> {
+    fn len(&self) -> usize {
+        self.rows()
+    }
+    fn eval(&self, q: &[f64], r: &mut [f64], jac: &mut [f64]) -> bool {
+        self.residuals(q, r) && self.jacobian(q, r, jac)
+    }
+    fn residuals(&self, q: &[f64], r: &mut [f64]) -> bool {
+        let (p, nu) = self.to_external(q);
+        let mut m = vec![0.0; self.data.y.len()];
+        self.residuals_ext(&p, nu, &mut m, r)
+    }
+    fn jacobian(&self, q: &[f64], r: &[f64], jac: &mut [f64]) -> bool {
+        let (p, nu) = self.to_external(q);
+        // The model values at q follow from the residuals: m_i = (σ_i r_i + y_i)/ν, except
+        // at ν = 0 where they are recomputed.
+        let pts = self.data.y.len();
+        let m: Vec<f64> = if nu == 0.0 {
+            let mut m = vec![0.0; pts];
+            if self.shape.values(&p, &mut m).is_err() {
+                return false;
+            }
+            m
+        } else {
+            (0..pts).map(|i| (self.data.sigma[i] * r[i] + self.data.y[i]) / nu).collect()
+        };
+        if !self.jacobian_ext(&p, nu, &m, false, jac) {
+            return false;
+        }
+        // Chain rule to the internal variables.
+        let n = q.len();
+        for (j, par) in self.params.iter().enumerate() {
+            let s = slope(par, q[j]);
+            (0..self.rows()).for_each(|i| jac[i * n + j] *= s);
+        }
+        true
+    }
+}
+
+/// Fit `shape` to `data` from the parameters' start values (ν starts at 1).
+///
+/// # Errors
+/// Starts outside bounds, too few points, a model that fails at the start.
+pub fn fit<S: Shape>(
+    shape: &S,
+    params: &[Parameter],
+    data: &Measured,
+    norm: Normalisation,
+    opts: &FitOptions,
+) -> Result<Minimum, FitError> {
+    params.iter().try_for_each(transform_check)?;
+    let problem = Chi2 { shape, params, data, norm };
+    let free = params.len() + usize::from(problem.fits_norm());
+    let priors = problem.rows() - data.y.len();
+    if free > problem.rows() {
+        return Err(FitError::TooFewPoints { free, points: data.y.len(), priors });
+    }
+    let mut m = vec![0.0; data.y.len()];
+    let start: Vec<f64> = params.iter().map(|p| p.start).collect();
+    shape.values(&start, &mut m).map_err(FitError::StartFails)?;
+    let mut q0: Vec<f64> = params.iter().map(|p| internal(p, p.start)).collect();
+    if problem.fits_norm() {
+        q0.push(1.0);
+    }
+    let (result, mut evaluations, iterations, termination) = if q0.is_empty() {
+        (q0.clone(), 1, 0, Termination::ZeroResiduals)
+    } else {
+        let lm = LmOptions {
+            max_iterations: opts.max_iterations,
+            ftol: opts.ftol,
+            xtol: opts.xtol,
+            gtol: 1e-10,
+            initial_step_bound: None,
+        };
+        let r = minimise(&problem, &q0, &lm);
+        let evals = r.evaluations * (1 + params.len());
+        (r.params, evals, r.iterations, r.termination)
+    };
+    let (p, nu) = problem.to_external(&result);
+    let mut r = vec![0.0; problem.rows()];
+    if !problem.residuals_ext(&p, nu, &mut m, &mut r) {
+        return Err(FitError::StartFails("the model failed at the end point".into()));
+    }
+    let chi2: f64 = r.iter().map(|x| x * x).sum();
+    // Covariance in the external parameters, from central differences.
+    let n = free;
+    let mut jac = vec![0.0; problem.rows() * n];
+    let covariance = if n > 0 && problem.jacobian_ext(&p, nu, &m, true, &mut jac) {
+        evaluations += 2 * params.len();
+        inverse_normal_matrix(&jac, problem.rows(), n)
+    } else {
+        None
+    };
+    let mut estimates: Vec<Estimate> = params
+        .iter()
+        .zip(&p)
+        .map(|(par, v)| {
+            let range = match (par.min, par.max) {
+                (Some(a), Some(b)) => b - a,
+                _ => v.abs().max(1.0),
+            };
+            let near = |b: Option<f64>| b.is_some_and(|b| (v - b).abs() <= 1e-6 * range);
+            Estimate {
+                name: par.name.clone(),
+                value: *v,
+                error: None,
+                start: par.start,
+                min: par.min,
+                max: par.max,
+                at_bound: near(par.min) || near(par.max),
+            }
+        })
+        .collect();
+    if problem.fits_norm() {
+        estimates.push(Estimate {
+            name: NORMALISATION.into(),
+            value: nu,
+            error: None,
+            start: 1.0,
+            min: None,
+            max: None,
+            at_bound: false,
+        });
+    }
+    if let Some(c) = &covariance {
+        for (j, e) in estimates.iter_mut().enumerate() {
+            e.error = (!e.at_bound && c[j * n + j] > 0.0).then(|| c[j * n + j].sqrt());
+        }
+    }
+    let ndf = problem.rows() - free;
+    let p_value = (ndf > 0).then(|| ChiSquared::new(ndf as f64).map(|d| d.sf(chi2)).ok()).flatten();
+    Ok(Minimum { estimates, covariance, chi2, ndf, p_value, termination, iterations, evaluations, model: m })
+}
+
+/// Fit from several starts (each a full set of shape start values) and keep every distinct
+/// converged minimum, ranked by χ²; two minima are the same when every parameter agrees
+/// within a tenth of its error (or 1e-6 relative where it has none). Non-converged starts
+/// are returned after the minima, so nothing is hidden.
+///
+/// # Errors
+/// As [`fit`], for the first start that cannot begin.
+pub fn fit_starts<S: Shape>(
+    shape: &S,
+    params: &[Parameter],
+    starts: &[Vec<f64>],
+    data: &Measured,
+    norm: Normalisation,
+    opts: &FitOptions,
+) -> Result<Vec<Minimum>, FitError> {
+    let mut minima: Vec<Minimum> = Vec::new();
+    let mut failed = Vec::new();
+    for s in starts {
+        let ps: Vec<Parameter> = params.iter().zip(s).map(|(p, v)| Parameter { start: *v, ..p.clone() }).collect();
+        let m = fit(shape, &ps, data, norm, opts)?;
+        if !m.converged() {
+            failed.push(m);
+            continue;
+        }
+        let same = |a: &Minimum| {
+            a.estimates.iter().zip(&m.estimates).all(|(x, y)| {
+                let tol = match (x.error, y.error) {
+                    (Some(e1), Some(e2)) => 0.1 * e1.max(e2),
+                    _ => 1e-6 * x.value.abs().max(1e-12),
+                };
+                (x.value - y.value).abs() <= tol
+            })
+        };
+        match minima.iter().position(same) {
+            Some(i) if minima[i].chi2 <= m.chi2 => {}
+            Some(i) => minima[i] = m,
+            None => minima.push(m),
+        }
+    }
+    minima.sort_by(|a, b| a.chi2.total_cmp(&b.chi2));
+    minima.extend(failed);
+    Ok(minima)
+}
+
+/// A profile-likelihood interval: where χ² minimised over the other parameters rises by 1
+/// above the minimum (a 68.3 % interval for one parameter; common practice).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Profile {
+    /// Parameter.
+    pub name: String,
+    /// Lower end, if found inside the bounds.
+    pub lower: Option<f64>,
+    /// Upper end, if found inside the bounds.
+    pub upper: Option<f64>,
+}
+
+/// A shape with one parameter held at a value: the others are its parameters.
+struct Held<'a, S: Shape> {
+    inner: &'a S,
+    index: usize,
+    value: f64,
+    full: RefCell<Vec<f64>>,
+}
+
+impl<S: Shape> Shape for Held<'_, S> {
+    fn points(&self) -> usize {
+        self.inner.points()
+    }
+    fn values(&self, p: &[f64], out: &mut [f64]) -> Result<(), String> {
+        let mut full = self.full.borrow_mut();
+        let (before, after) = p.split_at(self.index);
+        full[..self.index].copy_from_slice(before);
+        full[self.index] = self.value;
+        full[self.index + 1..].copy_from_slice(after);
+        self.inner.values(&full, out)
+    }
+}
+
+/// Profile interval of shape parameter `index` around `best` (its error sets the first
+/// step): on each side, the profile χ² is bracketed by doubling steps and the crossing
+/// of χ²_min + 1 found by bisection to 1e-3 of the error.
+///
+/// # Errors
+/// As [`fit`].
+pub fn profile<S: Shape>(
+    shape: &S,
+    params: &[Parameter],
+    data: &Measured,
+    norm: Normalisation,
+    opts: &FitOptions,
+    best: &Minimum,
+    index: usize,
+) -> Result<Profile, FitError> {
+    let at: Vec<Parameter> = params
+        .iter()
+        .zip(&best.estimates)
+        .map(|(p, e)| Parameter {
+            start: e.value.clamp(p.min.unwrap_or(f64::MIN), p.max.unwrap_or(f64::MAX)),
+            ..p.clone()
+        })
+        .collect();
+    let centre = best.estimates[index].value;
+    let step0 = best.estimates[index].error.unwrap_or(1e-2 * centre.abs().max(1e-3));
+    let target = best.chi2 + 1.0;
+    let mut others = at.clone();
+    others.remove(index);
+    let chi2_at = |x: f64| -> Result<f64, FitError> {
+        let held = Held { inner: shape, index, value: x, full: RefCell::new(vec![0.0; params.len()]) };
+        Ok(fit(&held, &others, data, norm, opts)?.chi2)
+    };
+    let side = |dir: f64| -> Result<Option<f64>, FitError> {
+        let bound = if dir > 0.0 { params[index].max } else { params[index].min };
+        let (mut inside, mut step) = (centre, step0);
+        for _ in 0..20 {
+            let mut x = centre + dir * step;
+            if let Some(b) = bound {
+                if (x - b) * dir >= 0.0 {
+                    x = b;
+                }
+            }
+            if chi2_at(x)? >= target {
+                let (mut lo, mut hi) = (inside, x);
+                while (hi - lo).abs() > 1e-3 * step0 {
+                    let mid = 0.5 * (lo + hi);
+                    if chi2_at(mid)? >= target {
+                        hi = mid;
+                    } else {
+                        lo = mid;
+                    }
+                }
+                return Ok(Some(0.5 * (lo + hi)));
+            }
+            if bound.is_some_and(|b| (x - b).abs() <= 0.0) {
+                return Ok(None);
+            }
+            inside = x;
+            step *= 2.0;
+        }
+        Ok(None)
+    };
+    Ok(Profile { name: params[index].name.clone(), lower: side(-1.0)?, upper: side(1.0)? })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use approx::assert_relative_eq;
+
+    /// y = a·exp(−b x) at fixed x.
+    struct Decay(Vec<f64>);
+    impl Shape for Decay {
+        fn points(&self) -> usize {
+            self.0.len()
+        }
+        fn values(&self, p: &[f64], out: &mut [f64]) -> Result<(), String> {
+            for (o, x) in out.iter_mut().zip(&self.0) {
+                *o = p[0] * (-p[1] * x).exp();
+            }
+            Ok(())
+        }
+    }
+
+    fn par(name: &str, start: f64, min: Option<f64>, max: Option<f64>) -> Parameter {
+        Parameter { name: name.into(), start, min, max }
+    }
+
+    #[test]
+    fn transforms_invert() {
+        for p in [par("a", 0.0, Some(-1.0), Some(3.0)), par("b", 0.0, Some(2.0), None), par("c", 0.0, None, Some(-2.0))]
+        {
+            for x in [-1.5f64, 0.1, 2.5, 2.9].iter().map(|x| x.clamp(p.min.unwrap_or(-9.0), p.max.unwrap_or(9.0))) {
+                assert_relative_eq!(external(&p, internal(&p, x)), x, max_relative = 1e-12, epsilon = 1e-12);
+            }
+        }
+    }
+
+    #[test]
+    fn exact_data_is_recovered_with_and_without_bounds() {
+        let x: Vec<f64> = (0..12).map(|i| f64::from(i) * 0.5).collect();
+        let y: Vec<f64> = x.iter().map(|x| 7.0 * (-0.4 * x).exp()).collect();
+        let data = Measured { sigma: y.iter().map(|y| 0.02 * y).collect(), y };
+        for bounds in [(None, None), (Some(0.1), Some(2.0))] {
+            let ps = [par("a", 3.0, None, None), par("b", 1.0, bounds.0, bounds.1)];
+            let m = fit(&Decay(x.clone()), &ps, &data, Normalisation::Fixed, &FitOptions::default()).expect("fits");
+            assert!(m.converged(), "{:?}", m.termination);
+            assert_relative_eq!(m.estimates[0].value, 7.0, max_relative = 1e-8);
+            assert_relative_eq!(m.estimates[1].value, 0.4, max_relative = 1e-8);
+            assert!(m.chi2 < 1e-12);
+            assert_eq!(m.ndf, 10);
+        }
+    }
+
+    #[test]
+    fn the_normalisation_prior_pulls_a_free_scale_to_its_measured_value() {
+        // y = 1.1 × model exactly; a prior of 5 % on ν. With a = 7 and b = 0.4 held the data want ν = 1.1: the compromise minimises
+        // Σ((ν − 1.1) m_i/σ_i)² + ((ν − 1)/0.05)², solved by hand for equal σ_i/m_i = 0.02:
+        // ν = (12·1.1/0.02² + 1/0.05²)/(12/0.02² + 1/0.05²) .
+        let x: Vec<f64> = (0..12).map(|i| f64::from(i) * 0.5).collect();
+        let y: Vec<f64> = x.iter().map(|x| 1.1 * 7.0 * (-0.4 * x).exp()).collect();
+        let data = Measured { sigma: y.iter().map(|y| 0.02 * y / 1.1).collect(), y };
+        let (shape, inner) = (Decay(x), [Parameter { name: "b".into(), start: 0.4, min: None, max: None }]);
+        let held = Held { inner: &shape, index: 0, value: 7.0, full: RefCell::new(vec![0.0; 2]) };
+        // Hold b as well: only ν is fitted.
+        let only_nu = Held { inner: &held, index: 0, value: inner[0].start, full: RefCell::new(vec![0.0; 1]) };
+        let m = fit(&only_nu, &[], &data, Normalisation::Prior(0.05), &FitOptions::default()).expect("fits");
+        assert_eq!(m.estimates.len(), 1);
+        let want = (12.0 * 1.1 / 4e-4 + 1.0 / 0.0025) / (12.0 / 4e-4 + 1.0 / 0.0025);
+        assert_relative_eq!(m.normalisation(), want, max_relative = 1e-6);
+    }
+
+    #[test]
+    fn bad_starts_and_too_few_points_are_errors() {
+        let data = Measured { y: vec![1.0, 2.0], sigma: vec![0.1, 0.1] };
+        let shape = Decay(vec![0.0, 1.0]);
+        let outside = [par("a", 5.0, Some(0.0), Some(1.0)), par("b", 0.1, None, None)];
+        assert!(matches!(
+            fit(&shape, &outside, &data, Normalisation::Fixed, &FitOptions::default()),
+            Err(FitError::StartOutsideBounds { .. })
+        ));
+        let ok = [par("a", 0.5, None, None), par("b", 0.1, None, None)];
+        assert!(matches!(
+            fit(&shape, &ok, &data, Normalisation::Free, &FitOptions::default()),
+            Err(FitError::TooFewPoints { free: 3, points: 2, .. })
+        ));
+    }
+}
