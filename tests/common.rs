@@ -35,11 +35,13 @@ pub fn demo_copy() -> tempfile::TempDir {
     let tmp = tempfile::tempdir().expect("a scratch folder");
     let src = demo_dir();
     std::fs::copy(src.join("experiment.yaml"), tmp.path().join("experiment.yaml")).expect("copy config");
-    std::fs::create_dir(tmp.path().join("runs")).expect("runs folder");
-    for entry in std::fs::read_dir(src.join("runs")).expect("demo runs") {
-        let path = entry.expect("entry").path();
-        std::fs::copy(&path, tmp.path().join("runs").join(path.file_name().expect("file name")))
-            .expect("copy run file");
+    for folder in ["runs", "fits"] {
+        std::fs::create_dir(tmp.path().join(folder)).expect("folder");
+        for entry in std::fs::read_dir(src.join(folder)).expect("demo folder") {
+            let path = entry.expect("entry").path();
+            std::fs::copy(&path, tmp.path().join(folder).join(path.file_name().expect("file name")))
+                .expect("copy demo file");
+        }
     }
     tmp
 }

@@ -39,6 +39,17 @@ pub enum TableFormat {
     Csv,
 }
 
+/// How a fit report is printed.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum ReportFormat {
+    /// Lines for a person.
+    Text,
+    /// JSON.
+    Json,
+    /// YAML.
+    Yaml,
+}
+
 /// The detected particle, on the command line.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
 pub enum DetectArg {
@@ -119,6 +130,27 @@ pub enum Command {
         /// Output format.
         #[arg(long, value_enum, default_value_t = TableFormat::Table)]
         format: TableFormat,
+    },
+    /// Fit a model to the reduced angular distribution of one state: Rutherford with a
+    /// free normalisation, a Legendre series, a theory curve with a free scale, or the
+    /// optical model with free potential parameters (`xsflow schema fit` shows the fit
+    /// file). Writes fit.yaml, fit.json, curve.csv and curve.parquet into --out. Exit 0 when
+    /// the fit converged, 1 when it did not (the report says why), 2 for bad input.
+    Fit {
+        /// The reduced data: a cross_sections table (Parquet or CSV), or a `reduce` output
+        /// folder (all its runs).
+        data: PathBuf,
+        /// The fit file (YAML).
+        model: PathBuf,
+        /// The state to fit; needed when the data hold several.
+        #[arg(long)]
+        state: Option<String>,
+        /// Output folder; default `fit` beside the fit file.
+        #[arg(long)]
+        out: Option<PathBuf>,
+        /// How the report is printed.
+        #[arg(long, value_enum, default_value_t = ReportFormat::Text)]
+        format: ReportFormat,
     },
     /// Print a JSON Schema: the config (default), a run record, or a table.
     Schema {

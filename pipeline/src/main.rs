@@ -8,11 +8,11 @@ use clap::Parser;
 use stages::physics::kinematics::Mode;
 use stages::setup::DetectConfig;
 use tracing_subscriber::EnvFilter;
-use xsflow::cli::{Cli, Command, DetectArg, Format, TableFormat};
+use xsflow::cli::{Cli, Command, DetectArg, Format, ReportFormat, TableFormat};
 use xsflow::error::{report, Diagnostic, RunFailure};
 use xsflow::plan::plan;
 use xsflow::run::{check_runs, reduce_all};
-use xsflow::{kinematics, theory};
+use xsflow::{fit, kinematics, theory};
 
 fn main() -> ExitCode {
     let cli = match Cli::try_parse() {
@@ -53,6 +53,9 @@ fn main() -> ExitCode {
             kinematics_table(&request, &angles, format)
         }
         Command::Theory { model, angles, format } => theory_curve(&model, &angles, format),
+        Command::Fit { data, model, state, out, format } => {
+            fit_command(&data, &model, state.as_deref(), out.as_deref(), format)
+        }
         Command::Schema { name } => match xsflow::schema::schema_json(&name) {
             Some(s) => {
                 print!("{s}");
@@ -133,12 +136,21 @@ fn reduce(config: &Path, out: Option<&Path>, runs: &[String], format: Format) ->
     match format {
         Format::Json => println!(
             "{}",
-            serde_json::json!({ "ok": summary.ok, "failed": summary.failed, "out": out_dir, "failures": failures })
+            serde_json::json!({
+                "ok": summary.ok, "failed": summary.failed,
+                "fits_ok": summary.fits_ok, "fits_failed": summary.fits_failed,
+                "out": out_dir, "failures": failures
+            })
         ),
         Format::Text => print_problems(format, &[], &failures),
     }
-    eprintln!("{} run(s) reduced, {} failed; outputs in {}", summary.ok, summary.failed, out_dir.display());
-    u8::from(summary.failed > 0)
+    let fits = if p.fits.is_empty() {
+        String::new()
+    } else {
+        format!("; {} fit(s) converged, {} failed", summary.fits_ok, summary.fits_failed)
+    };
+    eprintln!("{} run(s) reduced, {} failed{fits}; outputs in {}", summary.ok, summary.failed, out_dir.display());
+    u8::from(summary.failed + summary.fits_failed > 0)
 }
 
 fn kinematics_table(request: &kinematics::Request<'_>, angles: &str, format: TableFormat) -> u8 {
@@ -181,5 +193,58 @@ fn theory_curve(model: &Path, angles: &str, format: TableFormat) -> u8 {
             report(&diags);
             2
         }
+    }
+}
+
+fn fit_command(data: &Path, model: &Path, state: Option<&str>, out: Option<&Path>, format: ReportFormat) -> u8 {
+    let loaded = match fit::load(model) {
+        Ok(l) => l,
+        Err(diags) => {
+            report(&diags);
+            return 2;
+        }
+    };
+    let (table, files) = match fit::read_data(data) {
+        Ok(t) => t,
+        Err(d) => {
+            report(&[d]);
+            return 2;
+        }
+    };
+    let state = match fit::choose_state(&table, state) {
+        Ok(s) => s,
+        Err(m) => {
+            report(&[Diagnostic::new(data, "state", m)]);
+            return 2;
+        }
+    };
+    let mut output = match fit::run(&loaded, &table, &state) {
+        Ok(o) => o,
+        Err(m) => {
+            report(&[Diagnostic::new(model, "", m)]);
+            return 2;
+        }
+    };
+    let out_dir = out.map_or_else(|| model.parent().unwrap_or(Path::new(".")).join("fit"), Path::to_path_buf);
+    let record = fit::provenance_json(&loaded, &files, Path::new("."));
+    if let Err(d) = fit::write(&out_dir, &mut output, &record) {
+        report(&[d]);
+        return 2;
+    }
+    match format {
+        ReportFormat::Text => print!("{}", fit::render_text(&output.report)),
+        ReportFormat::Json => println!("{}", serde_json::to_string_pretty(&output.report).unwrap_or_default()),
+        ReportFormat::Yaml => print!("{}", serde_yaml::to_string(&output.report).unwrap_or_default()),
+    }
+    if output.report.converged {
+        eprintln!("fit converged; outputs in {}", out_dir.display());
+        0
+    } else {
+        eprintln!(
+            "fit did NOT converge ({}); outputs in {} are the last state, not a result",
+            output.report.termination,
+            out_dir.display()
+        );
+        1
     }
 }

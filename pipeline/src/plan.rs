@@ -21,6 +21,18 @@ pub struct PlannedStage {
     pub stage: Box<dyn Stage>,
 }
 
+/// A `fit` entry ready to run after every run.
+pub struct PlannedFit {
+    /// `stages[i]` key path.
+    pub key: String,
+    /// Output folder name under `fits/`.
+    pub name: String,
+    /// The state fitted.
+    pub state: String,
+    /// The fit file, loaded and built.
+    pub loaded: crate::fit::LoadedFit,
+}
+
 /// A run record that parsed and passed its checks.
 #[derive(Debug, Clone)]
 pub struct LoadedRun {
@@ -67,8 +79,10 @@ pub struct Plan {
     pub experiment: ExperimentInfo,
     /// Reaction, target, detectors.
     pub setup: Setup,
-    /// Stages in order.
+    /// Per-run stages in order.
     pub stages: Vec<PlannedStage>,
+    /// Fits run once every run is reduced.
+    pub fits: Vec<PlannedFit>,
     /// Runs in record-path order.
     pub runs: Vec<PlannedRun>,
 }
@@ -104,9 +118,28 @@ pub fn plan(config_path: &Path) -> Result<Plan, Vec<Diagnostic>> {
         }
     };
     let mut stages = Vec::new();
+    let mut fits = Vec::new();
     if let Some(configs) = &config.stages {
         for (i, sc) in configs.iter().enumerate() {
             let key = format!("stages[{i}]");
+            if let Some(f) = sc.as_fit() {
+                match plan_fit(&config_dir, &key, f, setup.as_ref()) {
+                    Ok(pf) => fits.push(pf),
+                    Err(problems) => diags.extend(problems.into_iter().map(|p| match p {
+                        FitProblem::Config(p) => file.problem(&p),
+                        FitProblem::File(d) => d,
+                    })),
+                }
+                continue;
+            }
+            if !fits.is_empty() {
+                diags.push(file.problem(&Problem::new(
+                    format!("{key}.type"),
+                    sc.type_name(),
+                    "per-run stages before every `fit` entry (fits run once all runs are reduced)",
+                )));
+                continue;
+            }
             match sc.build(setup.as_ref()) {
                 Ok(stage) => stages.push(PlannedStage { key, stage }),
                 Err(problems) => diags.extend(
@@ -117,8 +150,18 @@ pub fn plan(config_path: &Path) -> Result<Plan, Vec<Diagnostic>> {
                 ),
             }
         }
-        if stages.len() == configs.len() {
+        if stages.len() + fits.len() == configs.len() {
             diags.extend(locate(trace_columns(&stages)));
+            if let Some(f) = fits.first() {
+                let available: Vec<&str> = stages.iter().flat_map(|s| s.stage.adds()).chain(REQUIRED_COLUMNS).collect();
+                for need in stages::fit::FIT_COLUMNS.iter().filter(|n| !available.contains(n)) {
+                    diags.push(file.problem(&Problem::new(
+                        format!("{}.type", f.key),
+                        "fit",
+                        format!("column `{need}` added by an earlier stage (a fit needs the CM cross sections: transform_to_cm)"),
+                    )));
+                }
+            }
         }
         if configs.is_empty() {
             diags.push(file.problem(&Problem::new("stages", "an empty list", "at least one stage")));
@@ -142,6 +185,7 @@ pub fn plan(config_path: &Path) -> Result<Plan, Vec<Diagnostic>> {
                 experiment,
                 setup,
                 stages,
+                fits,
                 runs,
             };
             plan.check_unique_runs().map(|()| plan)
@@ -150,6 +194,63 @@ pub fn plan(config_path: &Path) -> Result<Plan, Vec<Diagnostic>> {
             diags.sort_by_key(|d| (d.line.unwrap_or(usize::MAX), d.column.unwrap_or(0)));
             Err(diags)
         }
+    }
+}
+
+/// A problem of a `fit` entry: in the config, or in the fit file it names.
+enum FitProblem {
+    Config(Problem),
+    File(Diagnostic),
+}
+
+/// Load the fit file of a `fit` entry and check its state against the reaction.
+fn plan_fit(
+    config_dir: &Path,
+    key: &str,
+    f: &stages::fit::FitStageConfig,
+    setup: Option<&Setup>,
+) -> Result<PlannedFit, Vec<FitProblem>> {
+    let mut problems = Vec::new();
+    if let Some(setup) = setup {
+        let states: Vec<&str> = setup.reaction.states.iter().map(|s| s.name.as_str()).collect();
+        if !states.contains(&f.state.as_str()) {
+            problems.push(FitProblem::Config(Problem::new(
+                format!("{key}.state"),
+                &f.state,
+                format!("a state of the reaction ({})", states.join(", ")),
+            )));
+        }
+    }
+    if let Some(n) = &f.name {
+        if !safe_id(n) {
+            problems.push(FitProblem::Config(Problem::new(
+                format!("{key}.name"),
+                n,
+                "a name of letters, digits, '-', '_' and '.' (it names the output folder)",
+            )));
+        }
+    }
+    let path = config_dir.join(&f.model_file);
+    let loaded = if path.is_file() {
+        crate::fit::load(&path).map_err(|ds| problems.extend(ds.into_iter().map(FitProblem::File))).ok()
+    } else {
+        problems.push(FitProblem::Config(Problem::new(
+            format!("{key}.model_file"),
+            &f.model_file,
+            format!("an existing fit file (not found: {})", path.display()),
+        )));
+        None
+    };
+    match loaded {
+        Some(loaded) if problems.is_empty() => {
+            let name = f.name.clone().unwrap_or_else(|| {
+                let state: String =
+                    f.state.chars().map(|c| if c.is_ascii_alphanumeric() || c == '-' { c } else { '_' }).collect();
+                format!("{state}_{}", loaded.model)
+            });
+            Ok(PlannedFit { key: key.to_string(), name, state: f.state.clone(), loaded })
+        }
+        _ => Err(problems),
     }
 }
 

@@ -136,18 +136,30 @@ pub struct Summary {
     pub ok: usize,
     /// Runs that failed.
     pub failed: usize,
+    /// Fits that converged.
+    pub fits_ok: usize,
+    /// Fits that failed or did not converge.
+    pub fits_failed: usize,
 }
+
+/// Folder of the fits inside the output folder.
+pub const FITS_DIR: &str = "fits";
 
 /// Reduce every run of the plan into `out_dir`; failures are returned, not fatal.
 pub fn reduce_all(plan: &Plan, out_dir: &Path) -> (Summary, Vec<RunFailure>) {
     let mut summary = Summary::default();
     let mut failures = Vec::new();
+    let mut tables = Vec::new();
     for planned in &plan.runs {
         let label = planned.label();
         let _span = info_span!("run", run = %label).entered();
         let result = planned.loaded.as_ref().map_err(Clone::clone).and_then(|run| {
             let mut reduced = reduce_run(plan, run)?;
-            write_outputs(out_dir, &mut reduced).map_err(|d| vec![d])
+            let files = write_outputs(out_dir, &mut reduced).map_err(|d| vec![d])?;
+            if !plan.fits.is_empty() {
+                tables.push((reduced.table, reduced.provenance));
+            }
+            Ok(files)
         });
         match result {
             Ok(files) => {
@@ -161,7 +173,63 @@ pub fn reduce_all(plan: &Plan, out_dir: &Path) -> (Summary, Vec<RunFailure>) {
             }
         }
     }
+    for f in &plan.fits {
+        let _span = info_span!("fit", fit = %f.name).entered();
+        match run_fit(plan, f, &tables, out_dir) {
+            Ok(true) => summary.fits_ok += 1,
+            Ok(false) => {
+                summary.fits_failed += 1;
+                failures.push(RunFailure {
+                    run: format!("fit {}", f.name),
+                    problems: vec![Diagnostic::new(
+                        &f.loaded.path,
+                        "",
+                        "the fit did not converge; fit.yaml holds its last state and the reason",
+                    )],
+                });
+            }
+            Err(d) => {
+                summary.fits_failed += 1;
+                warn!("fit failed");
+                failures.push(RunFailure { run: format!("fit {}", f.name), problems: vec![d] });
+            }
+        }
+    }
     (summary, failures)
+}
+
+/// Fit the stacked tables of the reduced runs; `Ok(converged)`.
+fn run_fit(
+    plan: &Plan,
+    f: &crate::plan::PlannedFit,
+    tables: &[(DataFrame, Provenance)],
+    out_dir: &Path,
+) -> Result<bool, Diagnostic> {
+    if tables.is_empty() {
+        return Err(Diagnostic::new(&plan.config_path, &f.key, "no run was reduced, so there is nothing to fit"));
+    }
+    let stacked = crate::fit::stack(tables.iter().map(|(t, _)| t.clone()).collect())
+        .map_err(|m| Diagnostic::new(&plan.config_path, &f.key, m))?;
+    let mut output = crate::fit::run(&f.loaded, &stacked, &f.state)
+        .map_err(|m| Diagnostic::new(&f.loaded.path, "", format!("fit of state {}: {m}", f.state)))?;
+    let record = crate::fit::FitProvenance {
+        program: "xsflow",
+        version: env!("CARGO_PKG_VERSION"),
+        fit_file: f.loaded.path.to_string_lossy().into_owned(),
+        fit_sha256: crate::provenance::sha256_hex(&f.loaded.bytes),
+        inputs: tables.iter().flat_map(|(_, p)| p.inputs.iter().cloned()).collect(),
+        created_utc: rfc3339_utc(record_time_s()),
+    };
+    let json = serde_json::to_string_pretty(&record).unwrap_or_default();
+    let dir = out_dir.join(FITS_DIR).join(&f.name);
+    crate::fit::write(&dir, &mut output, &json)?;
+    let r = &output.report;
+    if r.converged {
+        info!(chi2_per_ndf = r.chi2_per_ndf.unwrap_or(f64::NAN), dir = %dir.display(), "fit done");
+    } else {
+        warn!(termination = %r.termination, "fit did not converge");
+    }
+    Ok(r.converged)
 }
 
 /// Every problem `xsflow check` can find in the runs without reducing them: record problems

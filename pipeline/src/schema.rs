@@ -1,5 +1,5 @@
 //! JSON Schemas generated from the Rust types: the experiment config, the run record, the
-//! yields and cross-section tables, and the theory model file. The committed copies in `schemas/` are checked
+//! yields and cross-section tables, the theory model file and the fit file. The committed copies in `schemas/` are checked
 //! against these by a test.
 
 use schemars::schema_for;
@@ -7,7 +7,7 @@ use schemars::schema_for;
 use crate::config::ExperimentConfig;
 
 /// The schemas by name, each with its file name in `schemas/`.
-pub const NAMES: [&str; 5] = ["config", "run", "yields", "cross_sections", "model"];
+pub const NAMES: [&str; 6] = ["config", "run", "yields", "cross_sections", "model", "fit"];
 
 /// The schema called `name`, pretty JSON with a final newline; `None` for an unknown name.
 pub fn schema_json(name: &str) -> Option<String> {
@@ -17,6 +17,7 @@ pub fn schema_json(name: &str) -> Option<String> {
         "yields" => schema_for!(stages::yields::YieldsRow),
         "cross_sections" => schema_for!(stages::columns::CrossSectionRow),
         "model" => schema_for!(stages::theory::ModelConfig),
+        "fit" => schema_for!(stages::fit::FitModelConfig),
         _ => return None,
     };
     serde_json::to_string_pretty(&schema).ok().map(|s| s + "\n")

@@ -2,10 +2,12 @@
 
 Everything here is invented for the demo: the laboratory ("Lakeside Tandem Hall" does not
 exist), the runs, the detector set-up and the counts. The counts are drawn (fixed seed) from
-an invented angular distribution: the point-Coulomb (Rutherford) cross section, taken to the
-lab with non-relativistic elastic kinematics, times a made-up smooth fall-off with a weak
-diffraction-like wiggle. It is NOT a physics model and must not be compared with measured
-data.
+invented angular distributions taken to the lab with non-relativistic kinematics: for the
+elastic peak, the optical-model curve of xsflow itself for the invented potential of
+theory-optical.yaml (truth-elastic.csv, written by
+`xsflow theory theory-optical.yaml --angles 1:179:0.25 --format csv`), so that a fit of the
+demo can recover that potential; for the inelastic peak, Rutherford times a made-up smooth
+fall-off. Neither is a measurement; they must not be compared with measured data.
 
 Run:  python3 sample-runs/alpha-ni58/generate.py      (needs numpy)
 It rewrites runs/*.run.yaml and runs/*.yields.csv beside this script.
@@ -57,6 +59,10 @@ M_ALPHA_U, M_NI58_U = 4.0026, 57.9353  # rounded atomic masses, enough for inven
 E2_MEV_FM = 1.439964  # e^2/(4 pi eps0) = hbar c alpha (CODATA 2018)
 
 
+# theta_cm_deg, dsdo_cm_mb_sr of the elastic truth (see the module docstring).
+TRUTH = np.loadtxt(HERE / "truth-elastic.csv", delimiter=",", skiprows=1, usecols=(0, 1))
+
+
 def invented_dsdo_mb_sr(theta_lab_deg, state_scale):
     """Invented lab cross section in mb/sr: Rutherford in the CM times a made-up fall-off."""
     x = M_ALPHA_U / M_NI58_U
@@ -66,9 +72,9 @@ def invented_dsdo_mb_sr(theta_lab_deg, state_scale):
     rutherford_cm = 10 * (2 * 28 * E2_MEV_FM / (4 * e_cm)) ** 2 / math.sin(th_cm / 2) ** 4
     jacobian = abs(1 + x * math.cos(th_cm)) / (1 + x * x + 2 * x * math.cos(th_cm)) ** 1.5  # dOmega_lab/dOmega_cm
     deg = math.degrees(th_cm)
-    falloff = 1.0 / (1.0 + math.exp((deg - 48.0) / 7.0)) + 0.03 * (1 + 0.7 * math.cos(math.radians(7 * deg))) * math.exp(-deg / 90)
-    if state_scale < 1.0:
-        falloff = state_scale * (0.3 + 1.0 / (1.0 + math.exp((deg - 60.0) / 10.0)))
+    if state_scale >= 1.0:
+        return float(np.exp(np.interp(deg, TRUTH[:, 0], np.log(TRUTH[:, 1])))) / jacobian
+    falloff = state_scale * (0.3 + 1.0 / (1.0 + math.exp((deg - 60.0) / 10.0)))
     return rutherford_cm * falloff / jacobian
 
 

@@ -830,7 +830,11 @@ impl Fit {
                 shape.numerics = Some(needed);
                 let again: Vec<Parameter> =
                     params.iter().zip(&best).map(|(p, v)| Parameter { start: *v, ..p.clone() }).collect();
+                let original: Vec<f64> = minima[0].estimates.iter().map(|e| e.start).collect();
                 minima[0] = model_fit::fit(&shape, &again, &measured, norm, &self.options)?;
+                for (e, s) in minima[0].estimates.iter_mut().zip(original) {
+                    e.start = s;
+                }
             }
         }
         let best = &minima[0];

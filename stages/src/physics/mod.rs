@@ -17,6 +17,7 @@ pub mod optical;
 pub mod partial_waves;
 pub mod rutherford;
 pub mod solid_angle;
+pub mod synthetic;
 pub mod uncertainty;
 
 /// A formula asked for a value outside the range where it holds.
