@@ -60,40 +60,41 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
 
     let model: ModelConfig = serde_yaml::from_str(NI58)?;
     let angles: Vec<f64> = (0..170).map(|i| 10.0 + 160.0 * f64::from(i) / 169.0).collect();
-    let curve = model.evaluate(&angles).map_err(|p| format!("{p:?}"))?;
-    let mut times = Vec::new();
-    for _ in 0..300 {
-        let t = Instant::now();
-        let c = model.evaluate(&angles).map_err(|p| format!("{p:?}"))?;
-        times.push(t.elapsed().as_secs_f64());
-        assert_eq!(c.rows.len(), 170);
+    // A reference with very fine numerics: accuracy 1e-9 and a quarter of its step.
+    let with = |numerics: String| -> Result<ModelConfig, serde_yaml::Error> {
+        serde_yaml::from_str(&format!("{NI58}numerics: {{ {numerics} }}\n"))
+    };
+    let h0 = with("accuracy: 1.0e-9".into())?.evaluate(&angles).map_err(|p| format!("{p:?}"))?.step_fm.unwrap_or(0.01);
+    let fine =
+        with(format!("accuracy: 1.0e-9, step_fm: {}", h0 / 4.0))?.evaluate(&angles).map_err(|p| format!("{p:?}"))?;
+    for accuracy in ["1.0e-4", "1.0e-6"] {
+        let model = with(format!("accuracy: {accuracy}"))?;
+        let curve = model.evaluate(&angles).map_err(|p| format!("{p:?}"))?;
+        let mut times = Vec::new();
+        for _ in 0..300 {
+            let t = Instant::now();
+            let c = model.evaluate(&angles).map_err(|p| format!("{p:?}"))?;
+            times.push(t.elapsed().as_secs_f64());
+            assert_eq!(c.rows.len(), 170);
+        }
+        let (h, (ra, _)) = (curve.step_fm.unwrap_or(0.0), curve.matching_radii_fm.unwrap_or((0.0, 0.0)));
+        let err = curve
+            .rows
+            .iter()
+            .zip(&fine.rows)
+            .map(|(a, b)| ((a.dsdo_cm_mb_sr - b.dsdo_cm_mb_sr) / b.dsdo_cm_mb_sr).abs())
+            .fold(0.0, f64::max);
+        println!(
+            "optical model 4He+58Ni 24 MeV, 170 angles, accuracy {accuracy}: median {:.3} ms over {} runs \
+             (l_max {}, step {:.5} fm, matching at {:.2} fm); largest relative error against very fine numerics {:.2e}",
+            median(times.clone()) * 1e3,
+            times.len(),
+            curve.l_max,
+            h,
+            ra,
+            err
+        );
     }
-    // Accuracy of the automatic numerics: against a step four times finer, a matching
-    // radius 5 fm further out and 20 more partial waves.
-    let (h, (ra, _)) = (curve.step_fm.unwrap_or(0.0), curve.matching_radii_fm.unwrap_or((0.0, 0.0)));
-    let fine_yaml = format!(
-        "{NI58}numerics: {{ step_fm: {}, matching_radius_fm: {}, l_max: {} }}\n",
-        h / 4.0,
-        ra + 5.0,
-        curve.l_max + 20
-    );
-    let fine: ModelConfig = serde_yaml::from_str(&fine_yaml)?;
-    let fine = fine.evaluate(&angles).map_err(|p| format!("{p:?}"))?;
-    let err = curve
-        .rows
-        .iter()
-        .zip(&fine.rows)
-        .map(|(a, b)| ((a.dsdo_cm_mb_sr - b.dsdo_cm_mb_sr) / b.dsdo_cm_mb_sr).abs())
-        .fold(0.0, f64::max);
-    println!(
-        "optical model 4He+58Ni 24 MeV, 170 angles: median {:.3} ms over {} runs (l_max {}, step {:.5} fm, matching at {:.2} fm); largest relative difference from 4x finer numerics {:.2e}",
-        median(times.clone()) * 1e3,
-        times.len(),
-        curve.l_max,
-        h,
-        ra,
-        err
-    );
 
     // Synthetic data: 60 angles, the true potential of NI58, 3 % errors, fixed seed.
     let theta: Vec<f64> = (0..60).map(|i| 10.0 + 160.0 * f64::from(i) / 59.0).collect();

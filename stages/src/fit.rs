@@ -501,6 +501,10 @@ impl Shape for AtAngles<'_> {
     fn points(&self) -> usize {
         self.theta_rad.len()
     }
+    fn solved_linear(&self) -> bool {
+        // The Legendre start is the exact weighted least-squares solution (legendre_start).
+        matches!(self.model, Model::Legendre { .. })
+    }
     fn values(&self, p: &[f64], out: &mut [f64]) -> Result<(), String> {
         match self.model {
             Model::Rutherford { z1, z2, e_cm_mev } => {
@@ -522,8 +526,8 @@ impl Shape for AtAngles<'_> {
                 let pot = om.potential(p)?;
                 let num = self.numerics.unwrap_or(om.numerics);
                 let sol = optical::solve(&pot, &om.channel, &num).map_err(|e| e.to_string())?;
-                for (o, t) in out.iter_mut().zip(&self.theta_rad) {
-                    *o = sol.waves.dsdo_mb_sr(*t);
+                for (o, (dsdo, _)) in out.iter_mut().zip(sol.waves.curve(&self.theta_rad)) {
+                    *o = dsdo;
                 }
             }
         }
@@ -718,8 +722,7 @@ fn optical_parts(
         RadiusConvention::Target => f64::from(target.a).cbrt(),
         RadiusConvention::Sum => f64::from(beam.a).cbrt() + f64::from(target.a).cbrt(),
     };
-    let numerics =
-        Numerics { step_fm: numerics.step_fm, matching_radius_fm: numerics.matching_radius_fm, l_max: numerics.l_max };
+    let numerics = numerics.to_numerics();
     Ok((
         OpticalModel { potential: potential.clone(), channel, a13, z: (beam.z, target.z), keys, numerics },
         params,
@@ -821,10 +824,10 @@ impl Fit {
         let mut shape = shape;
         if let (Model::Optical(om), Some(used)) = (&self.model, shape.numerics) {
             let best: Vec<f64> = minima[0].estimates.iter().take(params.len()).map(|e| e.value).collect();
-            let needed = fixed_numerics(om, &best)?;
-            if needed.step_fm < used.step_fm.map(|h| 0.999 * h)
-                || needed.matching_radius_fm > used.matching_radius_fm
-                || needed.l_max > used.l_max
+            let (auto, needed) = (auto_numerics(om, &best)?, fixed_numerics(om, &best)?);
+            if auto.step_fm.zip(used.step_fm).is_some_and(|(a, u)| a < u)
+                || auto.matching_radius_fm.zip(used.matching_radius_fm).is_some_and(|(a, u)| a > u)
+                || auto.l_max.zip(used.l_max).is_some_and(|(a, u)| a > u)
             {
                 warnings.push("numerics refined at the minimum and the fit repeated".into());
                 shape.numerics = Some(needed);
@@ -974,12 +977,32 @@ fn legendre_start(theta_deg: &[f64], data: &Measured, order: usize) -> Vec<f64> 
 /// 3 fm further out, 10 more partial waves, the step 0.8 of the automatic one. User overrides
 /// stay as given.
 fn fixed_numerics(om: &OpticalModel, p: &[f64]) -> Result<Numerics, FitFailure> {
-    let pot = om.potential(p).map_err(FitFailure::Data)?;
-    let sol = optical::solve(&pot, &om.channel, &om.numerics).map_err(|e| FitFailure::Data(e.to_string()))?;
+    let auto = auto_numerics(om, p)?;
     Ok(Numerics {
-        step_fm: Some(om.numerics.step_fm.unwrap_or(0.8 * sol.step_fm)),
-        matching_radius_fm: Some(om.numerics.matching_radius_fm.unwrap_or(sol.matching_radii_fm.0 + 3.0)),
-        l_max: Some(om.numerics.l_max.unwrap_or(sol.l_max + 10)),
+        accuracy: auto.accuracy,
+        step_fm: Some(om.numerics.step_fm.unwrap_or(0.8 * auto.step_fm.unwrap_or(0.0))),
+        matching_radius_fm: Some(
+            om.numerics.matching_radius_fm.unwrap_or(auto.matching_radius_fm.unwrap_or(0.0) + 3.0),
+        ),
+        l_max: Some(om.numerics.l_max.unwrap_or(auto.l_max.unwrap_or(0) + 10)),
+    })
+}
+
+/// The accuracy an optical fit aims at unless the fit file says otherwise: 1e-5 relative,
+/// far below the errors of measured cross sections.
+pub const FIT_ACCURACY: f64 = 1e-5;
+
+/// The automatic numerics at `p` (accuracy [`FIT_ACCURACY`] unless set).
+fn auto_numerics(om: &OpticalModel, p: &[f64]) -> Result<Numerics, FitFailure> {
+    let pot = om.potential(p).map_err(FitFailure::Data)?;
+    let accuracy = Some(om.numerics.accuracy.unwrap_or(FIT_ACCURACY));
+    let sol = optical::solve(&pot, &om.channel, &Numerics { accuracy, ..om.numerics })
+        .map_err(|e| FitFailure::Data(e.to_string()))?;
+    Ok(Numerics {
+        accuracy,
+        step_fm: Some(sol.step_fm),
+        matching_radius_fm: Some(sol.matching_radii_fm.0),
+        l_max: Some(sol.l_max),
     })
 }
 

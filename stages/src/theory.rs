@@ -87,9 +87,24 @@ pub struct NumericsConfig {
     /// Inner matching radius in fm; default the nuclear range R + 25a.
     #[serde(default)]
     pub matching_radius_fm: Option<f64>,
-    /// Highest partial wave; default until S_L = 1 to 1e-12.
+    /// Highest partial wave; default until |1 − S_L| < 1e-6 × accuracy.
     #[serde(default)]
     pub l_max: Option<usize>,
+    /// Relative accuracy of dσ/dΩ the automatic numerics aim at (default 1e-6; at most 0.01).
+    #[serde(default)]
+    pub accuracy: Option<f64>,
+}
+
+impl NumericsConfig {
+    /// The solver's form.
+    pub fn to_numerics(&self) -> Numerics {
+        Numerics {
+            step_fm: self.step_fm,
+            matching_radius_fm: self.matching_radius_fm,
+            l_max: self.l_max,
+            accuracy: self.accuracy,
+        }
+    }
 }
 
 /// A theory model file.
@@ -232,6 +247,9 @@ impl ModelConfig {
                 if let Some(r) = numerics.matching_radius_fm {
                     c.positive("numerics.matching_radius_fm", r);
                 }
+                if let Some(a) = numerics.accuracy {
+                    c.require(a > 0.0 && a <= 1e-2, "numerics.accuracy", a, "a relative accuracy in (0, 0.01]");
+                }
                 if !c.problems.is_empty() {
                     return Err(c.problems);
                 }
@@ -250,11 +268,7 @@ impl ModelConfig {
                     imag_surface: ws(potential.imag_surface),
                     coulomb_radius_fm: potential.coulomb.r0_fm * a13,
                 };
-                let num = Numerics {
-                    step_fm: numerics.step_fm,
-                    matching_radius_fm: numerics.matching_radius_fm,
-                    l_max: numerics.l_max,
-                };
+                let num = numerics.to_numerics();
                 let sol = optical::solve(&pot, &ch, &num).map_err(|e| {
                     vec![Problem::new("potential", "these parameters", format!("a solvable potential: {e}"))]
                 })?;
@@ -303,16 +317,11 @@ impl ModelConfig {
     /// As [`ModelConfig::waves`].
     pub fn evaluate(&self, angles_deg: &[f64]) -> Result<Curve, Vec<Problem>> {
         let (waves, used) = self.waves()?;
+        let thetas: Vec<f64> = angles_deg.iter().map(|d| d.to_radians()).collect();
         let rows = angles_deg
             .iter()
-            .map(|d| {
-                let t = d.to_radians();
-                CurveRow {
-                    theta_cm_deg: *d,
-                    dsdo_cm_mb_sr: waves.dsdo_mb_sr(t),
-                    ratio_rutherford: waves.ratio_rutherford(t),
-                }
-            })
+            .zip(waves.curve(&thetas))
+            .map(|(d, (dsdo, ratio))| CurveRow { theta_cm_deg: *d, dsdo_cm_mb_sr: dsdo, ratio_rutherford: ratio })
             .collect();
         let absorptive = matches!(self, ModelConfig::Optical { .. });
         Ok(Curve {

@@ -30,6 +30,8 @@ Files written:
 * ``optical_model_sets.csv`` -- channel, potential, matching radius, L_max and reaction
   cross section of three optical-model parameter sets
 * ``optical_model.csv``      -- elastic dsigma/dOmega (CM) and ratio to Rutherford of those sets
+* ``legendre_fit_data.csv``, ``legendre_fit.csv`` -- invented data and their weighted
+  Legendre fit by numpy.polynomial.legendre.legfit, with coefficient errors
 """
 
 import argparse
@@ -329,6 +331,57 @@ def write_legendre(out_dir):
         modules=LIBRARIES,
     )
     return n, worst
+
+
+# --------------------------------------------------------------------------
+# Legendre fit
+# --------------------------------------------------------------------------
+#
+# A weighted least-squares Legendre series in x = cos(theta_cm) through invented
+# data (a smooth invented angular distribution with 4 % invented errors and
+# fixed-seed Gaussian noise), by numpy.polynomial.legendre.legfit with weights
+# 1/sigma (numpy's w multiplies the residuals), and the coefficient standard
+# errors from (V^T W V)^(-1), V = legvander(x, order), W = diag(1/sigma^2)
+# (common practice for linear least squares).
+
+LEGENDRE_FIT_ORDER = 6
+
+
+def legendre_fit_rows():
+    rng = numpy.random.default_rng(20261202)
+    theta = numpy.arange(12.0, 170.0, 6.0)
+    x = numpy.cos(numpy.radians(theta))
+    truth = 40.0 * numpy.exp(-theta / 45.0) + 3.0 * (1.0 + numpy.cos(numpy.radians(3.0 * theta))) + 1.0
+    sigma = 0.04 * truth
+    y = truth + sigma * rng.standard_normal(theta.size)
+    coef = numpy.polynomial.legendre.legfit(x, y, LEGENDRE_FIT_ORDER, w=1.0 / sigma)
+    v = numpy.polynomial.legendre.legvander(x, LEGENDRE_FIT_ORDER) / sigma[:, None]
+    cov = numpy.linalg.inv(v.T @ v)
+    data = [(float(t), float(a), float(b)) for t, a, b in zip(theta, y, sigma)]
+    fit = [(l, float(coef[l]), float(math.sqrt(cov[l, l]))) for l in range(LEGENDRE_FIT_ORDER + 1)]
+    return data, fit
+
+
+def write_legendre_fit(out_dir):
+    data, fit = legendre_fit_rows()
+    write_csv(
+        out_dir / "legendre_fit_data.csv",
+        ["Invented angular distribution for a Legendre fit: 40 exp(-theta/45) + 3 (1 + cos 3 theta) + 1 mb/sr,",
+         "4 % errors, Gaussian noise from numpy.random.default_rng(20261202). Not a measurement."],
+        ["theta_cm_deg", "dsdo_cm_mb_sr", "err_mb_sr"],
+        data,
+        generator=GENERATOR,
+        modules=LIBRARIES,
+    )
+    return write_csv(
+        out_dir / "legendre_fit.csv",
+        [f"numpy.polynomial.legendre.legfit(cos theta, y, {LEGENDRE_FIT_ORDER}, w=1/sigma) of legendre_fit_data.csv;",
+         "std_err = sqrt(diag((V^T W V)^-1)), V = legvander(cos theta, order), W = diag(1/sigma^2)."],
+        ["l", "coefficient", "std_err"],
+        fit,
+        generator=GENERATOR,
+        modules=LIBRARIES,
+    )
 
 
 # --------------------------------------------------------------------------
@@ -813,6 +866,8 @@ def main(argv=None):
     print(f"wrote {out / 'coulomb_phases.csv'} ({n} rows)")
     n, worst = write_legendre(out)
     print(f"wrote {out / 'legendre.csv'} ({n} rows; scipy deviates by <= {worst:.3g})")
+    n = write_legendre_fit(out)
+    print(f"wrote {out / 'legendre_fit.csv'} ({n} coefficients) and its data")
     n, skipped = write_hard_sphere(out)
     print(f"wrote {out / 'hard_sphere.csv'} ({n} rows; {skipped} skipped)")
     t1 = time.perf_counter()

@@ -27,6 +27,8 @@ pub enum Termination {
     IterationLimit,
     /// The model could not be evaluated at the start.
     ModelFailed,
+    /// A linear problem solved directly (no iterations needed).
+    Linear,
 }
 
 impl Termination {

@@ -39,6 +39,12 @@ pub trait Shape {
     /// # Errors
     /// Parameters where the model cannot be evaluated, with the reason.
     fn values(&self, p: &[f64], out: &mut [f64]) -> Result<(), String>;
+    /// Whether the values are linear in the parameters and the start values already solve
+    /// the linear least-squares problem (then, with a fixed normalisation, no iteration is
+    /// needed).
+    fn solved_linear(&self) -> bool {
+        false
+    }
 }
 
 /// One fitted parameter of a shape.
@@ -388,20 +394,21 @@ pub fn fit<S: Shape>(
     if problem.fits_norm() {
         q0.push(1.0);
     }
-    let (result, mut evaluations, iterations, termination) = if q0.is_empty() {
-        (q0.clone(), 1, 0, Termination::ZeroResiduals)
-    } else {
-        let lm = LmOptions {
-            max_iterations: opts.max_iterations,
-            ftol: opts.ftol,
-            xtol: opts.xtol,
-            gtol: 1e-10,
-            initial_step_bound: None,
+    let (result, mut evaluations, iterations, termination) =
+        if q0.is_empty() || (shape.solved_linear() && norm == Normalisation::Fixed) {
+            (q0.clone(), 1, 0, Termination::Linear)
+        } else {
+            let lm = LmOptions {
+                max_iterations: opts.max_iterations,
+                ftol: opts.ftol,
+                xtol: opts.xtol,
+                gtol: 1e-10,
+                initial_step_bound: None,
+            };
+            let r = minimise(&problem, &q0, &lm);
+            let evals = r.evaluations * (1 + params.len());
+            (r.params, evals, r.iterations, r.termination)
         };
-        let r = minimise(&problem, &q0, &lm);
-        let evals = r.evaluations * (1 + params.len());
-        (r.params, evals, r.iterations, r.termination)
-    };
     let (p, nu) = problem.to_external(&result);
     let mut r = vec![0.0; problem.rows()];
     if !problem.residuals_ext(&p, nu, &mut m, &mut r) {

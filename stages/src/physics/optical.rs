@@ -50,12 +50,12 @@ impl WoodsSaxon {
         4.0 * x / ((1.0 + x) * (1.0 + x))
     }
 
-    /// Radius beyond which the term is below 1e-11 of its depth: R + 25 a (e^{−25} ≈ 1e-11).
-    fn range_fm(&self) -> f64 {
+    /// Radius beyond which the term is below `fraction` of its depth: R + a ln(1/fraction).
+    fn range_fm(&self, fraction: f64) -> f64 {
         if self.depth_mev == 0.0 {
             0.0
         } else {
-            self.radius_fm + 25.0 * self.diffuseness_fm
+            self.radius_fm - fraction.ln() * self.diffuseness_fm
         }
     }
 }
@@ -105,7 +105,13 @@ pub struct Numerics {
     pub matching_radius_fm: Option<f64>,
     /// Highest partial wave.
     pub l_max: Option<usize>,
+    /// Relative accuracy aimed at for dσ/dΩ (default [`DEFAULT_ACCURACY`]); sets the
+    /// automatic step, matching radius and end of the partial-wave sum.
+    pub accuracy: Option<f64>,
 }
+
+/// The accuracy the automatic numerics aim at unless told otherwise.
+pub const DEFAULT_ACCURACY: f64 = 1e-6;
 
 /// What the solver used, and what it found.
 #[derive(Debug, Clone, PartialEq)]
@@ -140,8 +146,9 @@ pub enum OpticalError {
 
 /// Partial waves up to this many are the most the solver sums.
 const L_CAP: usize = 2000;
-/// |1 − S_L| below this for three L in a row (beyond the grazing wave) ends the sum.
-const S_CONVERGED: f64 = 1e-12;
+/// |1 − S_L| below this fraction of the accuracy for three L in a row (beyond the grazing
+/// wave) ends the sum.
+const S_CONVERGED_PER_ACCURACY: f64 = 1e-6;
 
 fn check(what: &'static str, value: f64, ok: bool, expected: &'static str) -> Result<(), OpticalError> {
     if ok && value.is_finite() {
@@ -153,10 +160,13 @@ fn check(what: &'static str, value: f64, ok: bool, expected: &'static str) -> Re
 
 /// Solve the optical model: S_L for every partial wave that scatters.
 ///
-/// Automatic numerics: the inner matching radius is the largest R + 25a of the nuclear
-/// terms (and at least R_C + 1 fm); the outer one lies a quarter wavelength further; the step
-/// is 0.04 over the largest local wave number √(k² + 2μ(|V| + |W| + |W_D| + V_C(0))/(ħc)²);
-/// L runs until |1 − S_L| < 1e-12 for three waves in a row past k r_a.
+/// Automatic numerics for a relative accuracy ε of dσ/dΩ (default 1e-6): the inner matching
+/// radius is the largest R + a ln(1e5/ε) of the nuclear terms (each term below 1e-5 ε of its
+/// depth there; at least R_C + 1 fm); the outer one lies a quarter wavelength further; the
+/// step is 2.5 ε^{1/4} (at most 0.35) over the largest local wave number
+/// √(k² + 2μ(|V| + |W| + |W_D| + V_C(0))/(ħc)²), since Numerov's global error falls as h⁴
+/// (the constant 2.5 measured here: ε = 1e-6 gives 1e-6 against four times finer
+/// numerics); L runs until |1 − S_L| < 1e-6 ε for three waves in a row past k r_a.
 ///
 /// # Errors
 /// Radii, diffusenesses, masses or energy out of range; Coulomb functions that fail at the
@@ -165,6 +175,58 @@ pub fn solve(
     pot: &OpticalPotential,
     ch: &ElasticChannel,
     numerics: &Numerics,
+) -> Result<OpticalSolution, OpticalError> {
+    solve_recording(pot, ch, numerics, None)
+}
+
+/// One partial wave on the grid: r_n = n h and u_L(r_n), normalised so that outside the
+/// nuclear potential u_L = H⁻_L(kr) − S_L H⁺_L(kr).
+#[derive(Debug, Clone, PartialEq)]
+pub struct RadialWave {
+    /// Step, fm.
+    pub step_fm: f64,
+    /// u_L at r = 0, h, 2h, … up to the outer matching radius.
+    pub u: Vec<Complex64>,
+    /// S_L.
+    pub s: Complex64,
+    /// The imaginary potential W f + W_D (−4a df/dr) in MeV on the same grid (positive:
+    /// absorptive), for flux integrals.
+    pub absorption_mev: Vec<f64>,
+}
+
+/// The radial wave function of partial wave `l`, with the numerics `solve` would choose.
+///
+/// # Errors
+/// As [`solve`].
+pub fn radial_wave(
+    pot: &OpticalPotential,
+    ch: &ElasticChannel,
+    numerics: &Numerics,
+    l: usize,
+) -> Result<RadialWave, OpticalError> {
+    let mut record = Some((l, Vec::new(), Complex64::new(0.0, 0.0)));
+    let sol = solve_recording(pot, ch, &Numerics { l_max: Some(l), ..*numerics }, Some(&mut record))?;
+    let (_, u, norm) = record.unwrap_or((l, Vec::new(), Complex64::new(1.0, 0.0)));
+    let h = sol.step_fm;
+    let absorption_mev = (0..u.len())
+        .map(|n| {
+            let r = n as f64 * h;
+            pot.imag_volume.depth_mev * pot.imag_volume.form(r)
+                + pot.imag_surface.depth_mev * pot.imag_surface.surface_form(r)
+        })
+        .collect();
+    Ok(RadialWave { step_fm: h, u: u.into_iter().map(|x| x * norm).collect(), s: sol.waves.s[l], absorption_mev })
+}
+
+/// What [`radial_wave`] asks of the solver: the wave to record, the values, and the factor
+/// that normalises them.
+type Record = Option<(usize, Vec<Complex64>, Complex64)>;
+
+fn solve_recording(
+    pot: &OpticalPotential,
+    ch: &ElasticChannel,
+    numerics: &Numerics,
+    mut record: Option<&mut Record>,
 ) -> Result<OpticalSolution, OpticalError> {
     for (name, ws) in [("real", &pot.real), ("imag_volume", &pot.imag_volume), ("imag_surface", &pot.imag_surface)] {
         check(name, ws.radius_fm, ws.radius_fm > 0.0, "a radius > 0 fm")?;
@@ -184,10 +246,12 @@ pub fn solve(
         + pot.imag_surface.depth_mev.abs()
         + coulomb(0.0).abs();
     let k_local = (k * k + c2m * depth_sum).sqrt();
-    let h = numerics.step_fm.unwrap_or(0.04 / k_local);
+    let acc = numerics.accuracy.unwrap_or(DEFAULT_ACCURACY);
+    check("accuracy", acc, acc > 0.0 && acc <= 1e-2, "a relative accuracy in (0, 0.01]")?;
+    let h = numerics.step_fm.unwrap_or((2.5 * acc.powf(0.25)).min(0.35) / k_local);
     check("step", h, h > 0.0, "a step > 0 fm")?;
     let nuclear_range =
-        [pot.real, pot.imag_volume, pot.imag_surface].iter().map(WoodsSaxon::range_fm).fold(rc + 1.0, f64::max);
+        [pot.real, pot.imag_volume, pot.imag_surface].iter().map(|t| t.range_fm(1e-5 * acc)).fold(rc + 1.0, f64::max);
     let r_a = numerics.matching_radius_fm.unwrap_or(nuclear_range);
     let n_a = (r_a / h).ceil() as usize;
     let n_b = n_a + ((std::f64::consts::FRAC_PI_2 / k / h).ceil() as usize).max(10);
@@ -217,7 +281,9 @@ pub fn solve(
             wa = coulomb_waves(eta, k * r_a, more)?;
             wb = coulomb_waves(eta, k * r_b, more)?;
         }
-        let (ua, ub) = integrate(&w0, h, l, n_a, n_b);
+        let wanted = record.as_ref().and_then(|r| r.as_ref()).is_some_and(|r| r.0 == l);
+        let mut values = Vec::new();
+        let (ua, ub) = integrate(&w0, h, l, n_a, n_b, wanted.then_some(&mut values));
         let (hpa, hpb) = (Complex64::new(wa.g[l], wa.f[l]), Complex64::new(wb.g[l], wb.f[l]));
         let sl = if hpa.norm().is_finite() && hpb.norm().is_finite() {
             (ub * hpa.conj() - ua * hpb.conj()) / (ub * hpa - ua * hpb)
@@ -225,8 +291,13 @@ pub fn solve(
             Complex64::new(1.0, 0.0)
         };
         let sl = if sl.norm().is_finite() { sl } else { Complex64::new(1.0, 0.0) };
+        if let Some(Some(r)) = record.as_deref_mut().filter(|_| wanted) {
+            // u = A (H⁻ − S H⁺) at r_a fixes A.
+            r.2 = (hpa.conj() - sl * hpa) / ua;
+            r.1 = values;
+        }
         s.push(sl);
-        quiet = if (sl - 1.0).norm() < S_CONVERGED && l as f64 > k * r_a { quiet + 1 } else { 0 };
+        quiet = if (sl - 1.0).norm() < S_CONVERGED_PER_ACCURACY * acc && l as f64 > k * r_a { quiet + 1 } else { 0 };
         if numerics.l_max.is_none() && quiet >= 3 {
             break;
         }
@@ -243,7 +314,14 @@ pub fn solve(
 /// Numerov integration of u_L'' = (L(L+1)/r² + w0(r)) u_L from near the origin (or from deep
 /// inside the centrifugal barrier, where the regular solution ∝ r^{L+1} dominates) to grid
 /// point `n_b`; returns u at `n_a` and `n_b`, rescaled freely (only their ratio matters).
-fn integrate(w0: &[Complex64], h: f64, l: usize, n_a: usize, n_b: usize) -> (Complex64, Complex64) {
+fn integrate(
+    w0: &[Complex64],
+    h: f64,
+    l: usize,
+    n_a: usize,
+    n_b: usize,
+    mut record: Option<&mut Vec<Complex64>>,
+) -> (Complex64, Complex64) {
     let ll = (l * (l + 1)) as f64;
     let t = |n: usize| {
         let r = n as f64 * h;
@@ -266,6 +344,14 @@ fn integrate(w0: &[Complex64], h: f64, l: usize, n_a: usize, n_b: usize) -> (Com
     let mut c_prev = if n0 == 1 { Complex64::new(1.0, 0.0) } else { Complex64::new(1.0, 0.0) - t(n0 - 1) };
     let mut c_here = Complex64::new(1.0, 0.0) - t(n0);
     let mut ua = Complex64::new(0.0, 0.0);
+    if let Some(rec) = record.as_deref_mut() {
+        // Zero below the start (the regular solution is negligible there).
+        rec.extend(std::iter::repeat_n(Complex64::new(0.0, 0.0), n0 - 1));
+        rec.extend([u_prev, u]);
+        if n0 == 1 {
+            rec[0] = Complex64::new(0.0, 0.0);
+        }
+    }
     for n in n0..n_b {
         let c_next = Complex64::new(1.0, 0.0) - t(n + 1);
         let next = ((Complex64::new(12.0, 0.0) - c_here * 10.0) * u - c_prev * u_prev) / c_next;
@@ -273,10 +359,16 @@ fn integrate(w0: &[Complex64], h: f64, l: usize, n_a: usize, n_b: usize) -> (Com
         u = next;
         c_prev = c_here;
         c_here = c_next;
+        if let Some(rec) = record.as_deref_mut() {
+            rec.push(u);
+        }
         if u.norm() > 1e200 {
             u_prev /= 1e200;
             u /= 1e200;
             ua /= 1e200;
+            if let Some(rec) = record.as_deref_mut() {
+                rec.iter_mut().for_each(|x| *x /= 1e200);
+            }
         }
         if n + 1 == n_a {
             ua = u;

@@ -68,6 +68,28 @@ impl PartialWaves {
         self.s.iter().enumerate().map(|(l, s)| (2.0 * l as f64 + 1.0) * term(*s)).sum()
     }
 
+    /// dσ/dΩ (mb/sr) and the ratio to Rutherford at many CM angles (rad): the same sums as
+    /// [`PartialWaves::dsdo_mb_sr`] and [`PartialWaves::ratio_rutherford`], with the Coulomb
+    /// phases and the coefficients (2L+1) e^{2iσ_L}(S_L − 1)/(2ik) computed once.
+    pub fn curve(&self, thetas_rad: &[f64]) -> Vec<(f64, Option<f64>)> {
+        let (k, l_max) = (self.k_per_fm, self.s.len().saturating_sub(1));
+        let sigma = coulomb_phases(self.eta, l_max);
+        let i = Complex64::i();
+        let coef: Vec<Complex64> = (0..self.s.len())
+            .map(|l| (2.0 * l as f64 + 1.0) * (i * 2.0 * sigma[l]).exp() * (self.s[l] - 1.0) / (i * 2.0 * k))
+            .collect();
+        thetas_rad
+            .iter()
+            .map(|&t| {
+                let p = legendre(t.cos(), l_max);
+                let nuclear: Complex64 = coef.iter().zip(&p).map(|(c, p)| c * p).sum();
+                let coulomb = self.coulomb_amplitude_fm(t, sigma[0]);
+                let f2 = (nuclear + coulomb).norm_sqr();
+                (f2 * MB_PER_FM2, (self.eta != 0.0).then(|| f2 / coulomb.norm_sqr()))
+            })
+            .collect()
+    }
+
     /// Reaction (absorption) cross section in mb.
     pub fn sigma_reaction_mb(&self) -> f64 {
         std::f64::consts::PI / self.k_per_fm.powi(2) * self.weighted_sum(|s| 1.0 - s.norm_sqr()) * MB_PER_FM2
@@ -127,6 +149,24 @@ mod tests {
             assert_relative_eq!(pw.ratio_rutherford(t).expect("charged"), 1.0, max_relative = 1e-12);
             let ruth = (3.0f64 / (2.0 * 1.2)).powi(2) / (t / 2.0).sin().powi(4) * 10.0;
             assert_relative_eq!(pw.dsdo_mb_sr(t), ruth, max_relative = 1e-12);
+        }
+    }
+
+    #[test]
+    fn the_curve_repeats_the_single_angle_sums() {
+        let pw = PartialWaves {
+            k_per_fm: 1.2,
+            eta: 3.0,
+            s: (0..20).map(|l| Complex64::from_polar(1.0 - 0.9 / (1.0 + f64::from(l)), 0.1 * f64::from(l))).collect(),
+        };
+        let thetas = [0.3, 1.0, 2.5];
+        for (t, (dsdo, ratio)) in thetas.iter().zip(pw.curve(&thetas)) {
+            assert_relative_eq!(dsdo, pw.dsdo_mb_sr(*t), max_relative = 1e-12);
+            assert_relative_eq!(
+                ratio.expect("charged"),
+                pw.ratio_rutherford(*t).expect("charged"),
+                max_relative = 1e-12
+            );
         }
     }
 
