@@ -675,6 +675,40 @@ mod tests {
         assert_relative_eq!(m.normalisation(), want, max_relative = 1e-6);
     }
 
+    /// y = a + b x.
+    struct Line(Vec<f64>);
+    impl Shape for Line {
+        fn points(&self) -> usize {
+            self.0.len()
+        }
+        fn values(&self, p: &[f64], out: &mut [f64]) -> Result<(), String> {
+            for (o, x) in out.iter_mut().zip(&self.0) {
+                *o = p[0] + p[1] * x;
+            }
+            Ok(())
+        }
+    }
+
+    #[test]
+    fn profile_interval_of_a_linear_model_is_plus_minus_one_error() {
+        // For a model linear in its parameters χ² is exactly quadratic, so the Δχ² = 1
+        // profile interval is value ± standard error (common practice), here to 1e-3 of σ
+        // (the bisection tolerance).
+        let x: Vec<f64> = (0..10).map(f64::from).collect();
+        let y: Vec<f64> =
+            x.iter().enumerate().map(|(i, x)| 2.0 + 0.5 * x + if i % 2 == 0 { 0.3 } else { -0.2 }).collect();
+        let data = Measured { sigma: vec![0.25; 10], y };
+        let ps = [par("a", 0.0, None, None), par("b", 0.0, None, None)];
+        let opts = FitOptions::default();
+        let best = fit(&Line(x.clone()), &ps, &data, Normalisation::Fixed, &opts).expect("fits");
+        for j in 0..2 {
+            let pr = profile(&Line(x.clone()), &ps, &data, Normalisation::Fixed, &opts, &best, j).expect("profile");
+            let (v, e) = (best.estimates[j].value, best.estimates[j].error.expect("error"));
+            assert!((pr.lower.expect("lower") - (v - e)).abs() < 2e-3 * e, "{pr:?} {v} {e}");
+            assert!((pr.upper.expect("upper") - (v + e)).abs() < 2e-3 * e, "{pr:?} {v} {e}");
+        }
+    }
+
     #[test]
     fn bad_starts_and_too_few_points_are_errors() {
         let data = Measured { y: vec![1.0, 2.0], sigma: vec![0.1, 0.1] };
