@@ -199,3 +199,38 @@ fn fitter_reproduces_every_nist_strd_nonlinear_dataset_from_both_starts() {
     }
     assert!(failures.is_empty(), "{} problems:\n{}", failures.len(), failures.join("\n"));
 }
+
+#[test]
+fn peak_fit_reproduces_nist_gauss1_to_gauss3() {
+    // The spectrum peak fit (two Gaussians on an exponential background, the model of
+    // stages::physics::peak_fit) against NIST StRD Gauss1, Gauss2 and Gauss3, from both
+    // NIST starts. Its parameters are NIST's with s = b5/√2 and s = b8/√2; NIST's standard
+    // deviations scale the curvature errors by √(SSR/(n − p)) (the peak fit's own errors
+    // are unscaled, because its weights are the bin errors). Certified values to 6 digits,
+    // their standard deviations to 3.
+    use stages::physics::peak_fit::{fit_peaks, Background, PeakModel};
+    let model = PeakModel { background: Background::Exponential, peaks: 2 };
+    let r2 = std::f64::consts::SQRT_2;
+    let to_ours = |b: &[f64]| vec![b[0], b[1], b[2], b[3], b[4] / r2, b[5], b[6], b[7] / r2];
+    for name in ["Gauss1", "Gauss2", "Gauss3"] {
+        let d = read(&repo_root().join(format!("tests/reference/nist-strd/{name}.dat")));
+        let x: Vec<f64> = d.x.iter().map(|x| x[0]).collect();
+        let ones = vec![1.0; x.len()];
+        for (k, start) in d.starts.iter().enumerate() {
+            let fit = fit_peaks(&model, &x, &d.y, &ones, &to_ours(start), 1.0);
+            assert!(fit.termination.converged(), "{name} start {}: {:?}", k + 1, fit.termination);
+            let want = to_ours(&d.certified);
+            let want_sd = to_ours(&d.certified_sd);
+            let scale = (fit.chi2 / fit.ndf as f64).sqrt();
+            let errors = fit.errors.clone().expect("regular curvature matrix");
+            for j in 0..8 {
+                let digits = -((fit.params[j] - want[j]).abs() / want[j].abs()).log10();
+                assert!(digits >= 6.0, "{name} start {}: parameter {j} {} vs {}", k + 1, fit.params[j], want[j]);
+                let sd = errors[j] * scale;
+                let sd_digits = -((sd - want_sd[j]).abs() / want_sd[j]).log10();
+                assert!(sd_digits >= 3.0, "{name} start {}: sd {j} {sd} vs {}", k + 1, want_sd[j]);
+            }
+            assert!((fit.chi2 / d.certified_ssr - 1.0).abs() < 1e-6, "{name}: SSR {}", fit.chi2);
+        }
+    }
+}
