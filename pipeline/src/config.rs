@@ -42,9 +42,13 @@ pub struct ExperimentConfig {
     pub runs: Vec<String>,
     /// The stages to apply to each run, in order; each has a `type:` and its settings.
     pub stages: Vec<StageConfig>,
+    /// How list-mode events and spectra become yields (needed when a run record gives
+    /// `events_file` or `spectra_file`).
+    #[serde(default)]
+    pub raw: Option<stages::raw::RawConfig>,
 }
 
-const SECTIONS: [&str; 6] = ["experiment", "reaction", "target", "detectors", "runs", "stages"];
+const SECTIONS: [&str; 7] = ["experiment", "reaction", "target", "detectors", "runs", "stages", "raw"];
 
 /// A YAML file read into text, its parsed value and its key locations.
 pub struct YamlFile {
@@ -153,6 +157,8 @@ pub struct PartialConfig {
     pub runs: Option<Vec<String>>,
     /// `stages:`, when every item parsed.
     pub stages: Option<Vec<StageConfig>>,
+    /// `raw:`, when present and parsed.
+    pub raw: Option<stages::raw::RawConfig>,
 }
 
 /// Parse an experiment config section by section and list item by list item, so that every
@@ -202,6 +208,7 @@ pub fn parse_experiment(file: &YamlFile) -> (PartialConfig, Vec<Diagnostic>) {
         detectors: section("detectors", &mut diags).and_then(|v| parse_list(file, "detectors", &v, &mut diags)),
         runs: section("runs", &mut diags).and_then(|v| keep(file.parse("runs", &v), &mut diags)),
         stages: section("stages", &mut diags).and_then(|v| parse_list(file, "stages", &v, &mut diags)),
+        raw: map.get("raw").and_then(|v| keep(file.parse("raw", v), &mut diags)),
     };
     (config, diags)
 }

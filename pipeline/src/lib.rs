@@ -5,6 +5,7 @@
 pub mod cli;
 pub mod config;
 pub mod error;
+pub mod events;
 pub mod fit;
 pub mod kinematics;
 pub mod locate;

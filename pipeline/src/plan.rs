@@ -42,8 +42,10 @@ pub struct LoadedRun {
     pub record_bytes: Vec<u8>,
     /// The record.
     pub record: RunRecord,
-    /// The yields file, resolved relative to the record.
+    /// The data file (yields, events or spectra), resolved relative to the record.
     pub yields_path: PathBuf,
+    /// What the data file holds.
+    pub data: stages::setup::RunData,
 }
 
 /// A discovered run: loaded, or the problems that stop it.
@@ -83,6 +85,8 @@ pub struct Plan {
     pub stages: Vec<PlannedStage>,
     /// Fits run once every run is reduced.
     pub fits: Vec<PlannedFit>,
+    /// The checked `raw:` section, for runs with events or spectra.
+    pub raw: Option<stages::raw::RawPlan>,
     /// Runs in record-path order.
     pub runs: Vec<PlannedRun>,
 }
@@ -116,6 +120,16 @@ pub fn plan(config_path: &Path) -> Result<Plan, Vec<Diagnostic>> {
             }
             None
         }
+    };
+    let raw = match (&config.raw, &setup) {
+        (Some(r), Some(setup)) => match r.build(setup) {
+            Ok(plan) => Some(plan),
+            Err(problems) => {
+                diags.extend(locate(problems.into_iter().map(|p| p.under("raw")).collect()));
+                None
+            }
+        },
+        _ => None,
     };
     let mut stages = Vec::new();
     let mut fits = Vec::new();
@@ -176,7 +190,7 @@ pub fn plan(config_path: &Path) -> Result<Plan, Vec<Diagnostic>> {
         (Some(setup), Some(experiment)) if diags.is_empty() => {
             let runs = record_paths
                 .into_iter()
-                .map(|record_path| PlannedRun { loaded: load_run(&record_path, &stages), record_path })
+                .map(|record_path| PlannedRun { loaded: load_run(&record_path, &stages, raw.is_some()), record_path })
                 .collect();
             let plan = Plan {
                 config_sha256: sha256_hex(&file.bytes),
@@ -186,6 +200,7 @@ pub fn plan(config_path: &Path) -> Result<Plan, Vec<Diagnostic>> {
                 setup,
                 stages,
                 fits,
+                raw,
                 runs,
             };
             plan.check_unique_runs().map(|()| plan)
@@ -325,7 +340,7 @@ fn safe_id(id: &str) -> bool {
 }
 
 /// Read and check one run record against the stages.
-fn load_run(record_path: &Path, stages: &[PlannedStage]) -> Result<LoadedRun, Vec<Diagnostic>> {
+fn load_run(record_path: &Path, stages: &[PlannedStage], has_raw: bool) -> Result<LoadedRun, Vec<Diagnostic>> {
     let file = YamlFile::read(record_path).map_err(|d| vec![d])?;
     let record: RunRecord = file.parse("", &file.value).map_err(|d| vec![d])?;
     let mut problems = record.validate();
@@ -339,18 +354,24 @@ fn load_run(record_path: &Path, stages: &[PlannedStage]) -> Result<LoadedRun, Ve
     for s in stages {
         problems.extend(s.stage.check_run(&record));
     }
-    let yields_path = record_path.parent().unwrap_or(Path::new(".")).join(&record.yields_file);
+    let (data, name) = record.data_file().unwrap_or((stages::setup::RunData::Yields, ""));
+    let key = match data {
+        stages::setup::RunData::Yields => "yields_file",
+        stages::setup::RunData::Events => "events_file",
+        stages::setup::RunData::Spectra => "spectra_file",
+    };
+    let yields_path = record_path.parent().unwrap_or(Path::new(".")).join(name);
     if problems.is_empty() && !yields_path.is_file() {
-        problems.push(Problem::new(
-            "yields_file",
-            &record.yields_file,
-            format!("an existing yields table (not found: {})", yields_path.display()),
-        ));
+        let what = if data == stages::setup::RunData::Yields { "yields table" } else { "data file" };
+        problems.push(Problem::new(key, name, format!("an existing {what} (not found: {})", yields_path.display())));
+    }
+    if problems.is_empty() && data != stages::setup::RunData::Yields && !has_raw {
+        problems.push(Problem::new(key, name, "a config with a `raw:` section (it says how events and spectra become yields)"));
     }
     if !problems.is_empty() {
         return Err(problems.iter().map(|p| file.problem(p)).collect());
     }
-    Ok(LoadedRun { record_path: record_path.to_path_buf(), record_bytes: file.bytes, record, yields_path })
+    Ok(LoadedRun { record_path: record_path.to_path_buf(), record_bytes: file.bytes, record, yields_path, data })
 }
 
 impl Plan {

@@ -46,9 +46,33 @@ pub struct Provenance {
 impl Provenance {
     /// Hash an input file already read into memory; its path is written relative to `base`.
     pub fn input(base: &Path, path: &Path, bytes: &[u8]) -> InputFile {
-        let rel = path.strip_prefix(base).unwrap_or(path);
-        InputFile { path: rel.to_string_lossy().replace('\\', "/"), sha256: sha256_hex(bytes) }
+        Provenance::input_hashed(base, path, sha256_hex(bytes))
     }
+
+    /// An input file whose hash is known.
+    pub fn input_hashed(base: &Path, path: &Path, sha256: String) -> InputFile {
+        let rel = path.strip_prefix(base).unwrap_or(path);
+        InputFile { path: rel.to_string_lossy().replace('\\', "/"), sha256 }
+    }
+}
+
+/// SHA-256 of a file, read in pieces (event files can be larger than memory).
+///
+/// # Errors
+/// The I/O error.
+pub fn sha256_file(path: &Path) -> std::io::Result<String> {
+    use std::io::Read;
+    let mut f = std::fs::File::open(path)?;
+    let mut h = Sha256::new();
+    let mut buf = vec![0u8; 1 << 20];
+    loop {
+        let n = f.read(&mut buf)?;
+        if n == 0 {
+            break;
+        }
+        h.update(&buf[..n]);
+    }
+    Ok(h.finalize().iter().map(|b| format!("{b:02x}")).collect())
 }
 
 /// Seconds since 1970 for the record: `SOURCE_DATE_EPOCH` if set and valid, else now.

@@ -3,7 +3,8 @@
 
 use std::path::{Path, PathBuf};
 
-use polars::prelude::DataFrame;
+use polars::prelude::{Column, DataFrame, PolarsResult};
+use stages::setup::RunData;
 use stages::{Origin, RunContext, StageError};
 use tracing::{debug, info, info_span, warn};
 
@@ -27,6 +28,54 @@ pub struct Reduced {
     pub table: DataFrame,
     /// Its provenance.
     pub provenance: Provenance,
+    /// For runs with events or spectra: the tallies, spectra and gates.
+    pub raw: Option<RawOutputs>,
+}
+
+/// What a run's raw data gave besides its yields.
+pub struct RawOutputs {
+    /// Yields, tallies, spectra, peak fits.
+    pub result: stages::raw::RawResult,
+    /// The gates used.
+    pub gates: Vec<stages::raw::Gate>,
+    /// Detector ids by index.
+    pub detectors: Vec<String>,
+    /// The calibrations, to give each spectrum channel its energy.
+    pub energies_mev: Vec<Vec<f64>>,
+}
+
+/// The derived yields table of a run with events or spectra.
+fn yields_frame(rows: &[stages::raw::YieldRow]) -> PolarsResult<DataFrame> {
+    DataFrame::new_infer_height(vec![
+        Column::new("detector".into(), rows.iter().map(|r| r.detector.clone()).collect::<Vec<_>>()),
+        Column::new("state".into(), rows.iter().map(|r| r.state.clone()).collect::<Vec<_>>()),
+        Column::new("counts_gross".into(), rows.iter().map(|r| r.counts_gross).collect::<Vec<_>>()),
+        Column::new("counts_background".into(), rows.iter().map(|r| r.counts_background).collect::<Vec<_>>()),
+        Column::new("counts_background_err".into(), rows.iter().map(|r| r.counts_background_err).collect::<Vec<_>>()),
+    ])
+}
+
+/// Read a run's events or spectra through the `raw:` section.
+fn reduce_raw(plan: &Plan, run: &LoadedRun) -> Result<(DataFrame, RawOutputs), Vec<Diagnostic>> {
+    let path = &run.yields_path;
+    let raw = plan.raw.as_ref().ok_or_else(|| {
+        vec![Diagnostic::new(&run.record_path, "", "events or spectra need a `raw:` section in the config")]
+    })?;
+    let result = match run.data {
+        RunData::Spectra => crate::events::reduce_spectra(path, raw),
+        _ => crate::events::reduce_events(path, raw),
+    }
+    .map_err(|m| vec![Diagnostic::new(path, "", m)])?;
+    if result.tally.events == 0 {
+        warn!(run = %run.record.run, file = %path.display(), "the file holds no events: every yield is zero");
+    }
+    if !result.tally.reconciles() {
+        return Err(vec![Diagnostic::new(path, "", format!("internal error: the tallies do not add up: {:?}", result.tally))]);
+    }
+    let table = yields_frame(&result.yields).map_err(|e| vec![Diagnostic::new(path, "", e.to_string())])?;
+    let detectors: Vec<String> = raw.detector_ids().iter().map(|s| s.to_string()).collect();
+    let energies_mev = (0..detectors.len()).map(|d| raw.channel_energies_mev(d)).collect();
+    Ok((table, RawOutputs { result, gates: raw.gates(), detectors, energies_mev }))
 }
 
 /// Read and check one run's yields table, then apply every stage.
@@ -35,12 +84,18 @@ pub struct Reduced {
 /// Every problem of the yields table, or the first stage that fails; located.
 pub fn reduce_run(plan: &Plan, run: &LoadedRun) -> Result<Reduced, Vec<Diagnostic>> {
     let yields = &run.yields_path;
-    let bytes = std::fs::read(yields)
-        .map_err(|e| vec![Diagnostic::new(yields, "", format!("cannot read the yields table: {e}"))])?;
-    let raw = read_table(yields).map_err(|m| {
-        vec![Diagnostic::new(yields, "", m)
-            .with_help("a yields table needs columns detector, state, counts_gross (schemas/yields.schema.json)")]
-    })?;
+    let sha = crate::provenance::sha256_file(yields)
+        .map_err(|e| vec![Diagnostic::new(yields, "", format!("cannot read the run's data file: {e}"))])?;
+    let (raw, raw_outputs) = if run.data == RunData::Yields {
+        let t = read_table(yields).map_err(|m| {
+            vec![Diagnostic::new(yields, "", m)
+                .with_help("a yields table needs columns detector, state, counts_gross (schemas/yields.schema.json)")]
+        })?;
+        (t, None)
+    } else {
+        let (t, o) = reduce_raw(plan, run)?;
+        (t, Some(o))
+    };
     if raw.height() == 0 {
         warn!(run = %run.record.run, file = %yields.display(), "yields table has no rows");
     }
@@ -82,11 +137,11 @@ pub fn reduce_run(plan: &Plan, run: &LoadedRun) -> Result<Reduced, Vec<Diagnosti
         stages: plan.stages.iter().map(|s| s.stage.name().to_string()).collect(),
         inputs: vec![
             Provenance::input(base, &run.record_path, &run.record_bytes),
-            Provenance::input(base, yields, &bytes),
+            Provenance::input_hashed(base, yields, sha),
         ],
         created_utc: rfc3339_utc(record_time_s()),
     };
-    Ok(Reduced { table, provenance })
+    Ok(Reduced { table, provenance, raw: raw_outputs })
 }
 
 /// A stage or table error as a diagnostic; a data row of a CSV file gets its line number.
@@ -115,11 +170,14 @@ pub fn write_outputs(out_dir: &Path, reduced: &mut Reduced) -> Result<Vec<PathBu
     let parquet = parquet_bytes(&mut reduced.table, vec![(PROVENANCE_KEY.to_string(), record.clone())])
         .map_err(|e| fail(&dir, &e))?;
     let csv = csv_bytes(&mut reduced.table).map_err(|e| fail(&dir, &e))?;
-    let files = [
+    let mut files = vec![
         (CROSS_SECTIONS_PARQUET, parquet),
         (CROSS_SECTIONS_CSV, csv),
         (PROVENANCE_JSON, format!("{record}\n").into_bytes()),
     ];
+    if let Some(raw) = &reduced.raw {
+        files.extend(raw_files(raw, &record).map_err(|e| fail(&dir, &e))?);
+    }
     let mut written = Vec::new();
     for (name, bytes) in files {
         let path = dir.join(name);
@@ -127,6 +185,47 @@ pub fn write_outputs(out_dir: &Path, reduced: &mut Reduced) -> Result<Vec<PathBu
         written.push(path);
     }
     Ok(written)
+}
+
+/// The derived yields (`yields.csv`), the tallies, gates and peak fits (`raw.json`), the
+/// spectra (`spectra.parquet`, with the gates in its metadata) and, with PID polygons, the
+/// binned (E, ΔE) histogram (`pid.parquet`).
+fn raw_files(raw: &RawOutputs, provenance: &str) -> PolarsResult<Vec<(&'static str, Vec<u8>)>> {
+    let r = &raw.result;
+    let mut yields = yields_frame(&r.yields)?;
+    let json = serde_json::json!({
+        "tally": r.tally,
+        "reconciled": r.tally.reconciles(),
+        "gates": raw.gates,
+        "peak_fits": r.peak_fits,
+    });
+    let gates = serde_json::to_string(&raw.gates).unwrap_or_default();
+    let meta = |extra: (&str, String)| vec![(PROVENANCE_KEY.to_string(), provenance.to_string()), (extra.0.to_string(), extra.1)];
+    let mut spectra = DataFrame::new_infer_height(vec![
+        Column::new("detector".into(), r.spectra.iter().map(|s| raw.detectors[s.0].clone()).collect::<Vec<_>>()),
+        Column::new("channel".into(), r.spectra.iter().map(|s| s.1 as u32).collect::<Vec<_>>()),
+        Column::new("energy_mev".into(), r.spectra.iter().map(|s| raw.energies_mev[s.0][s.1]).collect::<Vec<_>>()),
+        Column::new("counts".into(), r.spectra.iter().map(|s| s.2).collect::<Vec<_>>()),
+    ])?;
+    let mut files = vec![
+        ("yields.csv", csv_bytes(&mut yields)?),
+        ("raw.json", format!("{}\n", serde_json::to_string_pretty(&json).unwrap_or_default()).into_bytes()),
+        ("spectra.parquet", parquet_bytes(&mut spectra, meta(("xsflow.gates", gates)))?),
+    ];
+    if !r.pid.is_empty() {
+        let mut pid = DataFrame::new_infer_height(vec![
+            Column::new("detector".into(), r.pid.iter().map(|p| raw.detectors[p.0].clone()).collect::<Vec<_>>()),
+            Column::new("energy_bin".into(), r.pid.iter().map(|p| p.1 as u32).collect::<Vec<_>>()),
+            Column::new("delta_e_bin".into(), r.pid.iter().map(|p| p.2 as u32).collect::<Vec<_>>()),
+            Column::new("counts".into(), r.pid.iter().map(|p| p.3).collect::<Vec<_>>()),
+        ])?;
+        let bins = format!(
+            "{{\"bins_per_axis\": {}, \"axes\": \"ADC channel and ΔE value over [0, overflow_channel)\"}}",
+            stages::raw::PID_BINS
+        );
+        files.push(("pid.parquet", parquet_bytes(&mut pid, meta(("xsflow.pid_bins", bins)))?));
+    }
+    Ok(files)
 }
 
 /// Counts of a reduction.
@@ -239,6 +338,8 @@ pub fn check_runs(plan: &Plan) -> Vec<RunFailure> {
     for planned in &plan.runs {
         let problems = match &planned.loaded {
             Err(d) => d.clone(),
+            // Event and spectrum files are checked when they are read (they may be large).
+            Ok(run) if run.data != RunData::Yields => Vec::new(),
             Ok(run) => match read_table(&run.yields_path) {
                 Err(m) => vec![Diagnostic::new(&run.yields_path, "", m)],
                 Ok(raw) => match stages::yields::prepare(&raw, &plan.setup, &run.record.run.0) {

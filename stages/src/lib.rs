@@ -18,6 +18,7 @@ pub mod fit;
 pub mod normalise;
 pub mod physics;
 mod problem;
+pub mod raw;
 pub mod registry;
 pub mod setup;
 pub mod subtract_background;

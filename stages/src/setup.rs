@@ -593,8 +593,18 @@ pub enum Charge {
 pub struct RunRecord {
     /// Run identifier (a string or a whole number), unique among the runs of a config.
     pub run: Id,
-    /// The run's yields table (CSV or Parquet), relative to this file.
-    pub yields_file: String,
+    /// The run's yields table (CSV or Parquet), relative to this file; or give
+    /// `events_file` or `spectra_file` instead (exactly one of the three).
+    #[serde(default)]
+    pub yields_file: Option<String>,
+    /// The run's list-mode events (Parquet, Arrow IPC or CSV), reduced to yields by the
+    /// config's `raw:` section.
+    #[serde(default)]
+    pub events_file: Option<String>,
+    /// The run's spectra (detector, channel, counts; Parquet, Arrow IPC or CSV), reduced to
+    /// yields by the config's `raw:` section.
+    #[serde(default)]
+    pub spectra_file: Option<String>,
     /// Integrated beam charge in C; give this or the integrator pair; > 0.
     #[serde(default)]
     pub charge_c: Option<f64>,
@@ -628,7 +638,25 @@ pub struct RunRecord {
     pub recorded_rate_per_s: Option<f64>,
 }
 
+/// What a run's data file holds.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum RunData {
+    /// A yields table.
+    Yields,
+    /// List-mode events.
+    Events,
+    /// Spectra.
+    Spectra,
+}
+
 impl RunRecord {
+    /// The data file and its kind (the first given; `validate` insists on exactly one).
+    pub fn data_file(&self) -> Option<(RunData, &str)> {
+        [(RunData::Yields, &self.yields_file), (RunData::Events, &self.events_file), (RunData::Spectra, &self.spectra_file)]
+            .into_iter()
+            .find_map(|(k, v)| v.as_deref().map(|v| (k, v)))
+    }
+
     /// The charge as recorded, if exactly one way was given.
     pub fn charge(&self) -> Option<Charge> {
         match (self.charge_c, self.integrator_counts, self.integrator_scale_c_per_count) {
@@ -657,12 +685,24 @@ impl RunRecord {
     /// Every range and consistency problem of the record.
     pub fn validate(&self) -> Vec<Problem> {
         let mut c = Checks::default();
-        c.require(
-            !self.yields_file.trim().is_empty(),
-            "yields_file",
-            "an empty path",
-            "the path of the run's yields table",
-        );
+        let given: Vec<(&str, &String)> = [
+            ("yields_file", &self.yields_file),
+            ("events_file", &self.events_file),
+            ("spectra_file", &self.spectra_file),
+        ]
+        .into_iter()
+        .filter_map(|(k, v)| v.as_ref().map(|v| (k, v)))
+        .collect();
+        match given.as_slice() {
+            [(key, path)] => c.require(!path.trim().is_empty(), key, "an empty path", "the path of the run's data file"),
+            [] => c.require(false, "yields_file", "missing", "one of yields_file, events_file, spectra_file"),
+            more => c.require(
+                false,
+                more[1].0,
+                format!("{} given together", more.iter().map(|m| m.0).collect::<Vec<_>>().join(" and ")),
+                "exactly one of yields_file, events_file, spectra_file",
+            ),
+        }
         match self.charge() {
             Some(Charge::Coulomb(q)) => c.positive("charge_c", q),
             Some(Charge::Integrator { counts, scale_c_per_count }) => {

@@ -1,0 +1,285 @@
+//! Reading list-mode events and spectra into a [`stages::raw::Accumulator`]: Parquet one
+//! row group at a time (only the mapped columns are decoded, so memory follows the row
+//! group, not the file), Arrow IPC (the mapped columns of the whole file), and CSV streamed
+//! line by line.
+
+use std::collections::HashMap;
+use std::fs::File;
+use std::io::{BufRead, BufReader};
+use std::path::Path;
+
+use polars::prelude::*;
+use stages::raw::{Accumulator, RawPlan, RawResult, UNKNOWN_DETECTOR};
+
+/// The file formats, by extension.
+const ACCEPTED: &str = ".parquet (or .pq), .arrow (or .ipc, .feather), .csv";
+
+/// Rows handed to the accumulator at once from CSV.
+const CSV_BATCH: usize = 1 << 16;
+
+/// Which columns of an event file, by role.
+struct Roles<'a> {
+    detector: &'a str,
+    value: &'a str,
+    delta_e: Option<&'a str>,
+    pile_up: Option<&'a str>,
+    time: Option<&'a str>,
+}
+
+impl Roles<'_> {
+    fn names(&self) -> Vec<String> {
+        [Some(self.detector), Some(self.value), self.delta_e, self.pile_up, self.time]
+            .into_iter()
+            .flatten()
+            .map(str::to_string)
+            .collect()
+    }
+}
+
+fn extension(path: &Path) -> String {
+    path.extension().and_then(|e| e.to_str()).unwrap_or("").to_ascii_lowercase()
+}
+
+/// Detector values → detector indices, cached.
+struct DetectorMap<'a> {
+    plan: &'a RawPlan,
+    cache: HashMap<String, u16>,
+    small: Vec<u16>,
+}
+
+impl<'a> DetectorMap<'a> {
+    fn new(plan: &'a RawPlan) -> Self {
+        // Integer ids 0…65535 by table.
+        let small = (0..=u16::MAX).map(|v| plan.detector_index(&v.to_string())).collect();
+        DetectorMap { plan, cache: HashMap::new(), small }
+    }
+    fn text(&mut self, v: &str) -> u16 {
+        if let Some(i) = self.cache.get(v) {
+            return *i;
+        }
+        let i = self.plan.detector_index(v);
+        self.cache.insert(v.to_string(), i);
+        i
+    }
+    fn column(&mut self, c: &Column) -> Result<Vec<u16>, String> {
+        let s = c.as_materialized_series();
+        match s.dtype() {
+            DataType::String => {
+                Ok(s.str().map_err(|e| e.to_string())?.iter().map(|v| v.map_or(UNKNOWN_DETECTOR, |v| self.text(v))).collect())
+            }
+            dt if dt.is_integer() => {
+                let v = s.cast(&DataType::Int64).map_err(|e| e.to_string())?;
+                Ok(v.i64()
+                    .map_err(|e| e.to_string())?
+                    .iter()
+                    .map(|v| match v {
+                        Some(v) if (0..=i64::from(u16::MAX)).contains(&v) => self.small[v as usize],
+                        Some(v) => self.text(&v.to_string()),
+                        None => UNKNOWN_DETECTOR,
+                    })
+                    .collect())
+            }
+            dt => Err(format!("column `{}` has type {dt}; expected integers or strings (detector ids)", c.name())),
+        }
+    }
+}
+
+fn f64_column(c: &Column, what: &str) -> Result<Vec<f64>, String> {
+    let s = c.as_materialized_series();
+    if !(s.dtype().is_primitive_numeric() || s.dtype() == &DataType::Boolean) {
+        return Err(format!("column `{}` has type {}; expected numbers ({what})", c.name(), s.dtype()));
+    }
+    let v = s.cast(&DataType::Float64).map_err(|e| e.to_string())?;
+    Ok(v.f64().map_err(|e| e.to_string())?.iter().map(|x| x.unwrap_or(f64::NAN)).collect())
+}
+
+/// Feed one table of events (a row group, or a whole IPC file) to the accumulator.
+fn add_frame(acc: &mut Accumulator<'_>, map: &mut DetectorMap<'_>, df: &DataFrame, roles: &Roles<'_>) -> Result<(), String> {
+    let col = |name: &str| df.column(name).map_err(|e| e.to_string());
+    let det = map.column(col(roles.detector)?)?;
+    let pile: Option<Vec<bool>> =
+        roles.pile_up.map(|p| f64_column(col(p)?, "a pile-up flag").map(|v| v.iter().map(|x| *x != 0.0 && !x.is_nan()).collect())).transpose()?;
+    let de = roles.delta_e.map(|p| f64_column(col(p)?, "ΔE")).transpose()?;
+    let energy = col(roles.value)?.as_materialized_series();
+    if energy.dtype() == &DataType::UInt16 && energy.null_count() == 0 {
+        let ca = energy.u16().map_err(|e| e.to_string())?;
+        let mut offset = 0;
+        for chunk in ca.downcast_iter() {
+            let values = chunk.values().as_slice();
+            let n = values.len();
+            acc.add_u16(
+                &det[offset..offset + n],
+                values,
+                pile.as_deref().map(|p| &p[offset..offset + n]),
+                de.as_deref().map(|d| &d[offset..offset + n]),
+            );
+            offset += n;
+        }
+        return Ok(());
+    }
+    let energy = f64_column(col(roles.value)?, "ADC channels")?;
+    acc.add_f64(&det, &energy, pile.as_deref(), de.as_deref());
+    Ok(())
+}
+
+fn check_columns(found: &[String], roles: &Roles<'_>) -> Result<(), String> {
+    let missing: Vec<String> = roles.names().into_iter().filter(|n| !found.contains(n)).collect();
+    if missing.is_empty() {
+        Ok(())
+    } else {
+        Err(format!(
+            "column{} {} not found (mapped in raw.columns); columns found: {}",
+            if missing.len() > 1 { "s" } else { "" },
+            missing.iter().map(|m| format!("`{m}`")).collect::<Vec<_>>().join(", "),
+            found.join(", ")
+        ))
+    }
+}
+
+fn read_parquet(path: &Path, acc: &mut Accumulator<'_>, map: &mut DetectorMap<'_>, roles: &Roles<'_>) -> Result<(), String> {
+    let open = || File::open(path).map_err(|e| format!("cannot open it: {e}"));
+    let mut reader = ParquetReader::new(open()?);
+    let schema = reader.schema().map_err(|e| format!("cannot read it as Parquet: {e}"))?;
+    let found: Vec<String> = schema.iter_names().map(|n| n.to_string()).collect();
+    check_columns(&found, roles)?;
+    let meta = reader.get_metadata().map_err(|e| format!("cannot read it as Parquet: {e}"))?.clone();
+    let mut offset = 0;
+    for rg in &meta.row_groups {
+        let n = rg.num_rows();
+        let mut r = ParquetReader::new(open()?);
+        r.set_metadata(meta.clone());
+        let df = r
+            .with_columns(Some(roles.names()))
+            .with_slice(Some((offset, n)))
+            .finish()
+            .map_err(|e| format!("cannot read rows {offset}..{}: {e}", offset + n))?;
+        add_frame(acc, map, &df, roles)?;
+        offset += n;
+    }
+    Ok(())
+}
+
+fn ipc_columns(path: &Path) -> Result<Vec<String>, String> {
+    let file = File::open(path).map_err(|e| format!("cannot open it: {e}"))?;
+    let mut reader = IpcReader::new(file);
+    let schema = reader.schema().map_err(|e| format!("cannot read it as Arrow IPC: {e}"))?;
+    Ok(schema.iter_names().map(|n| n.to_string()).collect())
+}
+
+fn read_ipc_columns(path: &Path, columns: Vec<String>) -> Result<DataFrame, String> {
+    let file = File::open(path).map_err(|e| format!("cannot open it: {e}"))?;
+    IpcReader::new(file).with_columns(Some(columns)).finish().map_err(|e| format!("cannot read it as Arrow IPC: {e}"))
+}
+
+/// A CSV file's header and its lines, streamed.
+fn csv_lines(path: &Path) -> Result<(Vec<String>, std::io::Lines<BufReader<File>>), String> {
+    let file = File::open(path).map_err(|e| format!("cannot open it: {e}"))?;
+    let mut lines = BufReader::new(file).lines();
+    let header = match lines.next() {
+        Some(Ok(h)) => h.split(',').map(|s| s.trim().to_string()).collect(),
+        Some(Err(e)) => return Err(format!("cannot read it: {e}")),
+        None => Vec::new(),
+    };
+    Ok((header, lines))
+}
+
+fn read_csv_events(path: &Path, acc: &mut Accumulator<'_>, map: &mut DetectorMap<'_>, roles: &Roles<'_>) -> Result<(), String> {
+    let (header, lines) = csv_lines(path)?;
+    if header.is_empty() {
+        return Ok(());
+    }
+    check_columns(&header, roles)?;
+    let index = |name: &str| header.iter().position(|h| h == name).unwrap_or(0);
+    let (i_det, i_e) = (index(roles.detector), index(roles.value));
+    let (i_de, i_pu) = (roles.delta_e.map(index), roles.pile_up.map(index));
+    let (mut det, mut e, mut de, mut pu) = (Vec::new(), Vec::new(), Vec::new(), Vec::new());
+    let num = |s: Option<&str>| s.map_or(f64::NAN, |s| s.trim().parse::<f64>().unwrap_or(f64::NAN));
+    let flush = |det: &mut Vec<u16>, e: &mut Vec<f64>, de: &mut Vec<f64>, pu: &mut Vec<bool>, acc: &mut Accumulator<'_>| {
+        acc.add_f64(det, e, i_pu.map(|_| pu.as_slice()), i_de.map(|_| de.as_slice()));
+        det.clear();
+        e.clear();
+        de.clear();
+        pu.clear();
+    };
+    for (n, line) in lines.enumerate() {
+        let line = line.map_err(|err| format!("line {}: cannot read it: {err}", n + 2))?;
+        if line.trim().is_empty() {
+            continue;
+        }
+        let cells: Vec<&str> = line.split(',').collect();
+        det.push(cells.get(i_det).map_or(UNKNOWN_DETECTOR, |v| map.text(v.trim())));
+        e.push(num(cells.get(i_e).copied()));
+        if let Some(i) = i_de {
+            de.push(num(cells.get(i).copied()));
+        }
+        if let Some(i) = i_pu {
+            let v = cells.get(i).map_or("", |v| v.trim());
+            pu.push(!(v.is_empty() || v == "0" || v.eq_ignore_ascii_case("false")));
+        }
+        if det.len() == CSV_BATCH {
+            flush(&mut det, &mut e, &mut de, &mut pu, acc);
+        }
+    }
+    flush(&mut det, &mut e, &mut de, &mut pu, acc);
+    Ok(())
+}
+
+/// Reduce a list-mode event file to yields, tallies and spectra.
+///
+/// # Errors
+/// An unreadable, corrupt or truncated file, a mapped column that is missing (the columns
+/// found are named) or of the wrong type.
+pub fn reduce_events(path: &Path, plan: &RawPlan) -> Result<RawResult, String> {
+    let c = &plan.config.columns;
+    let roles = Roles {
+        detector: &c.detector,
+        value: &c.energy,
+        delta_e: c.delta_e.as_deref(),
+        pile_up: c.pile_up.as_deref(),
+        time: c.time.as_deref(),
+    };
+    let mut acc = plan.accumulator();
+    let mut map = DetectorMap::new(plan);
+    match extension(path).as_str() {
+        "parquet" | "pq" => read_parquet(path, &mut acc, &mut map, &roles)?,
+        "arrow" | "ipc" | "feather" => {
+            check_columns(&ipc_columns(path)?, &roles)?;
+            let df = read_ipc_columns(path, roles.names())?;
+            add_frame(&mut acc, &mut map, &df, &roles)?;
+        }
+        "csv" => read_csv_events(path, &mut acc, &mut map, &roles)?,
+        ext => return Err(format!("unknown event file format `.{ext}`; accepted: {ACCEPTED}")),
+    }
+    Ok(acc.finish())
+}
+
+/// Reduce a spectrum file (detector, channel, counts per row) to yields, tallies and spectra.
+///
+/// # Errors
+/// As [`reduce_events`], and a count that is not a whole number ≥ 0 (its row is named).
+pub fn reduce_spectra(path: &Path, plan: &RawPlan) -> Result<RawResult, String> {
+    let c = &plan.config.spectrum_columns;
+    let roles = Roles { detector: &c.detector, value: &c.channel, delta_e: None, pile_up: None, time: None };
+    let df = match extension(path).as_str() {
+        "parquet" | "pq" | "csv" => crate::tables::read_table(path)?,
+        "arrow" | "ipc" | "feather" => {
+            let mut names = roles.names();
+            names.push(c.counts.clone());
+            read_ipc_columns(path, names)?
+        }
+        ext => return Err(format!("unknown spectrum file format `.{ext}`; accepted: {ACCEPTED}")),
+    };
+    let found: Vec<String> = df.get_column_names().iter().map(|n| n.to_string()).collect();
+    let mut names = roles.names();
+    names.push(c.counts.clone());
+    check_columns(&found, &Roles { detector: &names[0], value: &names[1], delta_e: Some(&names[2]), pile_up: None, time: None })?;
+    let mut map = DetectorMap::new(plan);
+    let det = map.column(df.column(&c.detector).map_err(|e| e.to_string())?)?;
+    let ch = f64_column(df.column(&c.channel).map_err(|e| e.to_string())?, "channels")?;
+    let n = f64_column(df.column(&c.counts).map_err(|e| e.to_string())?, "counts")?;
+    let mut acc = plan.accumulator();
+    for i in 0..det.len() {
+        acc.add_spectrum_row(det[i], ch[i], n[i]).map_err(|m| format!("data row {}: {m}", i + 1))?;
+    }
+    Ok(acc.finish())
+}
