@@ -8,6 +8,7 @@ mod config;
 mod fitting;
 mod kinematics;
 mod nist;
+mod raw;
 mod reference;
 mod regression;
 mod theory;

@@ -80,7 +80,9 @@ struct Case {
 fn run_record(charge_c: f64, live_fraction: f64) -> RunRecord {
     RunRecord {
         run: Id("1".into()),
-        yields_file: "unused.csv".into(),
+        yields_file: Some("unused.csv".into()),
+        events_file: None,
+        spectra_file: None,
         charge_c: Some(charge_c),
         integrator_counts: None,
         integrator_scale_c_per_count: None,

@@ -64,9 +64,12 @@ impl<'a> DetectorMap<'a> {
     fn column(&mut self, c: &Column) -> Result<Vec<u16>, String> {
         let s = c.as_materialized_series();
         match s.dtype() {
-            DataType::String => {
-                Ok(s.str().map_err(|e| e.to_string())?.iter().map(|v| v.map_or(UNKNOWN_DETECTOR, |v| self.text(v))).collect())
-            }
+            DataType::String => Ok(s
+                .str()
+                .map_err(|e| e.to_string())?
+                .iter()
+                .map(|v| v.map_or(UNKNOWN_DETECTOR, |v| self.text(v)))
+                .collect()),
             dt if dt.is_integer() => {
                 let v = s.cast(&DataType::Int64).map_err(|e| e.to_string())?;
                 Ok(v.i64()
@@ -94,11 +97,18 @@ fn f64_column(c: &Column, what: &str) -> Result<Vec<f64>, String> {
 }
 
 /// Feed one table of events (a row group, or a whole IPC file) to the accumulator.
-fn add_frame(acc: &mut Accumulator<'_>, map: &mut DetectorMap<'_>, df: &DataFrame, roles: &Roles<'_>) -> Result<(), String> {
+fn add_frame(
+    acc: &mut Accumulator<'_>,
+    map: &mut DetectorMap<'_>,
+    df: &DataFrame,
+    roles: &Roles<'_>,
+) -> Result<(), String> {
     let col = |name: &str| df.column(name).map_err(|e| e.to_string());
     let det = map.column(col(roles.detector)?)?;
-    let pile: Option<Vec<bool>> =
-        roles.pile_up.map(|p| f64_column(col(p)?, "a pile-up flag").map(|v| v.iter().map(|x| *x != 0.0 && !x.is_nan()).collect())).transpose()?;
+    let pile: Option<Vec<bool>> = roles
+        .pile_up
+        .map(|p| f64_column(col(p)?, "a pile-up flag").map(|v| v.iter().map(|x| *x != 0.0 && !x.is_nan()).collect()))
+        .transpose()?;
     let de = roles.delta_e.map(|p| f64_column(col(p)?, "ΔE")).transpose()?;
     let energy = col(roles.value)?.as_materialized_series();
     if energy.dtype() == &DataType::UInt16 && energy.null_count() == 0 {
@@ -136,7 +146,12 @@ fn check_columns(found: &[String], roles: &Roles<'_>) -> Result<(), String> {
     }
 }
 
-fn read_parquet(path: &Path, acc: &mut Accumulator<'_>, map: &mut DetectorMap<'_>, roles: &Roles<'_>) -> Result<(), String> {
+fn read_parquet(
+    path: &Path,
+    acc: &mut Accumulator<'_>,
+    map: &mut DetectorMap<'_>,
+    roles: &Roles<'_>,
+) -> Result<(), String> {
     let open = || File::open(path).map_err(|e| format!("cannot open it: {e}"));
     let mut reader = ParquetReader::new(open()?);
     let schema = reader.schema().map_err(|e| format!("cannot read it as Parquet: {e}"))?;
@@ -183,7 +198,12 @@ fn csv_lines(path: &Path) -> Result<(Vec<String>, std::io::Lines<BufReader<File>
     Ok((header, lines))
 }
 
-fn read_csv_events(path: &Path, acc: &mut Accumulator<'_>, map: &mut DetectorMap<'_>, roles: &Roles<'_>) -> Result<(), String> {
+fn read_csv_events(
+    path: &Path,
+    acc: &mut Accumulator<'_>,
+    map: &mut DetectorMap<'_>,
+    roles: &Roles<'_>,
+) -> Result<(), String> {
     let (header, lines) = csv_lines(path)?;
     if header.is_empty() {
         return Ok(());
@@ -194,13 +214,14 @@ fn read_csv_events(path: &Path, acc: &mut Accumulator<'_>, map: &mut DetectorMap
     let (i_de, i_pu) = (roles.delta_e.map(index), roles.pile_up.map(index));
     let (mut det, mut e, mut de, mut pu) = (Vec::new(), Vec::new(), Vec::new(), Vec::new());
     let num = |s: Option<&str>| s.map_or(f64::NAN, |s| s.trim().parse::<f64>().unwrap_or(f64::NAN));
-    let flush = |det: &mut Vec<u16>, e: &mut Vec<f64>, de: &mut Vec<f64>, pu: &mut Vec<bool>, acc: &mut Accumulator<'_>| {
-        acc.add_f64(det, e, i_pu.map(|_| pu.as_slice()), i_de.map(|_| de.as_slice()));
-        det.clear();
-        e.clear();
-        de.clear();
-        pu.clear();
-    };
+    let flush =
+        |det: &mut Vec<u16>, e: &mut Vec<f64>, de: &mut Vec<f64>, pu: &mut Vec<bool>, acc: &mut Accumulator<'_>| {
+            acc.add_f64(det, e, i_pu.map(|_| pu.as_slice()), i_de.map(|_| de.as_slice()));
+            det.clear();
+            e.clear();
+            de.clear();
+            pu.clear();
+        };
     for (n, line) in lines.enumerate() {
         let line = line.map_err(|err| format!("line {}: cannot read it: {err}", n + 2))?;
         if line.trim().is_empty() {
@@ -272,7 +293,10 @@ pub fn reduce_spectra(path: &Path, plan: &RawPlan) -> Result<RawResult, String> 
     let found: Vec<String> = df.get_column_names().iter().map(|n| n.to_string()).collect();
     let mut names = roles.names();
     names.push(c.counts.clone());
-    check_columns(&found, &Roles { detector: &names[0], value: &names[1], delta_e: Some(&names[2]), pile_up: None, time: None })?;
+    check_columns(
+        &found,
+        &Roles { detector: &names[0], value: &names[1], delta_e: Some(&names[2]), pile_up: None, time: None },
+    )?;
     let mut map = DetectorMap::new(plan);
     let det = map.column(df.column(&c.detector).map_err(|e| e.to_string())?)?;
     let ch = f64_column(df.column(&c.channel).map_err(|e| e.to_string())?, "channels")?;

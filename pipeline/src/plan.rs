@@ -366,7 +366,11 @@ fn load_run(record_path: &Path, stages: &[PlannedStage], has_raw: bool) -> Resul
         problems.push(Problem::new(key, name, format!("an existing {what} (not found: {})", yields_path.display())));
     }
     if problems.is_empty() && data != stages::setup::RunData::Yields && !has_raw {
-        problems.push(Problem::new(key, name, "a config with a `raw:` section (it says how events and spectra become yields)"));
+        problems.push(Problem::new(
+            key,
+            name,
+            "a config with a `raw:` section (it says how events and spectra become yields)",
+        ));
     }
     if !problems.is_empty() {
         return Err(problems.iter().map(|p| file.problem(p)).collect());

@@ -69,8 +69,15 @@ fn reduce_raw(plan: &Plan, run: &LoadedRun) -> Result<(DataFrame, RawOutputs), V
     if result.tally.events == 0 {
         warn!(run = %run.record.run, file = %path.display(), "the file holds no events: every yield is zero");
     }
+    for w in &result.warnings {
+        warn!("{w}");
+    }
     if !result.tally.reconciles() {
-        return Err(vec![Diagnostic::new(path, "", format!("internal error: the tallies do not add up: {:?}", result.tally))]);
+        return Err(vec![Diagnostic::new(
+            path,
+            "",
+            format!("internal error: the tallies do not add up: {:?}", result.tally),
+        )]);
     }
     let table = yields_frame(&result.yields).map_err(|e| vec![Diagnostic::new(path, "", e.to_string())])?;
     let detectors: Vec<String> = raw.detector_ids().iter().map(|s| s.to_string()).collect();
@@ -198,9 +205,12 @@ fn raw_files(raw: &RawOutputs, provenance: &str) -> PolarsResult<Vec<(&'static s
         "reconciled": r.tally.reconciles(),
         "gates": raw.gates,
         "peak_fits": r.peak_fits,
+        "warnings": r.warnings,
     });
     let gates = serde_json::to_string(&raw.gates).unwrap_or_default();
-    let meta = |extra: (&str, String)| vec![(PROVENANCE_KEY.to_string(), provenance.to_string()), (extra.0.to_string(), extra.1)];
+    let meta = |extra: (&str, String)| {
+        vec![(PROVENANCE_KEY.to_string(), provenance.to_string()), (extra.0.to_string(), extra.1)]
+    };
     let mut spectra = DataFrame::new_infer_height(vec![
         Column::new("detector".into(), r.spectra.iter().map(|s| raw.detectors[s.0].clone()).collect::<Vec<_>>()),
         Column::new("channel".into(), r.spectra.iter().map(|s| s.1 as u32).collect::<Vec<_>>()),

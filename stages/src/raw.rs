@@ -331,7 +331,12 @@ impl RawConfig {
         c.require(self.overflow_channel >= 2, "overflow_channel", self.overflow_channel, "at least 2 channels");
         let ids: Vec<&str> = setup.detectors.iter().map(|d| d.id.0.as_str()).collect();
         for (k, id) in &self.detector_ids {
-            c.require(ids.contains(&id.as_str()), &format!("detector_ids.{k}"), id, &format!("a detector id ({})", ids.join(", ")));
+            c.require(
+                ids.contains(&id.as_str()),
+                &format!("detector_ids.{k}"),
+                id,
+                &format!("a detector id ({})", ids.join(", ")),
+            );
         }
         for key in self.calibration.keys().chain(self.pid.keys()) {
             c.require(
@@ -345,10 +350,21 @@ impl RawConfig {
         for (i, w) in g.windows.iter().enumerate() {
             let key = format!("gates.windows[{i}]");
             c.require(ids.contains(&w.detector.as_str()), &format!("{key}.detector"), &w.detector, "a detector id");
-            c.require(states.contains(&w.state), &format!("{key}.state"), &w.state, &format!("a state ({})", states.join(", ")));
-            for (name, iv) in [("window_mev", Some(w.window_mev)), ("left_mev", w.left_mev), ("right_mev", w.right_mev)] {
+            c.require(
+                states.contains(&w.state),
+                &format!("{key}.state"),
+                &w.state,
+                &format!("a state ({})", states.join(", ")),
+            );
+            for (name, iv) in [("window_mev", Some(w.window_mev)), ("left_mev", w.left_mev), ("right_mev", w.right_mev)]
+            {
                 if let Some([a, b]) = iv {
-                    c.require(a.is_finite() && b.is_finite() && a < b, &format!("{key}.{name}"), format!("[{a}, {b}]"), "[low, high] with low < high");
+                    c.require(
+                        a.is_finite() && b.is_finite() && a < b,
+                        &format!("{key}.{name}"),
+                        format!("[{a}, {b}]"),
+                        "[low, high] with low < high",
+                    );
                 }
             }
         }
@@ -357,13 +373,24 @@ impl RawConfig {
         for det in &setup.detectors {
             let det_id = det.id.0.clone();
             let Some(cal) = self.calibration.get(&det_id).or_else(|| self.calibration.get("all")).copied() else {
-                c.require(false, &format!("calibration.{det_id}"), "missing", "a calibration for every detector (or `all`)");
+                c.require(
+                    false,
+                    &format!("calibration.{det_id}"),
+                    "missing",
+                    "a calibration for every detector (or `all`)",
+                );
                 continue;
             };
             let key = if self.calibration.contains_key(&det_id) { det_id.clone() } else { "all".into() };
             let top = (n_ch - 1) as f64;
-            let rising = cal.gain_mev_per_channel > 0.0 && cal.gain_mev_per_channel + 2.0 * cal.quadratic_mev_per_channel2 * top > 0.0;
-            c.require(rising, &format!("calibration.{key}"), format!("gain {} MeV/ch, quadratic {}", cal.gain_mev_per_channel, cal.quadratic_mev_per_channel2), "a calibration that rises over every channel (gain > 0)");
+            let rising = cal.gain_mev_per_channel > 0.0
+                && cal.gain_mev_per_channel + 2.0 * cal.quadratic_mev_per_channel2 * top > 0.0;
+            c.require(
+                rising,
+                &format!("calibration.{key}"),
+                format!("gain {} MeV/ch, quadratic {}", cal.gain_mev_per_channel, cal.quadratic_mev_per_channel2),
+                "a calibration that rises over every channel (gain > 0)",
+            );
             c.non_negative(&format!("calibration.{key}.offset_err_mev"), cal.offset_err_mev);
             c.non_negative(&format!("calibration.{key}.gain_err_mev_per_channel"), cal.gain_err_mev_per_channel);
             let mut gates = Vec::new();
@@ -375,7 +402,12 @@ impl RawConfig {
                         .map(|s| s.energy_lab_mev)
                 });
                 let written = g.windows.iter().find(|w| w.detector == det_id && &w.state == state);
-                let (s, wr, gap, bw) = (g.resolution_mev, g.window_resolutions, g.side_band_gap_resolutions, g.side_band_width_resolutions);
+                let (s, wr, gap, bw) = (
+                    g.resolution_mev,
+                    g.window_resolutions,
+                    g.side_band_gap_resolutions,
+                    g.side_band_width_resolutions,
+                );
                 let window = match (written, e_kin) {
                     (Some(w), _) => Interval::new(w.window_mev),
                     (None, Some(e)) => Interval { low_mev: e - wr * s, high_mev: e + wr * s },
@@ -389,21 +421,32 @@ impl RawConfig {
                     Interval { low_mev: window.high_mev + gap * s, high_mev: window.high_mev + (gap + bw) * s },
                     Interval::new,
                 );
-                gates.push((si, Gate {
-                    detector: det_id.clone(),
-                    state: state.clone(),
-                    energy_kinematic_mev: e_kin.unwrap_or(f64::NAN),
-                    window,
-                    left,
-                    right,
-                }));
+                gates.push((
+                    si,
+                    Gate {
+                        detector: det_id.clone(),
+                        state: state.clone(),
+                        energy_kinematic_mev: e_kin.unwrap_or(f64::NAN),
+                        window,
+                        left,
+                        right,
+                    },
+                ));
             }
             for (a, (_, ga)) in gates.iter().enumerate() {
                 for (_, gb) in &gates[a + 1..] {
                     c.require(
                         g.allow_overlap || !ga.window.overlaps(&gb.window),
                         "gates",
-                        format!("{det_id}: windows of {} [{:.4}, {:.4}) and {} [{:.4}, {:.4}) MeV overlap", ga.state, ga.window.low_mev, ga.window.high_mev, gb.state, gb.window.low_mev, gb.window.high_mev),
+                        format!(
+                            "{det_id}: windows of {} [{:.4}, {:.4}) and {} [{:.4}, {:.4}) MeV overlap",
+                            ga.state,
+                            ga.window.low_mev,
+                            ga.window.high_mev,
+                            gb.state,
+                            gb.window.low_mev,
+                            gb.window.high_mev
+                        ),
                         "windows of one detector's states apart (or gates.allow_overlap: true)",
                     );
                 }
@@ -412,7 +455,10 @@ impl RawConfig {
                         c.require(
                             !iv.overlaps(&gb.window),
                             "gates",
-                            format!("{det_id}: the {side} side band of {} [{:.4}, {:.4}) MeV overlaps the window of {}", ga.state, iv.low_mev, iv.high_mev, gb.state),
+                            format!(
+                                "{det_id}: the {side} side band of {} [{:.4}, {:.4}) MeV overlaps the window of {}",
+                                ga.state, iv.low_mev, iv.high_mev, gb.state
+                            ),
                             "side bands clear of every peak window (narrower side bands or a larger gap)",
                         );
                     }
@@ -445,10 +491,7 @@ fn category(det: &DetectorPlan, e: f64) -> u8 {
     if let Some((si, _)) = det.gates.iter().find(|(_, g)| g.window.contains(e)) {
         return (1 + 2 * si) as u8;
     }
-    det.gates
-        .iter()
-        .find(|(_, g)| g.left.contains(e) || g.right.contains(e))
-        .map_or(0, |(si, _)| (2 + 2 * si) as u8)
+    det.gates.iter().find(|(_, g)| g.left.contains(e) || g.right.contains(e)).map_or(0, |(si, _)| (2 + 2 * si) as u8)
 }
 
 impl RawPlan {
@@ -516,7 +559,12 @@ pub struct Tally {
 impl Tally {
     /// Whether the tallies add up to the events read.
     pub fn reconciles(&self) -> bool {
-        self.unknown_detector + self.invalid_value + self.pile_up + self.in_window + self.in_side_band + self.outside_gates
+        self.unknown_detector
+            + self.invalid_value
+            + self.pile_up
+            + self.in_window
+            + self.in_side_band
+            + self.outside_gates
             == self.events
     }
 }
@@ -563,6 +611,8 @@ pub struct PeakFitRecord {
     pub converged: bool,
     /// Per state: (state, centroid MeV, width MeV, area, area error).
     pub peaks: Vec<(String, f64, f64, f64, f64)>,
+    /// Per state, the counts in the peak window.
+    pub window_counts: Vec<f64>,
 }
 
 /// What one run's raw data gave.
@@ -578,7 +628,12 @@ pub struct RawResult {
     pub pid: Vec<(usize, usize, usize, u64)>,
     /// Peak fits, when the background is fitted.
     pub peak_fits: Vec<PeakFitRecord>,
+    /// What the reduction noticed (a peak fit that fell back to side bands, say).
+    pub warnings: Vec<String>,
 }
+
+/// Fewest counts in a detector's fit region for a peak fit; below it the side bands serve.
+pub const PEAK_FIT_MIN_COUNTS: f64 = 50.0;
 
 impl Accumulator<'_> {
     /// Add events with integer ADC channels (the fast path). `detector` holds detector
@@ -704,25 +759,44 @@ impl Accumulator<'_> {
             .collect();
         let mut yields = Vec::new();
         let mut peak_fits = Vec::new();
+        let mut warnings = Vec::new();
         for (d, det) in plan.detectors.iter().enumerate() {
             let spectrum = |ch: usize| (self.hist_exact[d * n_ch + ch] + self.hist_direct[d * n_ch + ch]) as f64;
             let fitted = match plan.config.background {
                 BackgroundMethod::SideBands => None,
-                m => fit_detector(det, m, n_ch, &spectrum, plan.config.gates.resolution_mev),
+                m => match fit_detector(det, m, n_ch, &spectrum, plan.config.gates.resolution_mev) {
+                    Ok(f) if f.converged && f.peaks.iter().all(|p| p.3 >= 0.0) => Some(f),
+                    Ok(f) => {
+                        warnings.push(format!(
+                            "{}: the peak fit {} (χ² {:.1} for {} degrees of freedom); side bands used instead",
+                            det.id,
+                            if f.converged { "gave a negative area" } else { "did not converge" },
+                            f.chi2,
+                            f.ndf
+                        ));
+                        None
+                    }
+                    Err(why) => {
+                        warnings.push(format!("{}: {why}; side bands used instead of a peak fit", det.id));
+                        None
+                    }
+                },
             };
             for (si, g) in &det.gates {
                 let gross = counts[d * ncat + 1 + 2 * si] as f64;
                 let side = counts[d * ncat + 2 + 2 * si] as f64;
-                let (bg, bg_err) = match &fitted {
+                let (gross, bg, bg_err) = match &fitted {
                     Some(f) => {
-                        let p = f.peaks.iter().find(|p| p.0 == g.state).map_or((0.0, 0.0), |p| (p.3, p.4));
-                        // Background = gross − fitted area; its error what the fit adds to
-                        // the Poisson error of the gross counts (never below zero).
-                        (gross - p.0, (p.1 * p.1 - gross).max(0.0).sqrt())
+                        // The fitted area N ± σ_N becomes gross = N, background 0 ± √(σ_N² − N),
+                        // so that the later net-count error √(gross + σ_bg²) is σ_N (or √N
+                        // when the fit's error is below Poisson's). The window sum is in the
+                        // peak-fit record.
+                        let (n, e) = f.peaks.iter().find(|p| p.0 == g.state).map_or((0.0, 0.0), |p| (p.3, p.4));
+                        (n, 0.0, (e * e - n).max(0.0).sqrt())
                     }
                     None => {
                         let scale = g.window.width() / (g.left.width() + g.right.width());
-                        (side * scale, side.sqrt() * scale)
+                        (gross, side * scale, side.sqrt() * scale)
                     }
                 };
                 yields.push(YieldRow {
@@ -741,7 +815,7 @@ impl Accumulator<'_> {
             .filter(|&i| self.pid_hist[i] > 0)
             .map(|i| (i / (PID_BINS * PID_BINS), (i / PID_BINS) % PID_BINS, i % PID_BINS, self.pid_hist[i]))
             .collect();
-        RawResult { yields, tally: self.tally, spectra, pid, peak_fits }
+        RawResult { yields, tally: self.tally, spectra, pid, peak_fits, warnings }
     }
 }
 
@@ -753,35 +827,49 @@ fn fit_detector(
     n_ch: usize,
     spectrum: &dyn Fn(usize) -> f64,
     resolution_mev: f64,
-) -> Option<PeakFitRecord> {
+) -> Result<PeakFitRecord, String> {
     let lo = det.gates.iter().map(|(_, g)| g.left.low_mev).fold(f64::INFINITY, f64::min);
     let hi = det.gates.iter().map(|(_, g)| g.right.high_mev).fold(f64::NEG_INFINITY, f64::max);
-    let (x, y): (Vec<f64>, Vec<f64>) = (0..n_ch)
-        .map(|ch| (det.cal.energy_mev(ch as f64), spectrum(ch)))
-        .filter(|(e, _)| *e >= lo && *e < hi)
-        .unzip();
-    if det.gates.is_empty() || x.len() < 2 + 3 * det.gates.len() + 1 {
-        return None;
+    let (x, y): (Vec<f64>, Vec<f64>) =
+        (0..n_ch).map(|ch| (det.cal.energy_mev(ch as f64), spectrum(ch))).filter(|(e, _)| *e >= lo && *e < hi).unzip();
+    let total: f64 = y.iter().sum();
+    if det.gates.is_empty() || x.len() < 2 + 3 * det.gates.len() + 1 || total < PEAK_FIT_MIN_COUNTS {
+        return Err(format!(
+            "{total} counts in {} bins of the fit region (a fit needs {PEAK_FIT_MIN_COUNTS})",
+            x.len()
+        ));
     }
-    let background = if method == BackgroundMethod::PeakFitExponential { Background::Exponential } else { Background::Linear };
+    let background =
+        if method == BackgroundMethod::PeakFitExponential { Background::Exponential } else { Background::Linear };
     let model = PeakModel { background, peaks: det.gates.len() };
     let sigma: Vec<f64> = y.iter().map(|n| n.max(1.0).sqrt()).collect();
     let side: Vec<f64> = det
         .gates
         .iter()
-        .flat_map(|(_, g)| x.iter().zip(&y).filter(move |(e, _)| g.left.contains(**e) || g.right.contains(**e)).map(|(_, n)| *n))
+        .flat_map(|(_, g)| {
+            x.iter().zip(&y).filter(move |(e, _)| g.left.contains(**e) || g.right.contains(**e)).map(|(_, n)| *n)
+        })
         .collect();
     let b0 = if side.is_empty() { 0.0 } else { side.iter().sum::<f64>() / side.len() as f64 };
     let mut p0 = vec![b0.max(1e-3), 0.0];
     for (_, g) in &det.gates {
         let peak = x.iter().zip(&y).filter(|(e, _)| g.window.contains(**e)).map(|(_, n)| *n).fold(0.0, f64::max);
-        let centre = if g.energy_kinematic_mev.is_finite() { g.energy_kinematic_mev } else { 0.5 * (g.window.low_mev + g.window.high_mev) };
+        let centre = if g.energy_kinematic_mev.is_finite() {
+            g.energy_kinematic_mev
+        } else {
+            0.5 * (g.window.low_mev + g.window.high_mev)
+        };
         p0.extend([(peak - b0).max(1.0), centre, resolution_mev]);
     }
     let bin = det.cal.gain_mev_per_channel;
     let fit = fit_peaks(&model, &x, &y, &sigma, &p0, bin);
-    Some(PeakFitRecord {
+    Ok(PeakFitRecord {
         detector: det.id.clone(),
+        window_counts: det
+            .gates
+            .iter()
+            .map(|(_, g)| x.iter().zip(&y).filter(|(e, _)| g.window.contains(**e)).map(|(_, n)| *n).sum())
+            .collect(),
         chi2: fit.chi2,
         ndf: fit.ndf,
         converged: fit.termination.converged(),

@@ -652,9 +652,13 @@ pub enum RunData {
 impl RunRecord {
     /// The data file and its kind (the first given; `validate` insists on exactly one).
     pub fn data_file(&self) -> Option<(RunData, &str)> {
-        [(RunData::Yields, &self.yields_file), (RunData::Events, &self.events_file), (RunData::Spectra, &self.spectra_file)]
-            .into_iter()
-            .find_map(|(k, v)| v.as_deref().map(|v| (k, v)))
+        [
+            (RunData::Yields, &self.yields_file),
+            (RunData::Events, &self.events_file),
+            (RunData::Spectra, &self.spectra_file),
+        ]
+        .into_iter()
+        .find_map(|(k, v)| v.as_deref().map(|v| (k, v)))
     }
 
     /// The charge as recorded, if exactly one way was given.
@@ -694,7 +698,9 @@ impl RunRecord {
         .filter_map(|(k, v)| v.as_ref().map(|v| (k, v)))
         .collect();
         match given.as_slice() {
-            [(key, path)] => c.require(!path.trim().is_empty(), key, "an empty path", "the path of the run's data file"),
+            [(key, path)] => {
+                c.require(!path.trim().is_empty(), key, "an empty path", "the path of the run's data file")
+            }
             [] => c.require(false, "yields_file", "missing", "one of yields_file, events_file, spectra_file"),
             more => c.require(
                 false,

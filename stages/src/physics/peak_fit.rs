@@ -118,7 +118,9 @@ pub struct PeakFit {
 /// numbers) and the Levenberg–Marquardt method of [`minimise`] handles far starts.
 pub fn fit_peaks(model: &PeakModel, x: &[f64], y: &[f64], sigma: &[f64], p0: &[f64], bin_width: f64) -> PeakFit {
     let pts = Points { model, x, y, sigma };
-    let r = minimise(&pts, p0, &LmOptions::default());
+    // Tight tolerances (the NIST datasets need them), a bounded number of iterations for
+    // sparse spectra.
+    let r = minimise(&pts, p0, &LmOptions { max_iterations: 500, ..LmOptions::default() });
     let n = model.n_params();
     let covariance = inverse_normal_matrix(&r.jacobian, x.len(), n);
     let errors = covariance.as_ref().map(|c| (0..n).map(|j| c[j * n + j].max(0.0).sqrt()).collect::<Vec<_>>());
