@@ -244,3 +244,19 @@ fn peak_fit_background_agrees_with_side_bands_on_the_demo() {
     let fits = &raw_json(tmp.path(), "0201")["peak_fits"];
     assert!(fits.as_array().is_some_and(|f| !f.is_empty()), "{fits}");
 }
+
+#[test]
+fn windows_written_in_channels_are_the_same_as_in_mev() {
+    // E = 0.01 MeV × channel here, so channels [2000, 2100) are [20, 21) MeV.
+    let tmp = tempfile::tempdir().expect("scratch");
+    tiny(tmp.path(), "", "det,adc,pu\nA,2000,0\nA,2099,0\nA,2100,0\nA,1949,0\n");
+    edit(&tmp.path().join("experiment.yaml"), "window_mev: [20.0, 21.0]", "window_channels: [2000, 2100]");
+    let out = reduce(tmp.path());
+    assert_eq!(out.status.code(), Some(0), "{}", text(&out));
+    let t = &raw_json(tmp.path(), "t1")["tally"];
+    assert_eq!(
+        (t["in_window"].as_u64(), t["in_side_band"].as_u64(), t["outside_gates"].as_u64()),
+        (Some(2), Some(1), Some(1)),
+        "{t}"
+    );
+}

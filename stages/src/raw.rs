@@ -117,14 +117,31 @@ pub struct WindowConfig {
     pub detector: String,
     /// State name.
     pub state: String,
-    /// Peak window [low, high) in MeV.
-    pub window_mev: [f64; 2],
+    /// Peak window [low, high) in MeV (or give `window_channels`).
+    #[serde(default)]
+    pub window_mev: Option<[f64; 2]>,
+    /// Peak window [low, high) in ADC channels, converted by the detector's calibration.
+    #[serde(default)]
+    pub window_channels: Option<[f64; 2]>,
     /// Left side band [low, high) in MeV; default from the automatic rule.
     #[serde(default)]
     pub left_mev: Option<[f64; 2]>,
+    /// Left side band in channels.
+    #[serde(default)]
+    pub left_channels: Option<[f64; 2]>,
     /// Right side band [low, high) in MeV; default from the automatic rule.
     #[serde(default)]
     pub right_mev: Option<[f64; 2]>,
+    /// Right side band in channels.
+    #[serde(default)]
+    pub right_channels: Option<[f64; 2]>,
+}
+
+impl WindowConfig {
+    /// One interval given in MeV or in channels (converted by `cal`), if given.
+    fn interval(mev: Option<[f64; 2]>, channels: Option<[f64; 2]>, cal: &CalibrationConfig) -> Option<Interval> {
+        mev.map(Interval::new).or_else(|| channels.map(|[a, b]| Interval::new([cal.energy_mev(a), cal.energy_mev(b)])))
+    }
 }
 
 /// Gates: automatic windows around the kinematic energies, and written ones.
@@ -356,8 +373,32 @@ impl RawConfig {
                 &w.state,
                 &format!("a state ({})", states.join(", ")),
             );
-            for (name, iv) in [("window_mev", Some(w.window_mev)), ("left_mev", w.left_mev), ("right_mev", w.right_mev)]
-            {
+            for (a, b) in [
+                ("window", (w.window_mev, w.window_channels)),
+                ("left", (w.left_mev, w.left_channels)),
+                ("right", (w.right_mev, w.right_channels)),
+            ] {
+                c.require(
+                    b.0.is_none() || b.1.is_none(),
+                    &format!("{key}.{a}_channels"),
+                    "both MeV and channels",
+                    &format!("{a}_mev or {a}_channels, not both"),
+                );
+            }
+            c.require(
+                w.window_mev.is_some() || w.window_channels.is_some(),
+                &format!("{key}.window_mev"),
+                "missing",
+                "window_mev or window_channels",
+            );
+            for (name, iv) in [
+                ("window_mev", w.window_mev),
+                ("window_channels", w.window_channels),
+                ("left_mev", w.left_mev),
+                ("left_channels", w.left_channels),
+                ("right_mev", w.right_mev),
+                ("right_channels", w.right_channels),
+            ] {
                 if let Some([a, b]) = iv {
                     c.require(
                         a.is_finite() && b.is_finite() && a < b,
@@ -408,19 +449,20 @@ impl RawConfig {
                     g.side_band_gap_resolutions,
                     g.side_band_width_resolutions,
                 );
-                let window = match (written, e_kin) {
-                    (Some(w), _) => Interval::new(w.window_mev),
+                let written_window =
+                    written.and_then(|w| WindowConfig::interval(w.window_mev, w.window_channels, &cal));
+                let window = match (written_window, e_kin) {
+                    (Some(w), _) => w,
                     (None, Some(e)) => Interval { low_mev: e - wr * s, high_mev: e + wr * s },
                     (None, None) => continue, // the state cannot reach this angle
                 };
-                let left = written.and_then(|w| w.left_mev).map_or(
+                let left = written.and_then(|w| WindowConfig::interval(w.left_mev, w.left_channels, &cal)).unwrap_or(
                     Interval { low_mev: window.low_mev - (gap + bw) * s, high_mev: window.low_mev - gap * s },
-                    Interval::new,
                 );
-                let right = written.and_then(|w| w.right_mev).map_or(
-                    Interval { low_mev: window.high_mev + gap * s, high_mev: window.high_mev + (gap + bw) * s },
-                    Interval::new,
-                );
+                let right =
+                    written.and_then(|w| WindowConfig::interval(w.right_mev, w.right_channels, &cal)).unwrap_or(
+                        Interval { low_mev: window.high_mev + gap * s, high_mev: window.high_mev + (gap + bw) * s },
+                    );
                 gates.push((
                     si,
                     Gate {
