@@ -64,6 +64,18 @@ impl<'a> DetectorMap<'a> {
     fn column(&mut self, c: &Column) -> Result<Vec<u16>, String> {
         let s = c.as_materialized_series();
         match s.dtype() {
+            // The common case, one table lookup per event.
+            DataType::UInt16 => {
+                let mut out = Vec::with_capacity(s.len());
+                for a in s.u16().map_err(|e| e.to_string())?.downcast_iter() {
+                    if a.validity().is_none_or(|v| v.unset_bits() == 0) {
+                        out.extend(a.values().iter().map(|v| self.small[usize::from(*v)]));
+                    } else {
+                        out.extend(a.iter().map(|v| v.map_or(UNKNOWN_DETECTOR, |v| self.small[usize::from(*v)])));
+                    }
+                }
+                Ok(out)
+            }
             DataType::String => Ok(s
                 .str()
                 .map_err(|e| e.to_string())?
@@ -158,20 +170,35 @@ fn read_parquet(
     let found: Vec<String> = schema.iter_names().map(|n| n.to_string()).collect();
     check_columns(&found, roles)?;
     let meta = reader.get_metadata().map_err(|e| format!("cannot read it as Parquet: {e}"))?.clone();
-    let mut offset = 0;
-    for rg in &meta.row_groups {
-        let n = rg.num_rows();
-        let mut r = ParquetReader::new(open()?);
-        r.set_metadata(meta.clone());
-        let df = r
-            .with_columns(Some(roles.names()))
-            .with_slice(Some((offset, n)))
-            .finish()
-            .map_err(|e| format!("cannot read rows {offset}..{}: {e}", offset + n))?;
-        add_frame(acc, map, &df, roles)?;
-        offset += n;
-    }
-    Ok(())
+    // One thread decodes row group k + 1 while this one accumulates row group k; at most
+    // two decoded row groups exist at a time, so memory follows the row-group size.
+    let (send, receive) = std::sync::mpsc::sync_channel::<Result<DataFrame, String>>(1);
+    let names = roles.names();
+    std::thread::scope(|scope| {
+        scope.spawn(move || {
+            let mut offset = 0;
+            for rg in &meta.row_groups {
+                let n = rg.num_rows();
+                let frame = open().and_then(|f| {
+                    let mut r = ParquetReader::new(f);
+                    r.set_metadata(meta.clone());
+                    r.with_columns(Some(names.clone()))
+                        .with_slice(Some((offset, n)))
+                        .finish()
+                        .map_err(|e| format!("cannot read rows {offset}..{}: {e}", offset + n))
+                });
+                let failed = frame.is_err();
+                if send.send(frame).is_err() || failed {
+                    return;
+                }
+                offset += n;
+            }
+        });
+        for frame in receive {
+            add_frame(acc, map, &frame?, roles)?;
+        }
+        Ok(())
+    })
 }
 
 fn ipc_columns(path: &Path) -> Result<Vec<String>, String> {
