@@ -137,6 +137,10 @@ fn missing_or_mistyped_columns_and_corrupt_files_fail_the_run_with_a_reason() {
     std::fs::write(dir.join("run0202.events.csv"), csv).expect("write");
     let bytes = std::fs::read(dir.join("run0201.events.parquet")).expect("parquet");
     std::fs::write(dir.join("run0201.events.parquet"), &bytes[..bytes.len() / 2]).expect("truncate");
+    // `xsflow check` finds both from the header and the file's footer alone.
+    let check = text(&xsflow(tmp.path(), &["check", "experiment.yaml"]));
+    assert!(check.contains("run0202.events.csv") && check.contains("column `adc` not found"), "{check}");
+    assert!(check.contains("run0201.events.parquet") && check.contains("cannot read it as Parquet"), "{check}");
     let out = reduce(tmp.path());
     let msg = text(&out);
     assert_eq!(out.status.code(), Some(1), "{msg}");

@@ -272,6 +272,37 @@ fn read_csv_events(
     Ok(())
 }
 
+/// Check that an event or spectrum file has the mapped columns, reading only its schema
+/// (or header line).
+///
+/// # Errors
+/// An unreadable file, an unknown format, or the missing columns (the columns found named).
+pub fn check_file(path: &Path, plan: &RawPlan, spectra: bool) -> Result<(), String> {
+    let (c, s) = (&plan.config.columns, &plan.config.spectrum_columns);
+    let roles = if spectra {
+        Roles { detector: &s.detector, value: &s.channel, delta_e: Some(&s.counts), pile_up: None, time: None }
+    } else {
+        Roles {
+            detector: &c.detector,
+            value: &c.energy,
+            delta_e: c.delta_e.as_deref(),
+            pile_up: c.pile_up.as_deref(),
+            time: c.time.as_deref(),
+        }
+    };
+    let found = match extension(path).as_str() {
+        "parquet" | "pq" => {
+            let mut reader = ParquetReader::new(File::open(path).map_err(|e| format!("cannot open it: {e}"))?);
+            let schema = reader.schema().map_err(|e| format!("cannot read it as Parquet: {e}"))?;
+            schema.iter_names().map(|n| n.to_string()).collect()
+        }
+        "arrow" | "ipc" | "feather" => ipc_columns(path)?,
+        "csv" => csv_lines(path)?.0,
+        ext => return Err(format!("unknown file format `.{ext}`; accepted: {ACCEPTED}")),
+    };
+    check_columns(&found, &roles)
+}
+
 /// Reduce a list-mode event file to yields, tallies and spectra.
 ///
 /// # Errors

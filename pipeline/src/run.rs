@@ -348,8 +348,14 @@ pub fn check_runs(plan: &Plan) -> Vec<RunFailure> {
     for planned in &plan.runs {
         let problems = match &planned.loaded {
             Err(d) => d.clone(),
-            // Event and spectrum files are checked when they are read (they may be large).
-            Ok(run) if run.data != RunData::Yields => Vec::new(),
+            // Event and spectrum files: their columns only (the files may be large).
+            Ok(run) if run.data != RunData::Yields => match &plan.raw {
+                Some(raw) => crate::events::check_file(&run.yields_path, raw, run.data == RunData::Spectra)
+                    .err()
+                    .map(|m| vec![Diagnostic::new(&run.yields_path, "", m)])
+                    .unwrap_or_default(),
+                None => Vec::new(),
+            },
             Ok(run) => match read_table(&run.yields_path) {
                 Err(m) => vec![Diagnostic::new(&run.yields_path, "", m)],
                 Ok(raw) => match stages::yields::prepare(&raw, &plan.setup, &run.record.run.0) {
