@@ -2,6 +2,7 @@
 //! Reference checks name their source beside each comparison.
 
 mod bad_input;
+mod batch;
 mod cli;
 mod common;
 mod config;

@@ -29,7 +29,9 @@ def main():
     table = pq.read_table(path, columns=["det", "adc"])
     det = table.column("det").to_numpy()
     adc = table.column("adc").to_numpy()
-    ok = (adc < CHANNELS) & (det < DETECTORS)
+    if adc.dtype.kind == "f":
+        adc = np.floor(adc).astype(np.int64)  # fractional channels: bins of one channel
+    ok = (adc < CHANNELS) & (adc >= 0) & (det < DETECTORS)
     hist = np.bincount(det[ok].astype(np.int64) * CHANNELS + adc[ok], minlength=DETECTORS * CHANNELS)
     hist = hist.reshape(DETECTORS, CHANNELS)
     energy = 0.05 + 0.01 * np.arange(CHANNELS)

@@ -1,7 +1,8 @@
 //! Benchmark of list-mode reduction (release build):
 //!     cargo bench -p xsflow --bench events [-- EVENTS...]
 //! For each size (default 1e8 and 3e8 events) it writes a synthetic Parquet file (detector
-//! u16 of 16 detectors, ADC u16 of 4096 channels, two invented states per detector on a flat
+//! u16 of 16 detectors, ADC u16 of 4096 channels, or with `--f32` ADC f32 with fractional
+//! channels, two invented states per detector on a flat
 //! background; zstd, row groups of 2^20 rows) into a scratch folder, then in separate child
 //! processes (so that each peak RSS is its own) measures: xsflow's reduction to yields
 //! (`reduce_events`: both columns decoded row group by row group, histogrammed, gated, side
@@ -62,7 +63,7 @@ fn plan_in(dir: &Path) -> Result<xsflow::plan::Plan, String> {
     xsflow::plan::plan(&dir.join("bench.yaml")).map_err(|d| format!("{d:?}"))
 }
 
-fn write_events(path: &Path, n: usize, plan: &stages::raw::RawPlan) -> Result<(), String> {
+fn write_events(path: &Path, n: usize, plan: &stages::raw::RawPlan, f32_adc: bool) -> Result<(), String> {
     let gates = plan.gates();
     let mut rng = Rng::new(42);
     let file = std::fs::File::create(path).map_err(|e| e.to_string())?;
@@ -87,8 +88,12 @@ fn write_events(path: &Path, n: usize, plan: &stages::raw::RawPlan) -> Result<()
             det.push(d as u16);
             adc.push((ch as u16).min(CHANNELS + 10));
         }
-        let df = DataFrame::new_infer_height(vec![Column::new("det".into(), det), Column::new("adc".into(), adc)])
-            .map_err(|e| e.to_string())?;
+        let adc = if f32_adc {
+            Column::new("adc".into(), adc.iter().map(|c| f32::from(*c) + rng.uniform() as f32).collect::<Vec<f32>>())
+        } else {
+            Column::new("adc".into(), adc)
+        };
+        let df = DataFrame::new_infer_height(vec![Column::new("det".into(), det), adc]).map_err(|e| e.to_string())?;
         w.write_batch(&df).map_err(|e| e.to_string())?;
         done += m;
     }
@@ -183,6 +188,7 @@ fn main() -> Result<(), String> {
     let sizes: Vec<usize> =
         args.iter().skip(1).filter_map(|a| a.parse::<f64>().ok()).map(|x| x as usize).collect::<Vec<_>>();
     let sizes = if sizes.is_empty() { vec![100_000_000, 300_000_000] } else { sizes };
+    let f32_adc = args.iter().any(|a| a == "--f32");
     let cpu = std::fs::read_to_string("/proc/cpuinfo")
         .ok()
         .and_then(|s| {
@@ -200,9 +206,10 @@ fn main() -> Result<(), String> {
         let plan = plan_in(&dir)?;
         let path = dir.join("events.parquet");
         let t = Instant::now();
-        write_events(&path, n, plan.raw.as_ref().ok_or("no raw")?)?;
+        write_events(&path, n, plan.raw.as_ref().ok_or("no raw")?, f32_adc)?;
         let bytes = std::fs::metadata(&path).map_err(|e| e.to_string())?.len() as f64;
-        println!("{n} events: file {:.0} MB written in {:.1} s", bytes / 1e6, t.elapsed().as_secs_f64());
+        let kind = if f32_adc { "f32" } else { "u16" };
+        println!("{n} events (ADC {kind}): file {:.0} MB written in {:.1} s", bytes / 1e6, t.elapsed().as_secs_f64());
         let (t_reduce, rss_reduce) = measure(&mut || {
             let mut c = Command::new(&exe);
             c.args(["--child", "reduce", &dir.to_string_lossy()]);

@@ -87,6 +87,45 @@ pub enum Command {
         #[arg(long, value_enum, default_value_t = Format::Text)]
         format: Format,
     },
+    /// Process every new or changed run of a config into one output folder, with a run
+    /// catalogue (catalogue.sqlite): unchanged runs (same record, data file and config) are
+    /// skipped. Exit 0 when no run failed, 1 when some did (the others are still done), 2 for
+    /// a bad config or an unusable output folder.
+    Batch {
+        /// The experiment config (YAML).
+        config: PathBuf,
+        /// Output folder; default `out` beside the config.
+        #[arg(long)]
+        out: Option<PathBuf>,
+        /// Runs processed at once.
+        #[arg(long, default_value_t = 1)]
+        jobs: usize,
+        /// Process only shard K of N (1 <= K <= N), split by a hash of the run id that is the
+        /// same on every machine, for a cluster job array.
+        #[arg(long, value_name = "K/N")]
+        shard: Option<String>,
+        /// Reprocess every run, changed or not.
+        #[arg(long)]
+        force: bool,
+        /// Only list what would be processed, and why.
+        #[arg(long)]
+        dry_run: bool,
+        /// Output format of the summary.
+        #[arg(long, value_enum, default_value_t = Format::Text)]
+        format: Format,
+    },
+    /// List the run catalogue of a batch output folder.
+    Runs {
+        /// The batch output folder.
+        #[arg(default_value = "out")]
+        out: PathBuf,
+        /// Only failed runs.
+        #[arg(long)]
+        failed: bool,
+        /// Output format.
+        #[arg(long, value_enum, default_value_t = TableFormat::Table)]
+        format: TableFormat,
+    },
     /// Two-body kinematics a + A -> b + B at lab angles of the detected particle: CM angle,
     /// lab energy, Jacobian, both solutions where the angle is double valued, and the
     /// partner's angle and energy. Angles past the kinematic limit give no row and a warning.

@@ -2,6 +2,8 @@
 //! provenance, outputs, and the `xsflow` command line. Physics and stages live in the
 //! `stages` crate; this crate reads files and writes results.
 
+pub mod batch;
+pub mod catalogue;
 pub mod cli;
 pub mod config;
 pub mod error;

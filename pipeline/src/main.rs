@@ -27,6 +27,10 @@ fn main() -> ExitCode {
     ExitCode::from(match cli.command {
         Command::Check { config, format } => check(&config, format),
         Command::Reduce { config, out, runs, format } => reduce(&config, out.as_deref(), &runs, format),
+        Command::Batch { config, out, jobs, shard, force, dry_run, format } => {
+            batch(&config, out.as_deref(), jobs, shard.as_deref(), force, dry_run, format)
+        }
+        Command::Runs { out, failed, format } => runs(&out, failed, format),
         Command::Kinematics {
             beam,
             target,
@@ -247,4 +251,124 @@ fn fit_command(data: &Path, model: &Path, state: Option<&str>, out: Option<&Path
         );
         1
     }
+}
+
+fn batch(
+    config: &Path,
+    out: Option<&Path>,
+    jobs: usize,
+    shard: Option<&str>,
+    force: bool,
+    dry_run: bool,
+    format: Format,
+) -> u8 {
+    let shard = match shard.map(xsflow::batch::parse_shard).transpose() {
+        Ok(s) => s,
+        Err(m) => {
+            eprintln!("{m}");
+            return 2;
+        }
+    };
+    let p = match plan(config) {
+        Ok(p) => p,
+        Err(diags) => {
+            print_problems(format, &diags, &[]);
+            eprintln!("{} problem(s) in {}; nothing was processed", diags.len(), config.display());
+            return 2;
+        }
+    };
+    let out = out.map_or_else(|| p.config_dir.join("out"), Path::to_path_buf);
+    let opts = xsflow::batch::BatchOptions { out: out.clone(), jobs, shard, force, dry_run };
+    let (summary, failures, lines) = match xsflow::batch::batch(&p, &opts) {
+        Ok(r) => r,
+        Err(d) => {
+            report(&[d]);
+            return 2;
+        }
+    };
+    match format {
+        Format::Json => {
+            println!("{}", serde_json::json!({ "summary": summary, "out": out, "failures": failures, "runs": lines }))
+        }
+        Format::Text => {
+            if dry_run {
+                for l in &lines {
+                    println!("{l}");
+                }
+            }
+            print_problems(format, &[], &failures);
+        }
+    }
+    let fits = if p.fits.is_empty() || shard.is_some() || dry_run || summary.fits_ok + summary.fits_failed == 0 {
+        String::new()
+    } else {
+        format!("; {} fit(s) converged, {} failed", summary.fits_ok, summary.fits_failed)
+    };
+    let verb = if dry_run { "would be processed" } else { "ok" };
+    eprintln!(
+        "batch: {} {verb}, {} failed, {} skipped (unchanged){}{fits}; outputs in {}",
+        if dry_run { lines.len() - summary.skipped } else { summary.ok },
+        summary.failed,
+        summary.skipped,
+        if summary.other_shards > 0 { format!(", {} in other shards", summary.other_shards) } else { String::new() },
+        out.display()
+    );
+    u8::from(summary.failed + summary.fits_failed > 0)
+}
+
+fn runs(out: &Path, failed: bool, format: TableFormat) -> u8 {
+    if !out.join(xsflow::catalogue::CATALOGUE_FILE).is_file() {
+        eprintln!(
+            "{}: no run catalogue here (xsflow batch writes {})",
+            out.display(),
+            xsflow::catalogue::CATALOGUE_FILE
+        );
+        return 2;
+    }
+    let entries = match xsflow::catalogue::Catalogue::open(out).and_then(|c| c.list(failed)) {
+        Ok(e) => e,
+        Err(m) => {
+            eprintln!("{m}");
+            return 2;
+        }
+    };
+    match format {
+        TableFormat::Json => println!("{}", serde_json::to_string_pretty(&entries).unwrap_or_default()),
+        TableFormat::Csv => {
+            println!("run,status,seconds,events,charge_c,live_fraction,processed_utc,error");
+            for e in &entries {
+                let opt = |v: Option<f64>| v.map(|x| x.to_string()).unwrap_or_default();
+                println!(
+                    "{},{},{},{},{},{},{},\"{}\"",
+                    e.run,
+                    e.status,
+                    e.seconds,
+                    e.events.map(|x| x.to_string()).unwrap_or_default(),
+                    opt(e.charge_c),
+                    opt(e.live_fraction),
+                    e.processed_utc,
+                    e.error.replace('"', "'").replace('\n', " | ")
+                );
+            }
+        }
+        TableFormat::Table => {
+            println!(
+                "{:<12} {:<7} {:>9} {:>12} {:>12} {:>8}  {}",
+                "run", "status", "seconds", "events", "charge_c", "live", "error"
+            );
+            for e in &entries {
+                println!(
+                    "{:<12} {:<7} {:>9.3} {:>12} {:>12} {:>8}  {}",
+                    e.run,
+                    e.status,
+                    e.seconds,
+                    e.events.map(|x| x.to_string()).unwrap_or_else(|| "-".into()),
+                    e.charge_c.map(|x| format!("{x:.4e}")).unwrap_or_else(|| "-".into()),
+                    e.live_fraction.map(|x| format!("{x:.4}")).unwrap_or_else(|| "-".into()),
+                    e.error.lines().next().unwrap_or("")
+                );
+            }
+        }
+    }
+    0
 }

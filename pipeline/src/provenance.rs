@@ -14,7 +14,7 @@ pub fn sha256_hex(bytes: &[u8]) -> String {
 }
 
 /// One input file and its hash.
-#[derive(Debug, Clone, Serialize, PartialEq, Eq)]
+#[derive(Debug, Clone, Serialize, serde::Deserialize, PartialEq, Eq)]
 pub struct InputFile {
     /// Path relative to the config file's folder (as written in the config chain).
     pub path: String,

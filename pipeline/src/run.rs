@@ -266,7 +266,7 @@ pub fn reduce_all(plan: &Plan, out_dir: &Path) -> (Summary, Vec<RunFailure>) {
             let mut reduced = reduce_run(plan, run)?;
             let files = write_outputs(out_dir, &mut reduced).map_err(|d| vec![d])?;
             if !plan.fits.is_empty() {
-                tables.push((reduced.table, reduced.provenance));
+                tables.push((reduced.table, reduced.provenance.inputs));
             }
             Ok(files)
         });
@@ -282,6 +282,19 @@ pub fn reduce_all(plan: &Plan, out_dir: &Path) -> (Summary, Vec<RunFailure>) {
             }
         }
     }
+    run_fits(plan, &tables, out_dir, &mut summary, &mut failures);
+    (summary, failures)
+}
+
+/// Run the plan's fits on the reduced tables (with the inputs they came from), counting
+/// them in `summary` and their failures in `failures`.
+pub fn run_fits(
+    plan: &Plan,
+    tables: &[(DataFrame, Vec<crate::provenance::InputFile>)],
+    out_dir: &Path,
+    summary: &mut Summary,
+    failures: &mut Vec<RunFailure>,
+) {
     for f in &plan.fits {
         let _span = info_span!("fit", fit = %f.name).entered();
         match run_fit(plan, f, &tables, out_dir) {
@@ -304,14 +317,13 @@ pub fn reduce_all(plan: &Plan, out_dir: &Path) -> (Summary, Vec<RunFailure>) {
             }
         }
     }
-    (summary, failures)
 }
 
 /// Fit the stacked tables of the reduced runs; `Ok(converged)`.
 fn run_fit(
     plan: &Plan,
     f: &crate::plan::PlannedFit,
-    tables: &[(DataFrame, Provenance)],
+    tables: &[(DataFrame, Vec<crate::provenance::InputFile>)],
     out_dir: &Path,
 ) -> Result<bool, Diagnostic> {
     if tables.is_empty() {
@@ -326,7 +338,7 @@ fn run_fit(
         version: env!("CARGO_PKG_VERSION"),
         fit_file: f.loaded.path.to_string_lossy().into_owned(),
         fit_sha256: crate::provenance::sha256_hex(&f.loaded.bytes),
-        inputs: tables.iter().flat_map(|(_, p)| p.inputs.iter().cloned()).collect(),
+        inputs: tables.iter().flat_map(|(_, inputs)| inputs.iter().cloned()).collect(),
         created_utc: rfc3339_utc(record_time_s()),
     };
     let json = serde_json::to_string_pretty(&record).unwrap_or_default();

@@ -1,0 +1,270 @@
+//! `xsflow batch`: every new or changed run of a config, incrementally, into one output
+//! folder with a run catalogue; runs spread over `--jobs` threads, optionally one shard of
+//! a cluster job array (`--shard K/N`). A run is changed when the SHA-256 of its record and
+//! data file, or of the config sections that affect every run (reaction, target, detectors,
+//! the per-run stages, raw), differs from its last successful processing. One bad run never
+//! stops the others; outputs are written atomically before the catalogue records them, so a
+//! batch killed at any moment leaves either the old or the new state of each run.
+
+use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicUsize, Ordering};
+use std::sync::Mutex;
+use std::time::Instant;
+
+use polars::prelude::DataFrame;
+use tracing::{info, info_span, warn};
+
+use crate::catalogue::{Catalogue, RunEntry};
+use crate::config::YamlFile;
+use crate::error::{Diagnostic, RunFailure};
+use crate::plan::{Plan, PlannedRun};
+use crate::provenance::{record_time_s, rfc3339_utc, sha256_file, sha256_hex, InputFile};
+use crate::run::{reduce_run, write_outputs, Summary, CROSS_SECTIONS_PARQUET, PROVENANCE_JSON};
+
+/// Settings of a batch.
+#[derive(Debug, Clone)]
+pub struct BatchOptions {
+    /// Output folder.
+    pub out: PathBuf,
+    /// Worker threads.
+    pub jobs: usize,
+    /// This shard `(k, n)`, 1 ≤ k ≤ n.
+    pub shard: Option<(u64, u64)>,
+    /// Reprocess every run.
+    pub force: bool,
+    /// Only say what would be done.
+    pub dry_run: bool,
+}
+
+/// What a batch did.
+#[derive(Debug, Default, Clone, PartialEq, Eq, serde::Serialize)]
+pub struct BatchSummary {
+    /// Runs processed successfully.
+    pub ok: usize,
+    /// Runs that failed.
+    pub failed: usize,
+    /// Runs unchanged since their last success.
+    pub skipped: usize,
+    /// Runs of other shards.
+    pub other_shards: usize,
+    /// Fits that converged / failed.
+    pub fits_ok: usize,
+    /// Fits that failed or did not converge.
+    pub fits_failed: usize,
+}
+
+/// Parse `K/N`.
+///
+/// # Errors
+/// Anything but two whole numbers with 1 ≤ K ≤ N.
+pub fn parse_shard(text: &str) -> Result<(u64, u64), String> {
+    let bad = || format!("--shard {text}: expected K/N with whole numbers 1 <= K <= N, such as 2/8");
+    let (k, n) = text.split_once('/').ok_or_else(bad)?;
+    let (k, n): (u64, u64) = (k.trim().parse().map_err(|_| bad())?, n.trim().parse().map_err(|_| bad())?);
+    if k == 0 || n == 0 || k > n {
+        return Err(bad());
+    }
+    Ok((k, n))
+}
+
+/// The shard (1-based) a run id belongs to among `n`: the first 8 bytes of SHA-256 of the
+/// id, modulo n, so the split is the same on every machine.
+pub fn shard_of(run: &str, n: u64) -> u64 {
+    let h = sha256_hex(run.as_bytes());
+    u64::from_str_radix(&h[..16], 16).unwrap_or(0) % n + 1
+}
+
+/// SHA-256 of the config sections that affect every run (fit entries excluded: they
+/// change no run's outputs).
+///
+/// # Errors
+/// The config cannot be read.
+pub fn config_hash(config_path: &Path) -> Result<String, Diagnostic> {
+    let file = YamlFile::read(config_path)?;
+    let mut parts = Vec::new();
+    for key in ["reaction", "target", "detectors", "stages", "raw"] {
+        let mut v = file.value.get(key).cloned().unwrap_or(serde_yaml::Value::Null);
+        if let (Some(items), "stages") = (v.as_sequence_mut(), key) {
+            items.retain(|i| i.get("type").and_then(|t| t.as_str()) != Some("fit"));
+        }
+        parts.push(serde_json::to_string(&v).unwrap_or_default());
+    }
+    Ok(sha256_hex(parts.join("\n").as_bytes()))
+}
+
+/// One run's input hash: record bytes and data file.
+fn input_hash(run: &PlannedRun) -> Result<String, String> {
+    let loaded = run.loaded.as_ref().map_err(|_| "record did not load".to_string())?;
+    let data = sha256_file(&loaded.yields_path).map_err(|e| format!("{}: {e}", loaded.yields_path.display()))?;
+    Ok(sha256_hex(format!("{}\n{data}", sha256_hex(&loaded.record_bytes)).as_bytes()))
+}
+
+/// Process the runs of `plan` that are new or changed.
+///
+/// # Errors
+/// An output folder or catalogue that cannot be used (nothing is processed then).
+pub fn batch(plan: &Plan, opts: &BatchOptions) -> Result<(BatchSummary, Vec<RunFailure>, Vec<String>), Diagnostic> {
+    let fail = |m: String| Diagnostic::new(&opts.out, "", m);
+    std::fs::create_dir_all(&opts.out).map_err(|e| fail(format!("cannot create the output folder: {e}")))?;
+    let catalogue = Mutex::new(Catalogue::open(&opts.out).map_err(fail)?);
+    let config_sha = config_hash(&plan.config_path)?;
+    let mut summary = BatchSummary::default();
+    let mut todo: Vec<(&PlannedRun, String)> = Vec::new();
+    let mut lines = Vec::new();
+    for run in &plan.runs {
+        let label = run.label();
+        if let Some((k, n)) = opts.shard {
+            if shard_of(&label, n) != k {
+                summary.other_shards += 1;
+                continue;
+            }
+        }
+        let hash = input_hash(run).unwrap_or_default();
+        let previous =
+            catalogue.lock().map_err(|_| fail("catalogue lock poisoned".into()))?.get(&label).map_err(fail)?;
+        let unchanged = previous.as_ref().is_some_and(|p| {
+            p.status == "ok"
+                && p.input_sha256 == hash
+                && p.config_sha256 == config_sha
+                && opts.out.join(&label).join(CROSS_SECTIONS_PARQUET).is_file()
+        });
+        if unchanged && !opts.force {
+            summary.skipped += 1;
+            lines.push(format!("{label}: unchanged"));
+        } else {
+            let why = match &previous {
+                None => "new",
+                Some(p) if p.status != "ok" => "failed before",
+                Some(p) if p.config_sha256 != config_sha => "config changed",
+                Some(_) if opts.force => "forced",
+                Some(_) => "inputs changed",
+            };
+            lines.push(format!("{label}: {why}"));
+            todo.push((run, hash));
+        }
+    }
+    if opts.dry_run {
+        return Ok((summary, Vec::new(), lines));
+    }
+    let next = AtomicUsize::new(0);
+    let failures = Mutex::new(Vec::new());
+    let counts = Mutex::new((0usize, 0usize));
+    let catalogue_errors = Mutex::new(Vec::new());
+    std::thread::scope(|scope| {
+        for _ in 0..opts.jobs.max(1).min(todo.len().max(1)) {
+            scope.spawn(|| loop {
+                let i = next.fetch_add(1, Ordering::SeqCst);
+                let Some((run, hash)) = todo.get(i) else { break };
+                let label = run.label();
+                let _span = info_span!("run", run = %label).entered();
+                let start = Instant::now();
+                let result = run.loaded.as_ref().map_err(Clone::clone).and_then(|loaded| {
+                    let mut reduced = reduce_run(plan, loaded)?;
+                    write_outputs(&opts.out, &mut reduced).map_err(|d| vec![d])?;
+                    Ok(reduced)
+                });
+                let mut entry = RunEntry {
+                    run: label.clone(),
+                    record_file: run.record_path.to_string_lossy().into_owned(),
+                    data_file: run
+                        .loaded
+                        .as_ref()
+                        .map(|l| l.yields_path.to_string_lossy().into_owned())
+                        .unwrap_or_default(),
+                    input_sha256: hash.clone(),
+                    config_sha256: config_sha.clone(),
+                    status: "ok".into(),
+                    error: String::new(),
+                    processed_utc: rfc3339_utc(record_time_s()),
+                    seconds: start.elapsed().as_secs_f64(),
+                    events: None,
+                    charge_c: run.loaded.as_ref().ok().and_then(|l| match l.record.charge() {
+                        Some(stages::setup::Charge::Coulomb(q)) => Some(q),
+                        Some(stages::setup::Charge::Integrator { counts, scale_c_per_count }) => {
+                            Some(counts * scale_c_per_count)
+                        }
+                        None => None,
+                    }),
+                    live_fraction: None,
+                    warnings: String::new(),
+                };
+                match &result {
+                    Ok(reduced) => {
+                        entry.events = reduced.raw.as_ref().map(|r| r.result.tally.events as i64);
+                        entry.warnings = reduced.raw.as_ref().map(|r| r.result.warnings.join("\n")).unwrap_or_default();
+                        entry.live_fraction = stages::table::f64_values(&reduced.table, "live_fraction")
+                            .ok()
+                            .filter(|v| !v.is_empty())
+                            .map(|v| v.iter().sum::<f64>() / v.len() as f64);
+                        info!(seconds = entry.seconds, "run reduced");
+                    }
+                    Err(problems) => {
+                        entry.status = "failed".into();
+                        entry.error = problems.iter().map(ToString::to_string).collect::<Vec<_>>().join("\n");
+                        warn!(problems = problems.len(), "run failed");
+                    }
+                }
+                if let Ok(mut c) = catalogue.lock() {
+                    if let Err(e) = c.put(&entry) {
+                        if let Ok(mut errs) = catalogue_errors.lock() {
+                            errs.push(e);
+                        }
+                    }
+                }
+                if let Ok(mut n) = counts.lock() {
+                    match result {
+                        Ok(_) => n.0 += 1,
+                        Err(problems) => {
+                            n.1 += 1;
+                            if let Ok(mut f) = failures.lock() {
+                                f.push(RunFailure { run: label, problems });
+                            }
+                        }
+                    }
+                }
+            });
+        }
+    });
+    let (ok, failed) = counts.into_inner().unwrap_or_default();
+    summary.ok = ok;
+    summary.failed = failed;
+    let mut failures = failures.into_inner().unwrap_or_default();
+    failures.sort_by(|a, b| a.run.cmp(&b.run));
+    if let Some(e) = catalogue_errors.into_inner().unwrap_or_default().into_iter().next() {
+        return Err(fail(e));
+    }
+    // Fits again only when some run was processed now or a fit's output is missing.
+    let fits_missing =
+        plan.fits.iter().any(|f| !opts.out.join(crate::run::FITS_DIR).join(&f.name).join("fit.json").is_file());
+    if !plan.fits.is_empty() && opts.shard.is_none() && (summary.ok + summary.failed > 0 || fits_missing) {
+        let guard = catalogue.lock().map_err(|_| fail("catalogue lock poisoned".into()))?;
+        let tables = ok_tables(plan, &opts.out, &guard)?;
+        drop(guard);
+        let mut s = Summary::default();
+        crate::run::run_fits(plan, &tables, &opts.out, &mut s, &mut failures);
+        summary.fits_ok = s.fits_ok;
+        summary.fits_failed = s.fits_failed;
+    }
+    Ok((summary, failures, lines))
+}
+
+/// The reduced tables (and their inputs) of this plan's runs that are `ok` in the
+/// catalogue, in run order, read back from the output folder.
+fn ok_tables(plan: &Plan, out: &Path, catalogue: &Catalogue) -> Result<Vec<(DataFrame, Vec<InputFile>)>, Diagnostic> {
+    let mut tables = Vec::new();
+    for run in &plan.runs {
+        let label = run.label();
+        if catalogue.get(&label).map_err(|m| Diagnostic::new(out, "", m))?.is_some_and(|e| e.status == "ok") {
+            let dir = out.join(&label);
+            let t = crate::tables::read_table(&dir.join(CROSS_SECTIONS_PARQUET))
+                .map_err(|m| Diagnostic::new(&dir, "", m))?;
+            let inputs = std::fs::read_to_string(dir.join(PROVENANCE_JSON))
+                .ok()
+                .and_then(|s| serde_json::from_str::<serde_json::Value>(&s).ok())
+                .and_then(|v| serde_json::from_value::<Vec<InputFile>>(v["inputs"].clone()).ok())
+                .unwrap_or_default();
+            tables.push((t, inputs));
+        }
+    }
+    Ok(tables)
+}

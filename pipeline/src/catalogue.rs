@@ -1,0 +1,172 @@
+//! The run catalogue of a batch output folder: an embedded SQLite database
+//! (`catalogue.sqlite`) with one row per run: its inputs and their hashes, status, error,
+//! timing, event tallies, charge, live fraction and warnings. Every write is one
+//! transaction taken with `BEGIN IMMEDIATE` and a busy timeout, so that several processes
+//! (shards on a shared file system, or a second batch started by mistake) queue instead of
+//! corrupting it.
+
+use std::path::Path;
+use std::time::Duration;
+
+use rusqlite::{params, Connection, OptionalExtension};
+use serde::Serialize;
+
+/// The catalogue's file name in the output folder.
+pub const CATALOGUE_FILE: &str = "catalogue.sqlite";
+
+/// The catalogue layout this program writes and reads.
+pub const SCHEMA_VERSION: i64 = 1;
+
+/// One run's entry.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct RunEntry {
+    /// Run id (or the record file name when the record did not load).
+    pub run: String,
+    /// Record file.
+    pub record_file: String,
+    /// Data file (yields, events or spectra).
+    pub data_file: String,
+    /// SHA-256 of the record bytes and the data file's hash.
+    pub input_sha256: String,
+    /// SHA-256 of the config sections that affect every run.
+    pub config_sha256: String,
+    /// `ok` or `failed`.
+    pub status: String,
+    /// The error, for failed runs.
+    pub error: String,
+    /// When it was processed (UTC, RFC 3339; `SOURCE_DATE_EPOCH` when set).
+    pub processed_utc: String,
+    /// Seconds spent.
+    pub seconds: f64,
+    /// Events read (list-mode runs).
+    pub events: Option<i64>,
+    /// Beam charge in C.
+    pub charge_c: Option<f64>,
+    /// Mean live fraction of the run's rows.
+    pub live_fraction: Option<f64>,
+    /// Warnings, one per line.
+    pub warnings: String,
+}
+
+/// An open catalogue.
+pub struct Catalogue {
+    conn: Connection,
+}
+
+fn sql(e: rusqlite::Error) -> String {
+    format!("catalogue: {e}")
+}
+
+impl Catalogue {
+    /// Open (or create) the catalogue in `dir`.
+    ///
+    /// # Errors
+    /// A file that is not a catalogue, or one written by a newer version of xsflow.
+    pub fn open(dir: &Path) -> Result<Self, String> {
+        let conn = Connection::open(dir.join(CATALOGUE_FILE)).map_err(sql)?;
+        conn.busy_timeout(Duration::from_secs(60)).map_err(sql)?;
+        conn.execute_batch(
+            "BEGIN IMMEDIATE;
+             CREATE TABLE IF NOT EXISTS meta (key TEXT PRIMARY KEY, value TEXT NOT NULL);
+             CREATE TABLE IF NOT EXISTS runs (
+                run TEXT PRIMARY KEY, record_file TEXT NOT NULL, data_file TEXT NOT NULL,
+                input_sha256 TEXT NOT NULL, config_sha256 TEXT NOT NULL, status TEXT NOT NULL,
+                error TEXT NOT NULL, processed_utc TEXT NOT NULL, seconds REAL NOT NULL,
+                events INTEGER, charge_c REAL, live_fraction REAL, warnings TEXT NOT NULL);
+             INSERT OR IGNORE INTO meta (key, value) VALUES ('schema_version', '1');
+             COMMIT;",
+        )
+        .map_err(sql)?;
+        let version: String =
+            conn.query_row("SELECT value FROM meta WHERE key = 'schema_version'", [], |r| r.get(0)).map_err(sql)?;
+        let v: i64 = version.parse().unwrap_or(i64::MAX);
+        if v > SCHEMA_VERSION {
+            return Err(format!(
+                "catalogue {} was written by a newer xsflow (catalogue version {v}; this one reads {SCHEMA_VERSION}): \
+                 use that version, or another output folder",
+                dir.join(CATALOGUE_FILE).display()
+            ));
+        }
+        Ok(Catalogue { conn })
+    }
+
+    /// The entry of a run, if any.
+    ///
+    /// # Errors
+    /// A database error.
+    pub fn get(&self, run: &str) -> Result<Option<RunEntry>, String> {
+        self.conn.query_row("SELECT * FROM runs WHERE run = ?1", [run], entry).optional().map_err(sql)
+    }
+
+    /// Write a run's entry (replacing the previous one) in one transaction.
+    ///
+    /// # Errors
+    /// A database error (the catalogue is then unchanged).
+    pub fn put(&mut self, e: &RunEntry) -> Result<(), String> {
+        let tx = self.conn.transaction_with_behavior(rusqlite::TransactionBehavior::Immediate).map_err(sql)?;
+        tx.execute(
+            "INSERT OR REPLACE INTO runs VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13)",
+            params![
+                e.run,
+                e.record_file,
+                e.data_file,
+                e.input_sha256,
+                e.config_sha256,
+                e.status,
+                e.error,
+                e.processed_utc,
+                e.seconds,
+                e.events,
+                e.charge_c,
+                e.live_fraction,
+                e.warnings
+            ],
+        )
+        .map_err(sql)?;
+        tx.commit().map_err(sql)
+    }
+
+    /// Every entry in run order, or only the failed ones.
+    ///
+    /// # Errors
+    /// A database error.
+    pub fn list(&self, failed_only: bool) -> Result<Vec<RunEntry>, String> {
+        let q = if failed_only {
+            "SELECT * FROM runs WHERE status = 'failed' ORDER BY run"
+        } else {
+            "SELECT * FROM runs ORDER BY run"
+        };
+        let mut stmt = self.conn.prepare(q).map_err(sql)?;
+        let rows = stmt.query_map([], entry).map_err(sql)?;
+        rows.collect::<Result<Vec<_>, _>>().map_err(sql)
+    }
+
+    /// Set the catalogue version (tests of the refusal of newer catalogues).
+    ///
+    /// # Errors
+    /// A database error.
+    pub fn set_version(&self, v: i64) -> Result<(), String> {
+        self.conn
+            .execute("UPDATE meta SET value = ?1 WHERE key = 'schema_version'", [v.to_string()])
+            .map(|_| ())
+            .map_err(sql)
+    }
+}
+
+fn entry(r: &rusqlite::Row<'_>) -> rusqlite::Result<RunEntry> {
+    Ok(RunEntry {
+        run: r.get(0)?,
+        record_file: r.get(1)?,
+        data_file: r.get(2)?,
+        input_sha256: r.get(3)?,
+        config_sha256: r.get(4)?,
+        status: r.get(5)?,
+        error: r.get(6)?,
+        processed_utc: r.get(7)?,
+        seconds: r.get(8)?,
+        events: r.get(9)?,
+        charge_c: r.get(10)?,
+        live_fraction: r.get(11)?,
+        warnings: r.get(12)?,
+    })
+}

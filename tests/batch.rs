@@ -1,0 +1,102 @@
+//! `xsflow batch` and `xsflow runs`: incremental processing with a run catalogue, failed
+//! runs kept apart and picked up again, shards that split the runs the same way every time,
+//! and a catalogue from a newer version refused.
+
+use std::path::Path;
+
+use crate::common::{demo_copy, demo_dir, edit, text, xsflow};
+
+fn batch(dir: &Path, extra: &[&str]) -> std::process::Output {
+    let mut args = vec!["batch", "experiment.yaml", "--out", "out"];
+    args.extend(extra);
+    xsflow(dir, &args)
+}
+
+fn summary_line(out: &std::process::Output) -> String {
+    text(out).lines().find(|l| l.starts_with("batch:")).unwrap_or_default().to_string()
+}
+
+#[test]
+fn second_batch_skips_unchanged_runs_and_a_change_reprocesses_exactly_its_runs() {
+    let tmp = demo_copy();
+    let first = batch(tmp.path(), &["--jobs", "2"]);
+    assert_eq!(first.status.code(), Some(0), "{}", text(&first));
+    assert!(summary_line(&first).starts_with("batch: 3 ok, 0 failed, 0 skipped"), "{}", text(&first));
+    // The same bytes as `xsflow reduce` writes.
+    for run in ["0101", "0102", "0103"] {
+        let got = std::fs::read_to_string(tmp.path().join("out").join(run).join("cross_sections.csv")).expect("csv");
+        let want =
+            std::fs::read_to_string(demo_dir().join("expected").join(run).join("cross_sections.csv")).expect("csv");
+        assert_eq!(got, want, "{run}");
+    }
+    assert!(tmp.path().join("out/fits/elastic_optical/fit.json").is_file());
+    let second = batch(tmp.path(), &[]);
+    assert!(summary_line(&second).starts_with("batch: 0 ok, 0 failed, 3 skipped"), "{}", text(&second));
+    // One yields file changes: that run only.
+    edit(&tmp.path().join("runs/run0102.yields.csv"), "D01,elastic,", "D01,elastic,1");
+    let third = batch(tmp.path(), &[]);
+    assert!(summary_line(&third).starts_with("batch: 1 ok, 0 failed, 2 skipped"), "{}", text(&third));
+    // A stage setting changes: every run; a fit entry does not change any run.
+    edit(&tmp.path().join("experiment.yaml"), "charge_rel_err: 0.01", "charge_rel_err: 0.02");
+    let fourth = batch(tmp.path(), &[]);
+    assert!(summary_line(&fourth).starts_with("batch: 3 ok, 0 failed, 0 skipped"), "{}", text(&fourth));
+    edit(&tmp.path().join("experiment.yaml"), "name: inelastic_legendre", "name: inelastic_series");
+    let fifth = batch(tmp.path(), &["--dry-run"]);
+    assert!(summary_line(&fifth).starts_with("batch: 0 would be processed, 0 failed, 3 skipped"), "{}", text(&fifth));
+}
+
+#[test]
+fn a_failed_run_is_catalogued_with_its_reason_and_picked_up_once_fixed() {
+    let tmp = demo_copy();
+    edit(&tmp.path().join("runs/run0103.yields.csv"), "D01,elastic,", "D01,elastic,-");
+    let out = batch(tmp.path(), &[]);
+    assert_eq!(out.status.code(), Some(1), "{}", text(&out));
+    assert!(summary_line(&out).starts_with("batch: 2 ok, 1 failed, 0 skipped"), "{}", text(&out));
+    let list = xsflow(tmp.path(), &["runs", "out", "--failed", "--format", "json"]);
+    let failed: serde_json::Value = serde_json::from_slice(&list.stdout).expect("json");
+    assert_eq!(failed.as_array().map(Vec::len), Some(1), "{failed}");
+    assert_eq!(failed[0]["run"], "0103");
+    assert!(failed[0]["error"].as_str().is_some_and(|e| e.contains("expected a count >= 0")), "{failed}");
+    edit(&tmp.path().join("runs/run0103.yields.csv"), "D01,elastic,-", "D01,elastic,");
+    let again = batch(tmp.path(), &[]);
+    assert_eq!(again.status.code(), Some(0), "{}", text(&again));
+    assert!(summary_line(&again).starts_with("batch: 1 ok, 0 failed, 2 skipped"), "{}", text(&again));
+    let all: serde_json::Value =
+        serde_json::from_slice(&xsflow(tmp.path(), &["runs", "out", "--format", "json"]).stdout).expect("json");
+    assert!(all.as_array().expect("runs").iter().all(|r| r["status"] == "ok"), "{all}");
+}
+
+#[test]
+fn shards_split_the_runs_disjointly_and_the_same_way_every_time() {
+    let tmp = demo_copy();
+    let mut seen = Vec::new();
+    for k in 1..=2 {
+        let shard = format!("{k}/2");
+        let out = xsflow(tmp.path(), &["batch", "experiment.yaml", "--out", &format!("out{k}"), "--shard", &shard]);
+        assert_eq!(out.status.code(), Some(0), "{}", text(&out));
+        for run in ["0101", "0102", "0103"] {
+            if tmp.path().join(format!("out{k}")).join(run).is_dir() {
+                seen.push(run);
+            }
+        }
+    }
+    seen.sort_unstable();
+    assert_eq!(seen, ["0101", "0102", "0103"], "every run in exactly one shard");
+    for run in ["0101", "0102", "0103"] {
+        let a = xsflow::batch::shard_of(run, 2);
+        assert_eq!(a, xsflow::batch::shard_of(run, 2));
+        assert!(tmp.path().join(format!("out{a}")).join(run).is_dir());
+    }
+    assert_eq!(batch(tmp.path(), &["--shard", "3/2"]).status.code(), Some(2));
+}
+
+#[test]
+fn a_catalogue_from_a_newer_version_is_refused() {
+    let tmp = demo_copy();
+    assert_eq!(batch(tmp.path(), &[]).status.code(), Some(0));
+    xsflow::catalogue::Catalogue::open(&tmp.path().join("out")).expect("open").set_version(99).expect("set");
+    let out = batch(tmp.path(), &[]);
+    let msg = text(&out);
+    assert_eq!(out.status.code(), Some(2), "{msg}");
+    assert!(msg.contains("written by a newer xsflow (catalogue version 99; this one reads 1)"), "{msg}");
+}
