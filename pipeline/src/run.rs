@@ -297,7 +297,7 @@ pub fn run_fits(
 ) {
     for f in &plan.fits {
         let _span = info_span!("fit", fit = %f.name).entered();
-        match run_fit(plan, f, &tables, out_dir) {
+        match run_fit(plan, f, tables, out_dir) {
             Ok(true) => summary.fits_ok += 1,
             Ok(false) => {
                 summary.fits_failed += 1;
