@@ -353,8 +353,8 @@ fn runs(out: &Path, failed: bool, format: TableFormat) -> u8 {
         }
         TableFormat::Table => {
             println!(
-                "{:<12} {:<7} {:>9} {:>12} {:>12} {:>8}  {}",
-                "run", "status", "seconds", "events", "charge_c", "live", "error"
+                "{:<12} {:<7} {:>9} {:>12} {:>12} {:>8}  error",
+                "run", "status", "seconds", "events", "charge_c", "live"
             );
             for e in &entries {
                 println!(
