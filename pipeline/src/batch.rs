@@ -236,12 +236,13 @@ pub fn batch(plan: &Plan, opts: &BatchOptions) -> Result<(BatchSummary, Vec<RunF
     // Fits again only when some run was processed now or a fit's output is missing.
     let fits_missing =
         plan.fits.iter().any(|f| !opts.out.join(crate::run::FITS_DIR).join(&f.name).join("fit.json").is_file());
-    if !plan.fits.is_empty() && opts.shard.is_none() && (summary.ok + summary.failed > 0 || fits_missing) {
+    let combined_missing = !opts.out.join(crate::run::ANGULAR_DISTRIBUTION_PARQUET).is_file();
+    if opts.shard.is_none() && (summary.ok + summary.failed > 0 || fits_missing || combined_missing) {
         let guard = catalogue.lock().map_err(|_| fail("catalogue lock poisoned".into()))?;
         let tables = ok_tables(plan, &opts.out, &guard)?;
         drop(guard);
         let mut s = Summary::default();
-        crate::run::run_fits(plan, &tables, &opts.out, &mut s, &mut failures);
+        crate::run::combine_then_fit(plan, &tables, &opts.out, &mut s, &mut failures);
         summary.fits_ok = s.fits_ok;
         summary.fits_failed = s.fits_failed;
     }

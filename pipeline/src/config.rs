@@ -46,9 +46,12 @@ pub struct ExperimentConfig {
     /// `events_file` or `spectra_file`).
     #[serde(default)]
     pub raw: Option<stages::raw::RawConfig>,
+    /// How runs are combined into one angular distribution per state.
+    #[serde(default)]
+    pub combine: Option<stages::combine::CombineConfig>,
 }
 
-const SECTIONS: [&str; 7] = ["experiment", "reaction", "target", "detectors", "runs", "stages", "raw"];
+const SECTIONS: [&str; 8] = ["experiment", "reaction", "target", "detectors", "runs", "stages", "raw", "combine"];
 
 /// A YAML file read into text, its parsed value and its key locations.
 pub struct YamlFile {
@@ -159,6 +162,8 @@ pub struct PartialConfig {
     pub stages: Option<Vec<StageConfig>>,
     /// `raw:`, when present and parsed.
     pub raw: Option<stages::raw::RawConfig>,
+    /// `combine:`, when present and parsed.
+    pub combine: Option<stages::combine::CombineConfig>,
 }
 
 /// Parse an experiment config section by section and list item by list item, so that every
@@ -209,6 +214,7 @@ pub fn parse_experiment(file: &YamlFile) -> (PartialConfig, Vec<Diagnostic>) {
         runs: section("runs", &mut diags).and_then(|v| keep(file.parse("runs", &v), &mut diags)),
         stages: section("stages", &mut diags).and_then(|v| parse_list(file, "stages", &v, &mut diags)),
         raw: map.get("raw").and_then(|v| keep(file.parse("raw", v), &mut diags)),
+        combine: map.get("combine").and_then(|v| keep(file.parse("combine", v), &mut diags)),
     };
     (config, diags)
 }

@@ -121,7 +121,7 @@ pub fn provenance_json(loaded: &LoadedFit, data_files: &[PathBuf], base: &Path) 
 /// # Errors
 /// A table without one of the columns, or columns of different types.
 pub fn stack(tables: Vec<DataFrame>) -> Result<DataFrame, String> {
-    let mut names: Vec<&str> = vec!["run", "detector"];
+    let mut names: Vec<&str> = vec!["run", "detector", "members"];
     names.extend(stages::fit::FIT_COLUMNS);
     let mut out: Option<DataFrame> = None;
     for t in tables {

@@ -87,6 +87,8 @@ pub struct Plan {
     pub fits: Vec<PlannedFit>,
     /// The checked `raw:` section, for runs with events or spectra.
     pub raw: Option<stages::raw::RawPlan>,
+    /// How runs are combined.
+    pub combine: stages::combine::CombineConfig,
     /// Runs in record-path order.
     pub runs: Vec<PlannedRun>,
 }
@@ -201,6 +203,7 @@ pub fn plan(config_path: &Path) -> Result<Plan, Vec<Diagnostic>> {
                 stages,
                 fits,
                 raw,
+                combine: config.combine.clone().unwrap_or_default(),
                 runs,
             };
             plan.check_unique_runs().map(|()| plan)

@@ -265,9 +265,7 @@ pub fn reduce_all(plan: &Plan, out_dir: &Path) -> (Summary, Vec<RunFailure>) {
         let result = planned.loaded.as_ref().map_err(Clone::clone).and_then(|run| {
             let mut reduced = reduce_run(plan, run)?;
             let files = write_outputs(out_dir, &mut reduced).map_err(|d| vec![d])?;
-            if !plan.fits.is_empty() {
-                tables.push((reduced.table, reduced.provenance.inputs));
-            }
+            tables.push((reduced.table, reduced.provenance.inputs));
             Ok(files)
         });
         match result {
@@ -282,8 +280,113 @@ pub fn reduce_all(plan: &Plan, out_dir: &Path) -> (Summary, Vec<RunFailure>) {
             }
         }
     }
-    run_fits(plan, &tables, out_dir, &mut summary, &mut failures);
+    combine_then_fit(plan, &tables, out_dir, &mut summary, &mut failures);
     (summary, failures)
+}
+
+/// Combine the runs, write the distribution, and fit it.
+pub fn combine_then_fit(
+    plan: &Plan,
+    tables: &[(DataFrame, Vec<crate::provenance::InputFile>)],
+    out_dir: &Path,
+    summary: &mut Summary,
+    failures: &mut Vec<RunFailure>,
+) {
+    let frames: Vec<DataFrame> = tables.iter().map(|(t, _)| t.clone()).collect();
+    match combine_and_write(plan, &frames, out_dir) {
+        Ok(Some(combined)) => {
+            let inputs: Vec<crate::provenance::InputFile> =
+                tables.iter().flat_map(|(_, i)| i.iter().cloned()).collect();
+            run_fits(plan, &[(combined, inputs)], out_dir, summary, failures);
+        }
+        Ok(None) => run_fits(plan, tables, out_dir, summary, failures),
+        Err(d) => failures.push(RunFailure { run: "combination".into(), problems: vec![d] }),
+    }
+}
+
+/// File names of the combined distribution in the output folder.
+pub const ANGULAR_DISTRIBUTION_PARQUET: &str = "angular_distribution.parquet";
+/// Its CSV copy.
+pub const ANGULAR_DISTRIBUTION_CSV: &str = "angular_distribution.csv";
+/// Its covariance matrix, long format (i, j, covariance).
+pub const COVARIANCE_CSV: &str = "angular_distribution_covariance.csv";
+
+/// Combine the reduced tables of the runs into one angular distribution per state
+/// ([`stages::combine`]), write it with its covariance matrix into `out_dir`, and return
+/// it (`None` when the tables lack the CM cross sections).
+///
+/// # Errors
+/// A row that cannot be weighted, or an output that cannot be written.
+pub fn combine_and_write(plan: &Plan, tables: &[DataFrame], out_dir: &Path) -> Result<Option<DataFrame>, Diagnostic> {
+    let fail = |m: String| Diagnostic::new(out_dir, "", m);
+    let mut rows = Vec::new();
+    for t in tables {
+        let f = |n: &str| stages::table::f64_values(t, n);
+        let s = |n: &str| stages::table::str_values(t, n);
+        let (Ok(run), Ok(det), Ok(state), Ok(lab), Ok(cm), Ok(y), Ok(stat), Ok(sys), Ok(norm)) = (
+            s("run"),
+            s("detector"),
+            s("state"),
+            f("theta_lab_deg"),
+            f("theta_cm_deg"),
+            f("dsdo_cm_mb_sr"),
+            f("stat_err_mb_sr"),
+            f("sys_err_mb_sr"),
+            f("norm_rel_err"),
+        ) else {
+            return Ok(None);
+        };
+        let shared = f("target_atoms_rel_err").unwrap_or_else(|_| vec![0.0; t.height()]);
+        for i in 0..t.height() {
+            rows.push(stages::combine::Row {
+                run: run[i].clone(),
+                detector: det[i].clone(),
+                state: state[i].clone(),
+                theta_lab_deg: lab[i],
+                theta_cm_deg: cm[i],
+                y: y[i],
+                stat: stat[i],
+                sys: sys[i],
+                norm_rel_err: norm[i],
+                shared_rel_err: shared[i],
+            });
+        }
+    }
+    if rows.is_empty() {
+        return Ok(None);
+    }
+    let (points, cov) = stages::combine::combine(&rows, plan.combine.angle_tolerance_deg).map_err(fail)?;
+    let col = |name: &str, f: &dyn Fn(&stages::combine::Point) -> f64| {
+        Column::new(name.into(), points.iter().map(f).collect::<Vec<_>>())
+    };
+    let mut table = DataFrame::new_infer_height(vec![
+        Column::new("state".into(), points.iter().map(|p| p.state.clone()).collect::<Vec<_>>()),
+        col("theta_lab_deg", &|p| p.theta_lab_deg),
+        col("theta_cm_deg", &|p| p.theta_cm_deg),
+        col("dsdo_cm_mb_sr", &|p| p.y),
+        col("stat_err_mb_sr", &|p| p.stat),
+        col("sys_err_mb_sr", &|p| p.sys),
+        col("norm_rel_err", &|p| p.norm_rel_err),
+        Column::new("rows".into(), points.iter().map(|p| p.rows as u32).collect::<Vec<_>>()),
+        Column::new("members".into(), points.iter().map(|p| p.members.clone()).collect::<Vec<_>>()),
+    ])
+    .map_err(|e| fail(e.to_string()))?;
+    let n = points.len();
+    let mut cov_csv = String::from("i,j,covariance_mb2_sr2\n");
+    for i in 0..n {
+        for j in 0..n {
+            if cov[i * n + j] != 0.0 {
+                cov_csv.push_str(&format!("{i},{j},{}\n", cov[i * n + j]));
+            }
+        }
+    }
+    let write = |name: &str, bytes: &[u8]| {
+        write_atomic(&out_dir.join(name), bytes).map_err(|e| fail(format!("cannot write {name}: {e}")))
+    };
+    write(ANGULAR_DISTRIBUTION_CSV, &csv_bytes(&mut table).map_err(|e| fail(e.to_string()))?)?;
+    write(ANGULAR_DISTRIBUTION_PARQUET, &parquet_bytes(&mut table, vec![]).map_err(|e| fail(e.to_string()))?)?;
+    write(COVARIANCE_CSV, cov_csv.as_bytes())?;
+    Ok(Some(table))
 }
 
 /// Run the plan's fits on the reduced tables (with the inputs they came from), counting

@@ -75,6 +75,9 @@ pub struct FitSettings {
     /// Iteration limit of the minimiser (default 200).
     #[serde(default)]
     pub max_iterations: Option<usize>,
+    /// Fit only the points with θ_cm in [low, high] degrees; default all.
+    #[serde(default)]
+    pub theta_cm_range_deg: Option<[f64; 2]>,
 }
 
 /// Bounds of a free parameter (either may be omitted).
@@ -240,7 +243,7 @@ impl FitData {
             col("norm_rel_err")?,
         );
         let label_of = |name: &str| table::str_values(table, name).ok();
-        let (runs, detectors) = (label_of("run"), label_of("detector"));
+        let (runs, detectors, members) = (label_of("run"), label_of("detector"), label_of("members"));
         let mut rows = Vec::new();
         for (i, s) in states.iter().enumerate() {
             if s != state {
@@ -271,8 +274,9 @@ impl FitData {
                     expected: "a point with a non-zero error (a χ² needs one)".into(),
                 });
             }
-            let label = match (&runs, &detectors) {
-                (Some(r), Some(d)) => format!("{}/{}", r[i], d[i]),
+            let label = match (&runs, &detectors, &members) {
+                (Some(r), Some(d), _) => format!("{}/{}", r[i], d[i]),
+                (_, _, Some(m)) => m[i].clone(),
                 _ => format!("row {i}"),
             };
             rows.push((theta[i], y[i], err, norm[i], label));
@@ -428,6 +432,7 @@ pub struct NumericsReport {
 
 /// A built fit: the model, the parameters, the settings.
 pub struct Fit {
+    range_deg: Option<[f64; 2]>,
     model: Model,
     params: Vec<Parameter>,
     starts: Vec<Vec<f64>>,
@@ -616,7 +621,19 @@ impl FitModelConfig {
         if !c.problems.is_empty() {
             return Err(c.problems);
         }
+        if let Some([a, b]) = s.theta_cm_range_deg {
+            c.require(
+                a < b && a.is_finite() && b.is_finite(),
+                "fit.theta_cm_range_deg",
+                format!("[{a}, {b}]"),
+                "[low, high] with low < high",
+            );
+        }
+        if !c.problems.is_empty() {
+            return Err(c.problems);
+        }
         Ok(Fit {
+            range_deg: s.theta_cm_range_deg,
             model,
             params,
             starts,
@@ -792,6 +809,26 @@ impl Fit {
         state: &str,
         model_name: &'static str,
     ) -> Result<(FitReport, Vec<f64>), FitFailure> {
+        let selected;
+        let data = match self.range_deg {
+            Some([a, b]) => {
+                let keep: Vec<usize> =
+                    (0..data.theta_cm_deg.len()).filter(|&i| (a..=b).contains(&data.theta_cm_deg[i])).collect();
+                if keep.is_empty() {
+                    return Err(FitFailure::Data(format!("no data point of state {state} has θ_cm in [{a}, {b}]°")));
+                }
+                let pick = |v: &Vec<f64>| keep.iter().map(|&i| v[i]).collect::<Vec<f64>>();
+                selected = FitData {
+                    theta_cm_deg: pick(&data.theta_cm_deg),
+                    dsdo_cm_mb_sr: pick(&data.dsdo_cm_mb_sr),
+                    err_mb_sr: pick(&data.err_mb_sr),
+                    norm_rel_err: pick(&data.norm_rel_err),
+                    labels: keep.iter().map(|&i| data.labels[i].clone()).collect(),
+                };
+                &selected
+            }
+            None => data,
+        };
         let mut warnings = Vec::new();
         let norm = self.normalisation(data, &mut warnings)?;
         let measured = Measured { y: data.dsdo_cm_mb_sr.clone(), sigma: data.err_mb_sr.clone() };

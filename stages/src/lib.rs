@@ -9,6 +9,7 @@
 
 pub mod apply_efficiency;
 pub mod columns;
+pub mod combine;
 pub mod compute_kinematics;
 pub mod compute_lab_cross_section;
 pub mod compute_solid_angle;
