@@ -100,3 +100,43 @@ fn a_catalogue_from_a_newer_version_is_refused() {
     assert_eq!(out.status.code(), Some(2), "{msg}");
     assert!(msg.contains("written by a newer xsflow (catalogue version 99; this one reads 1)"), "{msg}");
 }
+
+#[test]
+fn three_shards_merged_give_what_one_batch_gives() {
+    let tmp = demo_copy();
+    assert_eq!(batch(tmp.path(), &[]).status.code(), Some(0));
+    let mut dirs = Vec::new();
+    for k in 1..=3 {
+        let dir = format!("shard{k}");
+        let out = xsflow(tmp.path(), &["batch", "experiment.yaml", "--out", &dir, "--shard", &format!("{k}/3")]);
+        assert_eq!(out.status.code(), Some(0), "{}", text(&out));
+        dirs.push(dir);
+    }
+    let mut args = vec!["merge"];
+    args.extend(dirs.iter().map(String::as_str));
+    args.extend(["--out", "merged"]);
+    let out = xsflow(tmp.path(), &args);
+    assert_eq!(out.status.code(), Some(0), "{}", text(&out));
+    let single = crate::common::files_below(&tmp.path().join("out"));
+    let merged = crate::common::files_below(&tmp.path().join("merged"));
+    let rel = |files: &[std::path::PathBuf], base: &str| -> Vec<String> {
+        files
+            .iter()
+            .map(|f| f.strip_prefix(tmp.path().join(base)).expect("below").to_string_lossy().into_owned())
+            .filter(|f| f != xsflow::catalogue::CATALOGUE_FILE)
+            .collect()
+    };
+    assert_eq!(rel(&single, "out"), rel(&merged, "merged"));
+    for f in rel(&single, "out") {
+        let (a, b) =
+            (std::fs::read(tmp.path().join("out").join(&f)), std::fs::read(tmp.path().join("merged").join(&f)));
+        assert!(a.expect("a") == b.expect("b"), "{f} differs between one batch and three merged shards");
+    }
+    // Shards of different N are refused.
+    let other = xsflow(tmp.path(), &["batch", "experiment.yaml", "--out", "half", "--shard", "1/2"]);
+    assert_eq!(other.status.code(), Some(0));
+    let bad = xsflow(tmp.path(), &["merge", "shard1", "half", "--out", "mixed"]);
+    let msg = text(&bad);
+    assert_eq!(bad.status.code(), Some(2), "{msg}");
+    assert!(msg.contains("inconsistent N"), "{msg}");
+}

@@ -106,7 +106,18 @@ fn input_hash(run: &PlannedRun) -> Result<String, String> {
 pub fn batch(plan: &Plan, opts: &BatchOptions) -> Result<(BatchSummary, Vec<RunFailure>, Vec<String>), Diagnostic> {
     let fail = |m: String| Diagnostic::new(&opts.out, "", m);
     std::fs::create_dir_all(&opts.out).map_err(|e| fail(format!("cannot create the output folder: {e}")))?;
-    let catalogue = Mutex::new(Catalogue::open(&opts.out).map_err(fail)?);
+    let catalogue = Catalogue::open(&opts.out).map_err(fail)?;
+    let shard_text = opts.shard.map_or_else(|| "1/1".to_string(), |(k, n)| format!("{k}/{n}"));
+    match catalogue.meta("shard").map_err(fail)? {
+        Some(s) if s != shard_text => {
+            return Err(fail(format!("this output folder holds shard {s}; it cannot take shard {shard_text}")));
+        }
+        _ => {}
+    }
+    catalogue.set_meta("shard", &shard_text).map_err(fail)?;
+    let config_abs = std::fs::canonicalize(&plan.config_path).unwrap_or_else(|_| plan.config_path.clone());
+    catalogue.set_meta("config_file", &config_abs.to_string_lossy()).map_err(fail)?;
+    let catalogue = Mutex::new(catalogue);
     let config_sha = config_hash(&plan.config_path)?;
     let mut summary = BatchSummary::default();
     let mut todo: Vec<(&PlannedRun, String)> = Vec::new();
@@ -268,4 +279,100 @@ fn ok_tables(plan: &Plan, out: &Path, catalogue: &Catalogue) -> Result<Vec<(Data
         }
     }
     Ok(tables)
+}
+
+/// Merge the output folders of the shards of one batch into `out`: the run folders copied,
+/// the catalogues merged in run order, then the combination and the fits run over all runs,
+/// so that the result is what a single batch gives.
+///
+/// # Errors
+/// Folders that are not batch outputs, shards of different configs or of different N, a
+/// shard given twice, a run in two shards.
+pub fn merge(dirs: &[PathBuf], out: &Path) -> Result<(BatchSummary, Vec<RunFailure>), Diagnostic> {
+    let fail = |p: &Path, m: String| Diagnostic::new(p, "", m);
+    let mut config: Option<String> = None;
+    let mut shards: Vec<(u64, u64)> = Vec::new();
+    let mut entries = Vec::new();
+    for d in dirs {
+        let c = Catalogue::open(d).map_err(|m| fail(d, m))?;
+        let shard = c
+            .meta("shard")
+            .map_err(|m| fail(d, m))?
+            .ok_or_else(|| fail(d, "not a batch output (no shard recorded)".into()))?;
+        let (k, n) = parse_shard(&shard).map_err(|m| fail(d, m))?;
+        if let Some(&(_, n0)) = shards.first() {
+            if n != n0 {
+                return Err(fail(
+                    d,
+                    format!("shard {k}/{n} does not belong with shards of {n0}: the shards give inconsistent N"),
+                ));
+            }
+        }
+        if shards.iter().any(|s| s.0 == k) {
+            return Err(fail(d, format!("shard {k}/{n} is given twice")));
+        }
+        shards.push((k, n));
+        let cf = c.meta("config_file").map_err(|m| fail(d, m))?.unwrap_or_default();
+        match &config {
+            Some(c0) if *c0 != cf => return Err(fail(d, format!("made from {cf}, the other shards from {c0}"))),
+            _ => config = Some(cf),
+        }
+        for e in c.list(false).map_err(|m| fail(d, m))? {
+            entries.push((d.clone(), e));
+        }
+    }
+    let n = shards.first().map_or(1, |s| s.1);
+    if shards.len() as u64 != n {
+        let mut have: Vec<u64> = shards.iter().map(|s| s.0).collect();
+        have.sort_unstable();
+        let missing: Vec<String> = (1..=n).filter(|k| !have.contains(k)).map(|k| format!("{k}/{n}")).collect();
+        return Err(fail(out, format!("shards missing: {}", missing.join(", "))));
+    }
+    entries.sort_by(|a, b| a.1.run.cmp(&b.1.run));
+    if let Some(w) = entries.windows(2).find(|w| w[0].1.run == w[1].1.run) {
+        return Err(fail(&w[1].0, format!("run {} is in two shards", w[1].1.run)));
+    }
+    std::fs::create_dir_all(out).map_err(|e| fail(out, format!("cannot create the output folder: {e}")))?;
+    let mut merged = Catalogue::open(out).map_err(|m| fail(out, m))?;
+    merged.set_meta("shard", "1/1").map_err(|m| fail(out, m))?;
+    let config = config.unwrap_or_default();
+    merged.set_meta("config_file", &config).map_err(|m| fail(out, m))?;
+    let mut summary = BatchSummary::default();
+    for (dir, e) in &entries {
+        let src = dir.join(&e.run);
+        if e.status == "ok" {
+            copy_dir(&src, &out.join(&e.run)).map_err(|m| fail(&src, m))?;
+            summary.ok += 1;
+        } else {
+            summary.failed += 1;
+        }
+        merged.put(e).map_err(|m| fail(out, m))?;
+    }
+    let plan = crate::plan::plan(Path::new(&config))
+        .map_err(|d| d.into_iter().next().unwrap_or_else(|| fail(out, "bad config".into())))?;
+    let tables = ok_tables(&plan, out, &merged)?;
+    let mut failures = Vec::new();
+    let mut s = Summary::default();
+    crate::run::combine_then_fit(&plan, &tables, out, &mut s, &mut failures);
+    summary.fits_ok = s.fits_ok;
+    summary.fits_failed = s.fits_failed;
+    Ok((summary, failures))
+}
+
+/// Copy a run folder, each file atomically.
+fn copy_dir(src: &Path, dst: &Path) -> Result<(), String> {
+    std::fs::create_dir_all(dst).map_err(|e| e.to_string())?;
+    let mut names: Vec<PathBuf> = std::fs::read_dir(src)
+        .map_err(|e| e.to_string())?
+        .flatten()
+        .map(|e| e.path())
+        .filter(|p| p.is_file())
+        .collect();
+    names.sort();
+    for p in names {
+        let bytes = std::fs::read(&p).map_err(|e| format!("{}: {e}", p.display()))?;
+        let name = p.file_name().map(|n| n.to_os_string()).unwrap_or_default();
+        crate::tables::write_atomic(&dst.join(name), &bytes).map_err(|e| e.to_string())?;
+    }
+    Ok(())
 }

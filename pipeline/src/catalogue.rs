@@ -141,6 +141,25 @@ impl Catalogue {
         rows.collect::<Result<Vec<_>, _>>().map_err(sql)
     }
 
+    /// A value of the `meta` table.
+    ///
+    /// # Errors
+    /// A database error.
+    pub fn meta(&self, key: &str) -> Result<Option<String>, String> {
+        self.conn.query_row("SELECT value FROM meta WHERE key = ?1", [key], |r| r.get(0)).optional().map_err(sql)
+    }
+
+    /// Set a value of the `meta` table.
+    ///
+    /// # Errors
+    /// A database error.
+    pub fn set_meta(&self, key: &str, value: &str) -> Result<(), String> {
+        self.conn
+            .execute("INSERT OR REPLACE INTO meta (key, value) VALUES (?1, ?2)", [key, value])
+            .map(|_| ())
+            .map_err(sql)
+    }
+
     /// Set the catalogue version (tests of the refusal of newer catalogues).
     ///
     /// # Errors

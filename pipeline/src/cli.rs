@@ -114,6 +114,17 @@ pub enum Command {
         #[arg(long, value_enum, default_value_t = Format::Text)]
         format: Format,
     },
+    /// Merge the output folders of the shards of one batch (`batch --shard K/N`) into one:
+    /// run folders, catalogue, the combined distribution and the fits, exactly as a single
+    /// batch gives. Refuses shards of different N or configs, missing or repeated shards.
+    Merge {
+        /// The shards' output folders.
+        #[arg(required = true)]
+        dirs: Vec<PathBuf>,
+        /// The merged output folder.
+        #[arg(long)]
+        out: PathBuf,
+    },
     /// List the run catalogue of a batch output folder.
     Runs {
         /// The batch output folder.

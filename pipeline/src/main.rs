@@ -31,6 +31,24 @@ fn main() -> ExitCode {
             batch(&config, out.as_deref(), jobs, shard.as_deref(), force, dry_run, format)
         }
         Command::Runs { out, failed, format } => runs(&out, failed, format),
+        Command::Merge { dirs, out } => match xsflow::batch::merge(&dirs, &out) {
+            Ok((s, failures)) => {
+                print_problems(Format::Text, &[], &failures);
+                eprintln!(
+                    "merge: {} run(s) ok, {} failed; {} fit(s) converged, {} failed; outputs in {}",
+                    s.ok,
+                    s.failed,
+                    s.fits_ok,
+                    s.fits_failed,
+                    out.display()
+                );
+                u8::from(s.failed + s.fits_failed > 0 || !failures.is_empty())
+            }
+            Err(d) => {
+                report(&[d]);
+                2
+            }
+        },
         Command::Kinematics {
             beam,
             target,

@@ -439,7 +439,15 @@ fn run_fit(
     let record = crate::fit::FitProvenance {
         program: "xsflow",
         version: env!("CARGO_PKG_VERSION"),
-        fit_file: f.loaded.path.to_string_lossy().into_owned(),
+        // Relative to the config's folder, like the inputs, so that the record does not
+        // depend on where xsflow was started.
+        fit_file: f
+            .loaded
+            .path
+            .strip_prefix(&plan.config_dir)
+            .unwrap_or(&f.loaded.path)
+            .to_string_lossy()
+            .replace('\\', "/"),
         fit_sha256: crate::provenance::sha256_hex(&f.loaded.bytes),
         inputs: tables.iter().flat_map(|(_, inputs)| inputs.iter().cloned()).collect(),
         created_utc: rfc3339_utc(record_time_s()),
