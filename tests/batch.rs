@@ -140,3 +140,52 @@ fn three_shards_merged_give_what_one_batch_gives() {
     assert_eq!(bad.status.code(), Some(2), "{msg}");
     assert!(msg.contains("inconsistent N"), "{msg}");
 }
+
+#[test]
+fn a_batch_killed_at_any_moment_and_rerun_gives_the_uninterrupted_outputs() {
+    // 43 runs (the demo's three and 40 more records of the same yields); SIGKILL after
+    // 20, 60, 150, 300 and 500 ms, a rerun after each kill, then one to completion: every
+    // output byte-identical to an uninterrupted batch, no temporary file left, and a
+    // catalogue with every run ok.
+    let tmp = demo_copy();
+    for i in 0..40 {
+        let src = ["0101", "0102", "0103"][i % 3];
+        let record = std::fs::read_to_string(tmp.path().join(format!("runs/run{src}.run.yaml"))).expect("record");
+        let record = record.replace(&format!("run: \"{src}\""), &format!("run: \"k{i:03}\""));
+        std::fs::write(tmp.path().join(format!("runs/k{i:03}.run.yaml")), record).expect("write");
+    }
+    assert_eq!(xsflow(tmp.path(), &["batch", "experiment.yaml", "--out", "ref"]).status.code(), Some(0));
+    for delay_ms in [20u64, 60, 150, 300, 500] {
+        let mut child = std::process::Command::new(env!("CARGO_BIN_EXE_xsflow"))
+            .args(["batch", "experiment.yaml", "--out", "out", "--jobs", "2", "-q"])
+            .current_dir(tmp.path())
+            .env("SOURCE_DATE_EPOCH", "1764633600")
+            .stderr(std::process::Stdio::null())
+            .spawn()
+            .expect("spawn");
+        std::thread::sleep(std::time::Duration::from_millis(delay_ms));
+        let _ = child.kill();
+        let _ = child.wait();
+    }
+    let last = batch(tmp.path(), &[]);
+    assert_eq!(last.status.code(), Some(0), "{}", text(&last));
+    let files = |base: &str| -> Vec<String> {
+        crate::common::files_below(&tmp.path().join(base))
+            .iter()
+            .map(|f| f.strip_prefix(tmp.path().join(base)).expect("below").to_string_lossy().into_owned())
+            .filter(|f| !f.starts_with(xsflow::catalogue::CATALOGUE_FILE))
+            .collect()
+    };
+    let (a, b) = (files("ref"), files("out"));
+    assert_eq!(a, b, "the same files, and no temporary ones");
+    for f in &a {
+        let same = std::fs::read(tmp.path().join("ref").join(f)).expect("ref")
+            == std::fs::read(tmp.path().join("out").join(f)).expect("out");
+        assert!(same, "{f} differs after the kills");
+    }
+    let all: serde_json::Value =
+        serde_json::from_slice(&xsflow(tmp.path(), &["runs", "out", "--format", "json"]).stdout).expect("json");
+    let runs = all.as_array().expect("runs");
+    assert_eq!(runs.len(), 43);
+    assert!(runs.iter().all(|r| r["status"] == "ok"), "{all}");
+}

@@ -106,6 +106,7 @@ fn input_hash(run: &PlannedRun) -> Result<String, String> {
 pub fn batch(plan: &Plan, opts: &BatchOptions) -> Result<(BatchSummary, Vec<RunFailure>, Vec<String>), Diagnostic> {
     let fail = |m: String| Diagnostic::new(&opts.out, "", m);
     std::fs::create_dir_all(&opts.out).map_err(|e| fail(format!("cannot create the output folder: {e}")))?;
+    remove_stale_temporaries(&opts.out);
     let catalogue = Catalogue::open(&opts.out).map_err(fail)?;
     let shard_text = opts.shard.map_or_else(|| "1/1".to_string(), |(k, n)| format!("{k}/{n}"));
     match catalogue.meta("shard").map_err(fail)? {
@@ -244,20 +245,67 @@ pub fn batch(plan: &Plan, opts: &BatchOptions) -> Result<(BatchSummary, Vec<RunF
     if let Some(e) = catalogue_errors.into_inner().unwrap_or_default().into_iter().next() {
         return Err(fail(e));
     }
-    // Fits again only when some run was processed now or a fit's output is missing.
-    let fits_missing =
-        plan.fits.iter().any(|f| !opts.out.join(crate::run::FITS_DIR).join(&f.name).join("fit.json").is_file());
-    let combined_missing = !opts.out.join(crate::run::ANGULAR_DISTRIBUTION_PARQUET).is_file();
-    if opts.shard.is_none() && (summary.ok + summary.failed > 0 || fits_missing || combined_missing) {
+    // The combination and the fits again only when what they are made of changed (the ok
+    // runs' hashes, the whole config, the fit files) or an output is missing; the key is
+    // recorded after they are written, so a batch killed before that redoes them.
+    if opts.shard.is_none() {
         let guard = catalogue.lock().map_err(|_| fail("catalogue lock poisoned".into()))?;
-        let tables = ok_tables(plan, &opts.out, &guard)?;
-        drop(guard);
-        let mut s = Summary::default();
-        crate::run::combine_then_fit(plan, &tables, &opts.out, &mut s, &mut failures);
-        summary.fits_ok = s.fits_ok;
-        summary.fits_failed = s.fits_failed;
+        let key = combined_key(plan, &guard)?;
+        let missing = !opts.out.join(crate::run::ANGULAR_DISTRIBUTION_PARQUET).is_file()
+            || plan.fits.iter().any(|f| !opts.out.join(crate::run::FITS_DIR).join(&f.name).join("fit.json").is_file());
+        if missing || guard.meta("combined_key").map_err(fail)?.as_deref() != Some(key.as_str()) {
+            let tables = ok_tables(plan, &opts.out, &guard)?;
+            let mut s = Summary::default();
+            let before = failures.len();
+            crate::run::combine_then_fit(plan, &tables, &opts.out, &mut s, &mut failures);
+            summary.fits_ok = s.fits_ok;
+            summary.fits_failed = s.fits_failed;
+            if failures.len() == before {
+                guard.set_meta("combined_key", &key).map_err(fail)?;
+            }
+        }
     }
     Ok((summary, failures, lines))
+}
+
+/// What the combined distribution and the fits are made of: the ok runs and their hashes,
+/// the config file, the fit files.
+fn combined_key(plan: &Plan, catalogue: &Catalogue) -> Result<String, Diagnostic> {
+    let mut parts = vec![sha256_file(&plan.config_path).unwrap_or_default()];
+    for f in &plan.fits {
+        parts.push(sha256_hex(&f.loaded.bytes));
+    }
+    for run in &plan.runs {
+        if let Some(e) = catalogue.get(&run.label()).map_err(|m| Diagnostic::new(&plan.config_path, "", m))? {
+            if e.status == "ok" {
+                parts.push(format!("{} {} {}", e.run, e.input_sha256, e.config_sha256));
+            }
+        }
+    }
+    Ok(sha256_hex(parts.join("\n").as_bytes()))
+}
+
+/// Remove the temporary files that a killed xsflow left in the output folder (those of
+/// processes that no longer run); their final names were never touched.
+fn remove_stale_temporaries(out: &Path) {
+    let is_stale = |name: &str| {
+        name.starts_with('.')
+            && name
+                .rsplit_once(".tmp-")
+                .and_then(|(_, pid)| pid.parse::<u32>().ok())
+                .is_some_and(|pid| pid != std::process::id() && !Path::new(&format!("/proc/{pid}")).exists())
+    };
+    let mut dirs = vec![out.to_path_buf()];
+    while let Some(d) = dirs.pop() {
+        for e in std::fs::read_dir(&d).into_iter().flatten().flatten() {
+            let p = e.path();
+            if p.is_dir() {
+                dirs.push(p);
+            } else if is_stale(&e.file_name().to_string_lossy()) {
+                let _ = std::fs::remove_file(&p);
+            }
+        }
+    }
 }
 
 /// The reduced tables (and their inputs) of this plan's runs that are `ok` in the
