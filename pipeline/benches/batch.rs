@@ -1,0 +1,121 @@
+//! Benchmark of `xsflow batch` (release build):
+//!     cargo bench -p xsflow --bench batch [-- RUNS [LISTMODE_RUNS EVENTS]]
+//! 1. RUNS (default 1000) yields-table runs (copies of the demo's, with their own ids and
+//!    counts) processed cold into an empty output folder, then a second batch with nothing
+//!    changed (the demo's fits are left out: they are the same work whatever the number of
+//!    runs);
+//! 2. LISTMODE_RUNS (default 20) list-mode runs of EVENTS (default 1e7) events each, with
+//!    --jobs 1 and --jobs 2: wall time and peak RSS of the whole process.
+//! Each step runs the xsflow binary as a child; figures are printed, not asserted.
+
+use std::path::{Path, PathBuf};
+use std::process::Command;
+use std::time::Instant;
+
+fn demo() -> PathBuf {
+    PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../sample-runs/alpha-ni58")
+}
+
+/// Peak RSS of a finished child, from /proc of this process's children (RUSAGE_CHILDREN
+/// via `getrusage` is not in std, so the child reports its own through `/usr/bin/time`
+/// when present, else the figure is missing).
+fn run_timed(dir: &Path, args: &[&str]) -> Result<(f64, Option<f64>), String> {
+    let exe = env!("CARGO_BIN_EXE_xsflow");
+    let time = Path::new("/usr/bin/time");
+    let start = Instant::now();
+    let out = if time.is_file() {
+        Command::new(time).arg("-f").arg("%M").arg(exe).args(args).current_dir(dir).output()
+    } else {
+        Command::new(exe).args(args).current_dir(dir).output()
+    }
+    .map_err(|e| e.to_string())?;
+    let seconds = start.elapsed().as_secs_f64();
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    if !out.status.success() {
+        return Err(format!("xsflow {args:?} failed: {stderr}"));
+    }
+    let rss = if time.is_file() { stderr.lines().last().and_then(|l| l.trim().parse::<f64>().ok()).map(|kb| kb / 1024.0) } else { None };
+    Ok((seconds, rss))
+}
+
+fn config_without_fits(src: &Path, dst: &Path, runs: &str) -> Result<(), String> {
+    let text = std::fs::read_to_string(src).map_err(|e| e.to_string())?;
+    let head = text.split("\n  - type: fit").next().unwrap_or(&text);
+    let text = head.replace("  - runs/*.run.yaml", &format!("  - {runs}")).replace("  - listmode/*.run.yaml", &format!("  - {runs}"));
+    std::fs::write(dst, text + "\n").map_err(|e| e.to_string())
+}
+
+fn main() -> Result<(), String> {
+    let args: Vec<usize> = std::env::args().skip(1).filter_map(|a| a.parse::<f64>().ok()).map(|x| x as usize).collect();
+    let n_runs = args.first().copied().unwrap_or(1000);
+    let n_listmode = args.get(1).copied().unwrap_or(20);
+    let n_events = args.get(2).copied().unwrap_or(10_000_000);
+    let cpu = std::fs::read_to_string("/proc/cpuinfo")
+        .ok()
+        .and_then(|s| s.lines().find(|l| l.starts_with("model name")).map(|l| l.split(':').nth(1).unwrap_or("").trim().to_string()))
+        .unwrap_or_default();
+    println!("machine: {cpu}, {} logical cores", std::thread::available_parallelism().map_or(1, |n| n.get()));
+
+    // 1. Many yields runs.
+    let dir = std::env::temp_dir().join("xsflow-bench-batch");
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(dir.join("runs")).map_err(|e| e.to_string())?;
+    config_without_fits(&demo().join("experiment.yaml"), &dir.join("experiment.yaml"), "runs/*.run.yaml")?;
+    let yields = std::fs::read_to_string(demo().join("runs/run0101.yields.csv")).map_err(|e| e.to_string())?;
+    let record = std::fs::read_to_string(demo().join("runs/run0101.run.yaml")).map_err(|e| e.to_string())?;
+    for i in 0..n_runs {
+        let id = format!("b{i:05}");
+        // Distinct data per run: the first count shifted by the run number.
+        let y = yields.replacen("D01,elastic,", &format!("D01,elastic,{}", i % 10), 1);
+        std::fs::write(dir.join(format!("runs/{id}.yields.csv")), y).map_err(|e| e.to_string())?;
+        let r = record.replace("run: \"0101\"", &format!("run: \"{id}\"")).replace("run0101.yields.csv", &format!("{id}.yields.csv"));
+        std::fs::write(dir.join(format!("runs/{id}.run.yaml")), r).map_err(|e| e.to_string())?;
+    }
+    let (cold, rss_cold) = run_timed(&dir, &["batch", "experiment.yaml", "--out", "out", "-q", "--jobs", "2"])?;
+    let (warm, rss_warm) = run_timed(&dir, &["batch", "experiment.yaml", "--out", "out", "-q", "--jobs", "2"])?;
+    let rss = |r: Option<f64>| r.map_or("-".into(), |m| format!("{m:.0} MB"));
+    println!(
+        "{n_runs} yields runs, --jobs 2: cold {cold:.2} s ({:.1} ms per run, peak RSS {}), nothing changed {warm:.3} s (peak RSS {})",
+        cold / n_runs as f64 * 1e3,
+        rss(rss_cold),
+        rss(rss_warm)
+    );
+
+    // 2. List-mode runs: the demo's list-mode config, one Parquet file written by the
+    // events benchmark's layout is not available here, so the demo's Parquet run is scaled
+    // up by repeating its rows.
+    let lm = std::env::temp_dir().join("xsflow-bench-listmode");
+    let _ = std::fs::remove_dir_all(&lm);
+    std::fs::create_dir_all(lm.join("listmode")).map_err(|e| e.to_string())?;
+    config_without_fits(&demo().join("experiment-listmode.yaml"), &lm.join("experiment.yaml"), "listmode/*.run.yaml")?;
+    let small = xsflow::tables::read_table(&demo().join("listmode/run0201.events.parquet"))?;
+    let reps = n_events.div_ceil(small.height());
+    let mut big = small.clone();
+    for _ in 1..reps {
+        big.vstack_mut(&small).map_err(|e| e.to_string())?;
+    }
+    let mut big = big.head(Some(n_events));
+    let mut bytes = Vec::new();
+    polars::prelude::ParquetWriter::new(&mut bytes)
+        .with_row_group_size(Some(1 << 20))
+        .finish(&mut big)
+        .map_err(|e| e.to_string())?;
+    let record = std::fs::read_to_string(demo().join("listmode/run0201.run.yaml")).map_err(|e| e.to_string())?;
+    for i in 0..n_listmode {
+        let id = format!("m{i:03}");
+        std::fs::write(lm.join(format!("listmode/{id}.events.parquet")), &bytes).map_err(|e| e.to_string())?;
+        let r = record.replace("run: \"0201\"", &format!("run: \"{id}\"")).replace("run0201.events.parquet", &format!("{id}.events.parquet"));
+        std::fs::write(lm.join(format!("listmode/{id}.run.yaml")), r).map_err(|e| e.to_string())?;
+    }
+    let (one, rss_one) = run_timed(&lm, &["batch", "experiment.yaml", "--out", "out1", "-q", "--jobs", "1"])?;
+    let (two, rss_two) = run_timed(&lm, &["batch", "experiment.yaml", "--out", "out2", "-q", "--jobs", "2"])?;
+    println!(
+        "{n_listmode} list-mode runs of {n_events} events: --jobs 1 {one:.2} s (peak RSS {}), --jobs 2 {two:.2} s (peak RSS {}); speed-up {:.2}",
+        rss(rss_one),
+        rss(rss_two),
+        one / two
+    );
+    let _ = std::fs::remove_dir_all(&dir);
+    let _ = std::fs::remove_dir_all(&lm);
+    Ok(())
+}
