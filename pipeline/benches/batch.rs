@@ -6,6 +6,7 @@
 //!    runs);
 //! 2. LISTMODE_RUNS (default 20) list-mode runs of EVENTS (default 1e7) events each, with
 //!    --jobs 1 and --jobs 2: wall time and peak RSS of the whole process.
+//!
 //! Each step runs the xsflow binary as a child; figures are printed, not asserted.
 
 use std::path::{Path, PathBuf};
@@ -16,9 +17,8 @@ fn demo() -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../sample-runs/alpha-ni58")
 }
 
-/// Peak RSS of a finished child, from /proc of this process's children (RUSAGE_CHILDREN
-/// via `getrusage` is not in std, so the child reports its own through `/usr/bin/time`
-/// when present, else the figure is missing).
+/// Wall time of an xsflow command, and its peak RSS as `/usr/bin/time` reports it (missing
+/// when that program is not installed).
 fn run_timed(dir: &Path, args: &[&str]) -> Result<(f64, Option<f64>), String> {
     let exe = env!("CARGO_BIN_EXE_xsflow");
     let time = Path::new("/usr/bin/time");
@@ -34,14 +34,20 @@ fn run_timed(dir: &Path, args: &[&str]) -> Result<(f64, Option<f64>), String> {
     if !out.status.success() {
         return Err(format!("xsflow {args:?} failed: {stderr}"));
     }
-    let rss = if time.is_file() { stderr.lines().last().and_then(|l| l.trim().parse::<f64>().ok()).map(|kb| kb / 1024.0) } else { None };
+    let rss = if time.is_file() {
+        stderr.lines().last().and_then(|l| l.trim().parse::<f64>().ok()).map(|kb| kb / 1024.0)
+    } else {
+        None
+    };
     Ok((seconds, rss))
 }
 
 fn config_without_fits(src: &Path, dst: &Path, runs: &str) -> Result<(), String> {
     let text = std::fs::read_to_string(src).map_err(|e| e.to_string())?;
     let head = text.split("\n  - type: fit").next().unwrap_or(&text);
-    let text = head.replace("  - runs/*.run.yaml", &format!("  - {runs}")).replace("  - listmode/*.run.yaml", &format!("  - {runs}"));
+    let text = head
+        .replace("  - runs/*.run.yaml", &format!("  - {runs}"))
+        .replace("  - listmode/*.run.yaml", &format!("  - {runs}"));
     std::fs::write(dst, text + "\n").map_err(|e| e.to_string())
 }
 
@@ -52,7 +58,11 @@ fn main() -> Result<(), String> {
     let n_events = args.get(2).copied().unwrap_or(10_000_000);
     let cpu = std::fs::read_to_string("/proc/cpuinfo")
         .ok()
-        .and_then(|s| s.lines().find(|l| l.starts_with("model name")).map(|l| l.split(':').nth(1).unwrap_or("").trim().to_string()))
+        .and_then(|s| {
+            s.lines()
+                .find(|l| l.starts_with("model name"))
+                .map(|l| l.split(':').nth(1).unwrap_or("").trim().to_string())
+        })
         .unwrap_or_default();
     println!("machine: {cpu}, {} logical cores", std::thread::available_parallelism().map_or(1, |n| n.get()));
 
@@ -68,7 +78,9 @@ fn main() -> Result<(), String> {
         // Distinct data per run: the first count shifted by the run number.
         let y = yields.replacen("D01,elastic,", &format!("D01,elastic,{}", i % 10), 1);
         std::fs::write(dir.join(format!("runs/{id}.yields.csv")), y).map_err(|e| e.to_string())?;
-        let r = record.replace("run: \"0101\"", &format!("run: \"{id}\"")).replace("run0101.yields.csv", &format!("{id}.yields.csv"));
+        let r = record
+            .replace("run: \"0101\"", &format!("run: \"{id}\""))
+            .replace("run0101.yields.csv", &format!("{id}.yields.csv"));
         std::fs::write(dir.join(format!("runs/{id}.run.yaml")), r).map_err(|e| e.to_string())?;
     }
     let (cold, rss_cold) = run_timed(&dir, &["batch", "experiment.yaml", "--out", "out", "-q", "--jobs", "2"])?;
@@ -81,9 +93,8 @@ fn main() -> Result<(), String> {
         rss(rss_warm)
     );
 
-    // 2. List-mode runs: the demo's list-mode config, one Parquet file written by the
-    // events benchmark's layout is not available here, so the demo's Parquet run is scaled
-    // up by repeating its rows.
+    // 2. List-mode runs: the demo's list-mode config, and its Parquet run (detector, ADC,
+    // ΔE, pile-up; a PID polygon on D01) scaled up by repeating its rows.
     let lm = std::env::temp_dir().join("xsflow-bench-listmode");
     let _ = std::fs::remove_dir_all(&lm);
     std::fs::create_dir_all(lm.join("listmode")).map_err(|e| e.to_string())?;
@@ -104,7 +115,9 @@ fn main() -> Result<(), String> {
     for i in 0..n_listmode {
         let id = format!("m{i:03}");
         std::fs::write(lm.join(format!("listmode/{id}.events.parquet")), &bytes).map_err(|e| e.to_string())?;
-        let r = record.replace("run: \"0201\"", &format!("run: \"{id}\"")).replace("run0201.events.parquet", &format!("{id}.events.parquet"));
+        let r = record
+            .replace("run: \"0201\"", &format!("run: \"{id}\""))
+            .replace("run0201.events.parquet", &format!("{id}.events.parquet"));
         std::fs::write(lm.join(format!("listmode/{id}.run.yaml")), r).map_err(|e| e.to_string())?;
     }
     let (one, rss_one) = run_timed(&lm, &["batch", "experiment.yaml", "--out", "out1", "-q", "--jobs", "1"])?;

@@ -699,8 +699,22 @@ impl Accumulator<'_> {
             }
             return;
         }
+        // Pile-up flags and PID polygons: detectors without a polygon still go straight to
+        // the channel histogram (same tally order as `classify`).
+        let has_pid: Vec<bool> = self.plan.detectors.iter().map(|d| d.pid.is_some()).collect();
         for i in 0..detector.len() {
-            self.classify(detector[i], f64::from(channel[i]), pile_up.map(|p| p[i]), delta_e.map(|e| e[i]));
+            let (d, c) = (detector[i] as usize, channel[i] as usize);
+            if d < n_det && !has_pid[d] {
+                if c >= n_ch {
+                    self.tally.invalid_value += 1;
+                } else if pile_up.is_some_and(|p| p[i]) {
+                    self.tally.pile_up += 1;
+                } else {
+                    self.hist_exact[d * n_ch + c] += 1;
+                }
+            } else {
+                self.classify(detector[i], f64::from(channel[i]), pile_up.map(|p| p[i]), delta_e.map(|e| e[i]));
+            }
         }
     }
 
