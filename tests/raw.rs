@@ -264,3 +264,29 @@ fn windows_written_in_channels_are_the_same_as_in_mev() {
         "{t}"
     );
 }
+
+#[test]
+fn the_same_events_in_arrow_ipc_give_the_same_cross_sections() {
+    // Run 0201 rewritten from Parquet into Arrow IPC (record batches of 1000 rows) reduces
+    // to the same table.
+    use polars::prelude::{IpcWriter, SerWriter};
+    let tmp = listmode_copy();
+    let dir = tmp.path().join("listmode");
+    let df = xsflow::tables::read_table(&dir.join("run0201.events.parquet")).expect("parquet");
+    let mut chunked = df.slice(0, 1000);
+    let mut offset = 1000;
+    while offset < df.height() {
+        chunked.vstack_mut(&df.slice(offset as i64, 1000)).expect("stack");
+        offset += 1000;
+    }
+    let mut file = std::fs::File::create(dir.join("run0201.events.arrow")).expect("create");
+    IpcWriter::new(&mut file).finish(&mut chunked).expect("ipc");
+    assert_eq!(reduce(tmp.path()).status.code(), Some(0));
+    let parquet = std::fs::read_to_string(tmp.path().join("out/0201/cross_sections.csv")).expect("csv");
+    edit(&dir.join("run0201.run.yaml"), "run0201.events.parquet", "run0201.events.arrow");
+    std::fs::remove_dir_all(tmp.path().join("out")).expect("clean");
+    let out = reduce(tmp.path());
+    assert_eq!(out.status.code(), Some(0), "{}", text(&out));
+    let ipc = std::fs::read_to_string(tmp.path().join("out/0201/cross_sections.csv")).expect("csv");
+    assert_eq!(parquet, ipc);
+}

@@ -1,7 +1,7 @@
 //! Reading list-mode events and spectra into a [`stages::raw::Accumulator`]: Parquet one
-//! row group at a time (only the mapped columns are decoded, so memory follows the row
-//! group, not the file), Arrow IPC (the mapped columns of the whole file), and CSV streamed
-//! line by line.
+//! row group at a time and Arrow IPC one record batch at a time (only the mapped columns
+//! are decoded, so memory follows the row group or batch, not the file), CSV streamed line
+//! by line. Spectra are small and read whole.
 
 use std::collections::HashMap;
 use std::fs::File;
@@ -208,6 +208,37 @@ fn ipc_columns(path: &Path) -> Result<Vec<String>, String> {
     Ok(schema.iter_names().map(|n| n.to_string()).collect())
 }
 
+/// Feed an Arrow IPC file to the accumulator one record batch at a time, decoding only
+/// the mapped columns.
+fn read_ipc_events(
+    path: &Path,
+    acc: &mut Accumulator<'_>,
+    map: &mut DetectorMap<'_>,
+    roles: &Roles<'_>,
+) -> Result<(), String> {
+    use polars_arrow::io::ipc::read::{read_file_metadata, FileReader};
+    let mut file = File::open(path).map_err(|e| format!("cannot open it: {e}"))?;
+    let meta = read_file_metadata(&mut file).map_err(|e| format!("cannot read it as Arrow IPC: {e}"))?;
+    let found: Vec<String> = meta.schema.iter_names().map(|n| n.to_string()).collect();
+    check_columns(&found, roles)?;
+    let wanted = roles.names();
+    let mut projection: Vec<usize> =
+        found.iter().enumerate().filter(|(_, n)| wanted.contains(n)).map(|(i, _)| i).collect();
+    projection.sort_unstable();
+    let names: Vec<String> = projection.iter().map(|&i| found[i].clone()).collect();
+    for batch in FileReader::new(file, meta, Some(projection), None) {
+        let batch = batch.map_err(|e| format!("cannot read it as Arrow IPC: {e}"))?;
+        let columns = names
+            .iter()
+            .zip(batch.into_arrays())
+            .map(|(n, a)| Series::from_arrow(n.as_str().into(), a).map(Column::from).map_err(|e| e.to_string()))
+            .collect::<Result<Vec<Column>, String>>()?;
+        let df = DataFrame::new_infer_height(columns).map_err(|e| e.to_string())?;
+        add_frame(acc, map, &df, roles)?;
+    }
+    Ok(())
+}
+
 fn read_ipc_columns(path: &Path, columns: Vec<String>) -> Result<DataFrame, String> {
     let file = File::open(path).map_err(|e| format!("cannot open it: {e}"))?;
     IpcReader::new(file).with_columns(Some(columns)).finish().map_err(|e| format!("cannot read it as Arrow IPC: {e}"))
@@ -321,11 +352,7 @@ pub fn reduce_events(path: &Path, plan: &RawPlan) -> Result<RawResult, String> {
     let mut map = DetectorMap::new(plan);
     match extension(path).as_str() {
         "parquet" | "pq" => read_parquet(path, &mut acc, &mut map, &roles)?,
-        "arrow" | "ipc" | "feather" => {
-            check_columns(&ipc_columns(path)?, &roles)?;
-            let df = read_ipc_columns(path, roles.names())?;
-            add_frame(&mut acc, &mut map, &df, &roles)?;
-        }
+        "arrow" | "ipc" | "feather" => read_ipc_events(path, &mut acc, &mut map, &roles)?,
         "csv" => read_csv_events(path, &mut acc, &mut map, &roles)?,
         ext => return Err(format!("unknown event file format `.{ext}`; accepted: {ACCEPTED}")),
     }
