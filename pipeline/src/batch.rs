@@ -158,6 +158,16 @@ pub fn batch(plan: &Plan, opts: &BatchOptions) -> Result<(BatchSummary, Vec<RunF
     if opts.dry_run {
         return Ok((summary, Vec::new(), lines));
     }
+    // A progress bar for a person at a terminal; cron and batch schedulers get the log lines.
+    let bar = if std::io::IsTerminal::is_terminal(&std::io::stderr()) && !todo.is_empty() {
+        let b = indicatif::ProgressBar::new(todo.len() as u64);
+        if let Ok(style) = indicatif::ProgressStyle::with_template("{bar:40} {pos}/{len} runs, {elapsed} (eta {eta})") {
+            b.set_style(style);
+        }
+        Some(b)
+    } else {
+        None
+    };
     let next = AtomicUsize::new(0);
     let failures = Mutex::new(Vec::new());
     let counts = Mutex::new((0usize, 0usize));
@@ -223,6 +233,9 @@ pub fn batch(plan: &Plan, opts: &BatchOptions) -> Result<(BatchSummary, Vec<RunF
                         }
                     }
                 }
+                if let Some(b) = &bar {
+                    b.inc(1);
+                }
                 if let Ok(mut n) = counts.lock() {
                     match result {
                         Ok(_) => n.0 += 1,
@@ -237,6 +250,9 @@ pub fn batch(plan: &Plan, opts: &BatchOptions) -> Result<(BatchSummary, Vec<RunF
             });
         }
     });
+    if let Some(b) = bar {
+        b.finish_and_clear();
+    }
     let (ok, failed) = counts.into_inner().unwrap_or_default();
     summary.ok = ok;
     summary.failed = failed;
