@@ -189,3 +189,15 @@ fn a_batch_killed_at_any_moment_and_rerun_gives_the_uninterrupted_outputs() {
     assert_eq!(runs.len(), 43);
     assert!(runs.iter().all(|r| r["status"] == "ok"), "{all}");
 }
+
+#[test]
+fn a_run_pattern_that_matches_nothing_is_a_warning_for_a_batch() {
+    let tmp = demo_copy();
+    edit(&tmp.path().join("experiment.yaml"), "  - runs/*.run.yaml", "  - runs/*.run.yaml\n  - tonight/*.run.yaml");
+    let out = batch(tmp.path(), &[]);
+    let msg = text(&out);
+    assert_eq!(out.status.code(), Some(0), "{msg}");
+    assert!(msg.contains("runs[1] matches no run record"), "{msg}");
+    // `reduce` and `check` still call it an error.
+    assert_eq!(xsflow(tmp.path(), &["check", "experiment.yaml"]).status.code(), Some(2));
+}

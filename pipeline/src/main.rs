@@ -287,7 +287,7 @@ fn batch(
             return 2;
         }
     };
-    let p = match plan(config) {
+    let p = match xsflow::plan::plan_with(config, true) {
         Ok(p) => p,
         Err(diags) => {
             print_problems(format, &diags, &[]);

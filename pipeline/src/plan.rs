@@ -98,6 +98,15 @@ pub struct Plan {
 /// # Errors
 /// Every config-level problem at once (the runs' own problems are kept per run).
 pub fn plan(config_path: &Path) -> Result<Plan, Vec<Diagnostic>> {
+    plan_with(config_path, false)
+}
+
+/// As [`plan`]; with `empty_patterns_warn`, a glob pattern that matches no record is a
+/// warning, not an error (a nightly batch may find a run folder still empty).
+///
+/// # Errors
+/// As [`plan`].
+pub fn plan_with(config_path: &Path, empty_patterns_warn: bool) -> Result<Plan, Vec<Diagnostic>> {
     let file = YamlFile::read(config_path).map_err(|d| vec![d])?;
     let (config, mut diags) = parse_experiment(&file);
     let config_dir = config_path.parent().map_or_else(|| PathBuf::from("."), Path::to_path_buf);
@@ -186,7 +195,7 @@ pub fn plan(config_path: &Path) -> Result<Plan, Vec<Diagnostic>> {
     let record_paths = config
         .runs
         .as_deref()
-        .map(|patterns| discover_runs(&file, &config_dir, patterns, &mut diags))
+        .map(|patterns| discover_runs(&file, &config_dir, patterns, empty_patterns_warn, &mut diags))
         .unwrap_or_default();
     match (setup, config.experiment) {
         (Some(setup), Some(experiment)) if diags.is_empty() => {
@@ -296,7 +305,13 @@ fn trace_columns(stages: &[PlannedStage]) -> Vec<Problem> {
 }
 
 /// Expand the `runs:` patterns into record files, sorted, each at most once.
-fn discover_runs(file: &YamlFile, config_dir: &Path, patterns: &[String], diags: &mut Vec<Diagnostic>) -> Vec<PathBuf> {
+fn discover_runs(
+    file: &YamlFile,
+    config_dir: &Path,
+    patterns: &[String],
+    empty_warn: bool,
+    diags: &mut Vec<Diagnostic>,
+) -> Vec<PathBuf> {
     let mut found = std::collections::BTreeSet::new();
     if patterns.is_empty() {
         diags.push(file.problem(&Problem::new(
@@ -314,7 +329,9 @@ fn discover_runs(file: &YamlFile, config_dir: &Path, patterns: &[String], diags:
                 Ok(paths) => {
                     let before = found.len();
                     found.extend(paths.filter_map(Result::ok).filter(|p| p.is_file()));
-                    if found.len() == before {
+                    if found.len() == before && empty_warn {
+                        tracing::warn!(pattern = %pattern, "runs[{i}] matches no run record (looked for {text})");
+                    } else if found.len() == before {
                         diags.push(file.problem(&Problem::new(
                             key,
                             pattern,
