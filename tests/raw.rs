@@ -290,3 +290,21 @@ fn the_same_events_in_arrow_ipc_give_the_same_cross_sections() {
     let ipc = std::fs::read_to_string(tmp.path().join("out/0201/cross_sections.csv")).expect("csv");
     assert_eq!(parquet, ipc);
 }
+
+#[test]
+fn an_overflow_channel_out_of_range_is_a_config_error() {
+    // 0 channels, or more than the histograms may hold: a clear error, not a crash or an
+    // allocation of gigabytes.
+    for bad in ["0", "4000000000"] {
+        let tmp = tempfile::tempdir().expect("scratch");
+        tiny(tmp.path(), "", "det,adc,pu\n");
+        edit(&tmp.path().join("experiment.yaml"), "overflow_channel: 4096", &format!("overflow_channel: {bad}"));
+        let out = xsflow(tmp.path(), &["check", "experiment.yaml"]);
+        let msg = text(&out);
+        assert_eq!(out.status.code(), Some(2), "{msg}");
+        assert!(
+            msg.contains(&format!("raw.overflow_channel: found {bad}, expected a channel count from 2 to 1048576")),
+            "{msg}"
+        );
+    }
+}

@@ -95,7 +95,7 @@ pub fn config_hash(config_path: &Path) -> Result<String, Diagnostic> {
 /// One run's input hash: record bytes and data file.
 fn input_hash(run: &PlannedRun) -> Result<String, String> {
     let loaded = run.loaded.as_ref().map_err(|_| "record did not load".to_string())?;
-    let data = sha256_file(&loaded.yields_path).map_err(|e| format!("{}: {e}", loaded.yields_path.display()))?;
+    let data = loaded.data_hash().map_err(|e| format!("{}: {e}", loaded.yields_path.display()))?;
     Ok(sha256_hex(format!("{}\n{data}", sha256_hex(&loaded.record_bytes)).as_bytes()))
 }
 
@@ -200,13 +200,7 @@ pub fn batch(plan: &Plan, opts: &BatchOptions) -> Result<(BatchSummary, Vec<RunF
                     processed_utc: rfc3339_utc(record_time_s()),
                     seconds: start.elapsed().as_secs_f64(),
                     events: None,
-                    charge_c: run.loaded.as_ref().ok().and_then(|l| match l.record.charge() {
-                        Some(stages::setup::Charge::Coulomb(q)) => Some(q),
-                        Some(stages::setup::Charge::Integrator { counts, scale_c_per_count }) => {
-                            Some(counts * scale_c_per_count)
-                        }
-                        None => None,
-                    }),
+                    charge_c: run.loaded.as_ref().ok().and_then(|l| l.record.charge_c()),
                     live_fraction: None,
                     warnings: String::new(),
                 };

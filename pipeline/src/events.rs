@@ -17,18 +17,45 @@ const ACCEPTED: &str = ".parquet (or .pq), .arrow (or .ipc, .feather), .csv";
 /// Rows handed to the accumulator at once from CSV.
 const CSV_BATCH: usize = 1 << 16;
 
-/// Which columns of an event file, by role.
+/// Which columns of an event or spectrum file, by role.
 struct Roles<'a> {
     detector: &'a str,
+    /// ADC channel (events) or channel (spectra).
     value: &'a str,
     delta_e: Option<&'a str>,
     pile_up: Option<&'a str>,
     time: Option<&'a str>,
+    /// Counts per channel (spectra).
+    counts: Option<&'a str>,
 }
 
-impl Roles<'_> {
+impl<'a> Roles<'a> {
+    fn events(plan: &'a RawPlan) -> Self {
+        let c = &plan.config.columns;
+        Roles {
+            detector: &c.detector,
+            value: &c.energy,
+            delta_e: c.delta_e.as_deref(),
+            pile_up: c.pile_up.as_deref(),
+            time: c.time.as_deref(),
+            counts: None,
+        }
+    }
+
+    fn spectra(plan: &'a RawPlan) -> Self {
+        let s = &plan.config.spectrum_columns;
+        Roles {
+            detector: &s.detector,
+            value: &s.channel,
+            delta_e: None,
+            pile_up: None,
+            time: None,
+            counts: Some(&s.counts),
+        }
+    }
+
     fn names(&self) -> Vec<String> {
-        [Some(self.detector), Some(self.value), self.delta_e, self.pile_up, self.time]
+        [Some(self.detector), Some(self.value), self.delta_e, self.pile_up, self.time, self.counts]
             .into_iter()
             .flatten()
             .map(str::to_string)
@@ -49,8 +76,19 @@ struct DetectorMap<'a> {
 
 impl<'a> DetectorMap<'a> {
     fn new(plan: &'a RawPlan) -> Self {
-        // Integer ids 0…65535 by table.
-        let small = (0..=u16::MAX).map(|v| plan.detector_index(&v.to_string())).collect();
+        // Integer ids 0…65535 by table: only the values that name a detector (as written in
+        // `detector_ids`, or as a detector id) need a lookup.
+        let mut small = vec![UNKNOWN_DETECTOR; usize::from(u16::MAX) + 1];
+        let ids = plan.detector_ids();
+        let keys = ids.iter().copied().chain(plan.config.detector_ids.keys().map(String::as_str));
+        for key in keys {
+            if let Ok(v) = key.parse::<u16>() {
+                // Only the canonical text of the number ("7", not "07") is that number.
+                if v.to_string() == key {
+                    small[usize::from(v)] = plan.detector_index(key);
+                }
+            }
+        }
         DetectorMap { plan, cache: HashMap::new(), small }
     }
     fn text(&mut self, v: &str) -> u16 {
@@ -309,18 +347,7 @@ fn read_csv_events(
 /// # Errors
 /// An unreadable file, an unknown format, or the missing columns (the columns found named).
 pub fn check_file(path: &Path, plan: &RawPlan, spectra: bool) -> Result<(), String> {
-    let (c, s) = (&plan.config.columns, &plan.config.spectrum_columns);
-    let roles = if spectra {
-        Roles { detector: &s.detector, value: &s.channel, delta_e: Some(&s.counts), pile_up: None, time: None }
-    } else {
-        Roles {
-            detector: &c.detector,
-            value: &c.energy,
-            delta_e: c.delta_e.as_deref(),
-            pile_up: c.pile_up.as_deref(),
-            time: c.time.as_deref(),
-        }
-    };
+    let roles = if spectra { Roles::spectra(plan) } else { Roles::events(plan) };
     let found = match extension(path).as_str() {
         "parquet" | "pq" => {
             let mut reader = ParquetReader::new(File::open(path).map_err(|e| format!("cannot open it: {e}"))?);
@@ -340,14 +367,7 @@ pub fn check_file(path: &Path, plan: &RawPlan, spectra: bool) -> Result<(), Stri
 /// An unreadable, corrupt or truncated file, a mapped column that is missing (the columns
 /// found are named) or of the wrong type.
 pub fn reduce_events(path: &Path, plan: &RawPlan) -> Result<RawResult, String> {
-    let c = &plan.config.columns;
-    let roles = Roles {
-        detector: &c.detector,
-        value: &c.energy,
-        delta_e: c.delta_e.as_deref(),
-        pile_up: c.pile_up.as_deref(),
-        time: c.time.as_deref(),
-    };
+    let roles = Roles::events(plan);
     let mut acc = plan.accumulator();
     let mut map = DetectorMap::new(plan);
     match extension(path).as_str() {
@@ -365,23 +385,17 @@ pub fn reduce_events(path: &Path, plan: &RawPlan) -> Result<RawResult, String> {
 /// As [`reduce_events`], and a count that is not a whole number ≥ 0 (its row is named).
 pub fn reduce_spectra(path: &Path, plan: &RawPlan) -> Result<RawResult, String> {
     let c = &plan.config.spectrum_columns;
-    let roles = Roles { detector: &c.detector, value: &c.channel, delta_e: None, pile_up: None, time: None };
+    let roles = Roles::spectra(plan);
     let df = match extension(path).as_str() {
         "parquet" | "pq" | "csv" => crate::tables::read_table(path)?,
         "arrow" | "ipc" | "feather" => {
-            let mut names = roles.names();
-            names.push(c.counts.clone());
-            read_ipc_columns(path, names)?
+            check_columns(&ipc_columns(path)?, &roles)?;
+            read_ipc_columns(path, roles.names())?
         }
         ext => return Err(format!("unknown spectrum file format `.{ext}`; accepted: {ACCEPTED}")),
     };
     let found: Vec<String> = df.get_column_names().iter().map(|n| n.to_string()).collect();
-    let mut names = roles.names();
-    names.push(c.counts.clone());
-    check_columns(
-        &found,
-        &Roles { detector: &names[0], value: &names[1], delta_e: Some(&names[2]), pile_up: None, time: None },
-    )?;
+    check_columns(&found, &roles)?;
     let mut map = DetectorMap::new(plan);
     let det = map.column(df.column(&c.detector).map_err(|e| e.to_string())?)?;
     let ch = f64_column(df.column(&c.channel).map_err(|e| e.to_string())?, "channels")?;

@@ -7,6 +7,7 @@ use std::path::{Path, PathBuf};
 
 use polars::prelude::{Column, DataFrame};
 use stages::fit::{CurveTable, Fit, FitData, FitModelConfig, FitReport};
+use stages::physics::model_fit::NORMALISATION;
 
 use crate::config::YamlFile;
 use crate::error::Diagnostic;
@@ -174,15 +175,14 @@ pub struct FitOutput {
 pub fn run(loaded: &LoadedFit, table: &DataFrame, state: &str) -> Result<FitOutput, String> {
     let data = FitData::from_table(table, state).map_err(|e| e.to_string())?;
     let (report, values) = loaded.fit.run(&data, state, loaded.model).map_err(|e| e.to_string())?;
-    let nu = report.parameters.iter().find(|p| p.name == "normalisation").map_or(1.0, |p| p.value);
-    let lo = (data.theta_cm_deg[0] - 2.0).max(1.0);
-    let hi = (data.theta_cm_deg[data.theta_cm_deg.len() - 1] + 2.0).min(179.0);
-    let mut angles: Vec<f64> = (0..).map(|i| lo + 0.5 * f64::from(i)).take_while(|a| *a <= hi).collect();
-    let rows = loaded.fit.curve(&values, nu, &angles).or_else(|_| {
-        // A curve model is only defined inside its table: keep the data angles.
-        angles = data.theta_cm_deg.clone();
-        loaded.fit.curve(&values, nu, &angles)
-    })?;
+    let nu = report.parameters.iter().find(|p| p.name == NORMALISATION).map_or(1.0, |p| p.value);
+    // Half-degree steps from 2° before the first point to 2° after the last, inside the
+    // range where the model is defined (a curve model: its table).
+    let (first, last) = (data.theta_cm_deg[0], data.theta_cm_deg[data.theta_cm_deg.len() - 1]);
+    let (min, max) = loaded.fit.angle_range_deg();
+    let (lo, hi) = ((first - 2.0).max(min), (last + 2.0).min(max));
+    let angles: Vec<f64> = (0..).map(|i| lo + 0.5 * f64::from(i)).take_while(|a| *a <= hi).collect();
+    let rows = loaded.fit.curve(&values, nu, &angles)?;
     let curve = DataFrame::new_infer_height(vec![
         Column::new("theta_cm_deg".into(), rows.iter().map(|r| r.0).collect::<Vec<_>>()),
         Column::new("dsdo_cm_mb_sr".into(), rows.iter().map(|r| r.1).collect::<Vec<_>>()),

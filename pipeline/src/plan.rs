@@ -46,6 +46,23 @@ pub struct LoadedRun {
     pub yields_path: PathBuf,
     /// What the data file holds.
     pub data: stages::setup::RunData,
+    /// SHA-256 of the data file, computed once (a batch's change check and the run's
+    /// provenance use the same one; event files can be large).
+    pub data_sha256: std::sync::OnceLock<String>,
+}
+
+impl LoadedRun {
+    /// SHA-256 of the data file, read the first time it is asked for.
+    ///
+    /// # Errors
+    /// The file cannot be read.
+    pub fn data_hash(&self) -> std::io::Result<String> {
+        if let Some(h) = self.data_sha256.get() {
+            return Ok(h.clone());
+        }
+        let h = crate::provenance::sha256_file(&self.yields_path)?;
+        Ok(self.data_sha256.get_or_init(|| h).clone())
+    }
 }
 
 /// A discovered run: loaded, or the problems that stop it.
@@ -395,7 +412,14 @@ fn load_run(record_path: &Path, stages: &[PlannedStage], has_raw: bool) -> Resul
     if !problems.is_empty() {
         return Err(problems.iter().map(|p| file.problem(p)).collect());
     }
-    Ok(LoadedRun { record_path: record_path.to_path_buf(), record_bytes: file.bytes, record, yields_path, data })
+    Ok(LoadedRun {
+        record_path: record_path.to_path_buf(),
+        record_bytes: file.bytes,
+        record,
+        yields_path,
+        data,
+        data_sha256: std::sync::OnceLock::new(),
+    })
 }
 
 impl Plan {

@@ -91,7 +91,8 @@ fn reduce_raw(plan: &Plan, run: &LoadedRun) -> Result<(DataFrame, RawOutputs), V
 /// Every problem of the yields table, or the first stage that fails; located.
 pub fn reduce_run(plan: &Plan, run: &LoadedRun) -> Result<Reduced, Vec<Diagnostic>> {
     let yields = &run.yields_path;
-    let sha = crate::provenance::sha256_file(yields)
+    let sha = run
+        .data_hash()
         .map_err(|e| vec![Diagnostic::new(yields, "", format!("cannot read the run's data file: {e}"))])?;
     let (raw, raw_outputs) = if run.data == RunData::Yields {
         let t = read_table(yields).map_err(|m| {

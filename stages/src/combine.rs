@@ -123,6 +123,8 @@ pub fn combine(rows: &[Row], tolerance_deg: f64) -> Result<(Vec<Point>, Vec<f64>
     let mut a = vec![vec![0.0; runs.len()]; n];
     let mut nu = vec![0.0; runs.len()];
     let mut b = vec![0.0; n];
+    // σ_p2p,k, kept for the covariance (the point's `sys` also holds the independent part).
+    let mut p2p = vec![0.0; n];
     let mut points = Vec::with_capacity(n);
     for (k, g) in groups.iter().enumerate() {
         // A row with no counts has no error; it takes the smallest error of the point's other
@@ -149,14 +151,14 @@ pub fn combine(rows: &[Row], tolerance_deg: f64) -> Result<(Vec<Point>, Vec<f64>
             b[k] += wi * r.y * r.shared_rel_err / wsum;
         }
         let independent: f64 = a[k].iter().zip(&nu).map(|(a, nu)| (a * nu).powi(2)).sum();
-        let sys_p2p = mean(&|r| r.sys);
+        p2p[k] = mean(&|r| r.sys);
         points.push(Point {
             state: rows[g[0]].state.clone(),
             theta_lab_deg: mean(&|r| r.theta_lab_deg),
             theta_cm_deg: mean(&|r| r.theta_cm_deg),
             y,
             stat,
-            sys: (sys_p2p.powi(2) + independent).sqrt(),
+            sys: (p2p[k].powi(2) + independent).sqrt(),
             norm_rel_err: if y == 0.0 { 0.0 } else { b[k] / y },
             members: g.iter().map(|&i| format!("{}/{}", rows[i].run, rows[i].detector)).collect::<Vec<_>>().join("+"),
             rows: g.len(),
@@ -166,12 +168,7 @@ pub fn combine(rows: &[Row], tolerance_deg: f64) -> Result<(Vec<Point>, Vec<f64>
     for k in 0..n {
         for l in 0..n {
             let ind: f64 = (0..runs.len()).map(|r| a[k][r] * a[l][r] * nu[r] * nu[r]).sum();
-            let diag = if k == l {
-                points[k].stat.powi(2)
-                    + (points[k].sys.powi(2) - a[k].iter().zip(&nu).map(|(a, nu)| (a * nu).powi(2)).sum::<f64>())
-            } else {
-                0.0
-            };
+            let diag = if k == l { points[k].stat.powi(2) + p2p[k].powi(2) } else { 0.0 };
             cov[k * n + l] = diag + ind + b[k] * b[l];
         }
     }

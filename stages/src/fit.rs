@@ -23,7 +23,7 @@ use serde::{Deserialize, Serialize};
 use crate::physics::coulomb::legendre;
 use crate::physics::least_squares::qr_solve;
 use crate::physics::model_fit::{
-    self, FitError, FitOptions, Measured, Minimum, Normalisation, Parameter, Profile, Shape, NORMALISATION,
+    self, FitError, FitOptions, Measured, Minimum, Normalisation, Parameter, Profile, Shape,
 };
 use crate::physics::nuclide::Nuclide;
 use crate::physics::optical::{self, ElasticChannel, Numerics, OpticalPotential, WoodsSaxon};
@@ -503,9 +503,6 @@ struct AtAngles<'a> {
 }
 
 impl Shape for AtAngles<'_> {
-    fn points(&self) -> usize {
-        self.theta_rad.len()
-    }
     fn solved_linear(&self) -> bool {
         // The Legendre start is the exact weighted least-squares solution (legendre_start).
         matches!(self.model, Model::Legendre { .. })
@@ -759,9 +756,13 @@ pub enum FitFailure {
 }
 
 impl Fit {
-    /// The normalisation treatment.
-    pub fn mode(&self) -> NormalisationMode {
-        self.mode
+    /// The CM angles (degrees) where the model is defined: a curve model's table range,
+    /// else 1°–179°.
+    pub fn angle_range_deg(&self) -> (f64, f64) {
+        match &self.model {
+            Model::Curve(c) => (c.theta_cm_deg[0].max(1.0), c.theta_cm_deg[c.theta_cm_deg.len() - 1].min(179.0)),
+            _ => (1.0, 179.0),
+        }
     }
 
     fn normalisation(&self, data: &FitData, warnings: &mut Vec<String>) -> Result<Normalisation, FitFailure> {
@@ -1041,9 +1042,4 @@ fn auto_numerics(om: &OpticalModel, p: &[f64]) -> Result<Numerics, FitFailure> {
         matching_radius_fm: Some(sol.matching_radii_fm.0),
         l_max: Some(sol.l_max),
     })
-}
-
-/// The parameter names of a report, for tables.
-pub fn parameter_names(report: &FitReport) -> Vec<&str> {
-    report.parameters.iter().map(|p| p.name.as_str()).filter(|n| *n != NORMALISATION).collect()
 }

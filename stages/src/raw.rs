@@ -282,6 +282,10 @@ pub struct RawPlan {
     n_channels: usize,
 }
 
+/// The largest `overflow_channel`: spectra are held as one histogram per detector, so the
+/// channel count bounds the memory (2^20 channels, 8 MB per detector).
+pub const MAX_CHANNELS: u32 = 1 << 20;
+
 /// Marks an event whose detector value is not a known detector.
 pub const UNKNOWN_DETECTOR: u16 = u16::MAX;
 /// Bins per axis of the 2-D (E, ΔE) histogram.
@@ -345,7 +349,12 @@ impl RawConfig {
         c.positive("gates.window_resolutions", g.window_resolutions);
         c.non_negative("gates.side_band_gap_resolutions", g.side_band_gap_resolutions);
         c.positive("gates.side_band_width_resolutions", g.side_band_width_resolutions);
-        c.require(self.overflow_channel >= 2, "overflow_channel", self.overflow_channel, "at least 2 channels");
+        c.require(
+            (2..=MAX_CHANNELS).contains(&self.overflow_channel),
+            "overflow_channel",
+            self.overflow_channel,
+            &format!("a channel count from 2 to {MAX_CHANNELS}"),
+        );
         let ids: Vec<&str> = setup.detectors.iter().map(|d| d.id.0.as_str()).collect();
         for (k, id) in &self.detector_ids {
             c.require(
@@ -423,7 +432,7 @@ impl RawConfig {
                 continue;
             };
             let key = if self.calibration.contains_key(&det_id) { det_id.clone() } else { "all".into() };
-            let top = (n_ch - 1) as f64;
+            let top = n_ch.saturating_sub(1) as f64;
             let rising = cal.gain_mev_per_channel > 0.0
                 && cal.gain_mev_per_channel + 2.0 * cal.quadratic_mev_per_channel2 * top > 0.0;
             c.require(

@@ -24,7 +24,7 @@
 //! Statistical Methods, section 4.4.4). A parameter at a bound has no reliable error and is
 //! flagged.
 
-use std::cell::RefCell;
+use std::cell::{Cell, RefCell};
 
 use statrs::distribution::{ChiSquared, ContinuousCDF};
 
@@ -32,8 +32,6 @@ use super::least_squares::{inverse_normal_matrix, minimise, LmOptions, Residuals
 
 /// A model curve: values at the data points for the shape parameters.
 pub trait Shape {
-    /// Number of data points the shape is evaluated at.
-    fn points(&self) -> usize;
     /// Fill `out` (one value per point) at parameters `p`.
     ///
     /// # Errors
@@ -236,9 +234,17 @@ struct Chi2<'a, S: Shape> {
     params: &'a [Parameter],
     data: &'a Measured,
     norm: Normalisation,
+    /// Model evaluations so far.
+    calls: Cell<usize>,
 }
 
 impl<S: Shape> Chi2<'_, S> {
+    /// The shape's values, counted.
+    fn values(&self, p: &[f64], out: &mut [f64]) -> Result<(), String> {
+        self.calls.set(self.calls.get() + 1);
+        self.shape.values(p, out)
+    }
+
     fn n_shape(&self) -> usize {
         self.params.len()
     }
@@ -252,7 +258,7 @@ impl<S: Shape> Chi2<'_, S> {
     /// Residuals at external shape parameters `p` and normalisation `nu`; the model values
     /// are left in `m`.
     fn residuals_ext(&self, p: &[f64], nu: f64, m: &mut [f64], r: &mut [f64]) -> bool {
-        if self.shape.values(p, m).is_err() {
+        if self.values(p, m).is_err() {
             return false;
         }
         for (i, ((y, s), mi)) in self.data.y.iter().zip(&self.data.sigma).zip(m.iter()).enumerate() {
@@ -289,14 +295,14 @@ impl<S: Shape> Chi2<'_, S> {
                 _ => return false,
             };
             x[j] = p[j] + up;
-            if up != 0.0 && self.shape.values(&x, &mut mp).is_err() {
+            if up != 0.0 && self.values(&x, &mut mp).is_err() {
                 return false;
             }
             if up == 0.0 {
                 mp.copy_from_slice(m);
             }
             x[j] = p[j] + down;
-            if down != 0.0 && self.shape.values(&x, &mut mm).is_err() {
+            if down != 0.0 && self.values(&x, &mut mm).is_err() {
                 return false;
             }
             if down == 0.0 {
@@ -349,7 +355,7 @@ impl<S: Shape> Residuals for Chi2<'_, S> {
         let pts = self.data.y.len();
         let m: Vec<f64> = if nu == 0.0 {
             let mut m = vec![0.0; pts];
-            if self.shape.values(&p, &mut m).is_err() {
+            if self.values(&p, &mut m).is_err() {
                 return false;
             }
             m
@@ -381,7 +387,7 @@ pub fn fit<S: Shape>(
     opts: &FitOptions,
 ) -> Result<Minimum, FitError> {
     params.iter().try_for_each(transform_check)?;
-    let problem = Chi2 { shape, params, data, norm };
+    let problem = Chi2 { shape, params, data, norm, calls: Cell::new(0) };
     let free = params.len() + usize::from(problem.fits_norm());
     let priors = problem.rows() - data.y.len();
     if free > problem.rows() {
@@ -389,26 +395,25 @@ pub fn fit<S: Shape>(
     }
     let mut m = vec![0.0; data.y.len()];
     let start: Vec<f64> = params.iter().map(|p| p.start).collect();
-    shape.values(&start, &mut m).map_err(FitError::StartFails)?;
+    problem.values(&start, &mut m).map_err(FitError::StartFails)?;
     let mut q0: Vec<f64> = params.iter().map(|p| internal(p, p.start)).collect();
     if problem.fits_norm() {
         q0.push(1.0);
     }
-    let (result, mut evaluations, iterations, termination) =
-        if q0.is_empty() || (shape.solved_linear() && norm == Normalisation::Fixed) {
-            (q0.clone(), 1, 0, Termination::Linear)
-        } else {
-            let lm = LmOptions {
-                max_iterations: opts.max_iterations,
-                ftol: opts.ftol,
-                xtol: opts.xtol,
-                gtol: 1e-10,
-                initial_step_bound: None,
-            };
-            let r = minimise(&problem, &q0, &lm);
-            let evals = r.evaluations * (1 + params.len());
-            (r.params, evals, r.iterations, r.termination)
+    let (result, iterations, termination) = if q0.is_empty() || (shape.solved_linear() && norm == Normalisation::Fixed)
+    {
+        (q0.clone(), 0, Termination::Linear)
+    } else {
+        let lm = LmOptions {
+            max_iterations: opts.max_iterations,
+            ftol: opts.ftol,
+            xtol: opts.xtol,
+            gtol: 1e-10,
+            initial_step_bound: None,
         };
+        let r = minimise(&problem, &q0, &lm);
+        (r.params, r.iterations, r.termination)
+    };
     let (p, nu) = problem.to_external(&result);
     let mut r = vec![0.0; problem.rows()];
     if !problem.residuals_ext(&p, nu, &mut m, &mut r) {
@@ -419,7 +424,6 @@ pub fn fit<S: Shape>(
     let n = free;
     let mut jac = vec![0.0; problem.rows() * n];
     let covariance = if n > 0 && problem.jacobian_ext(&p, nu, &m, true, &mut jac) {
-        evaluations += 2 * params.len();
         inverse_normal_matrix(&jac, problem.rows(), n)
     } else {
         None
@@ -461,6 +465,7 @@ pub fn fit<S: Shape>(
         }
     }
     let ndf = problem.rows() - free;
+    let evaluations = problem.calls.get();
     let p_value = (ndf > 0).then(|| ChiSquared::new(ndf as f64).map(|d| d.sf(chi2)).ok()).flatten();
     Ok(Minimum { estimates, covariance, chi2, ndf, p_value, termination, iterations, evaluations, model: m })
 }
@@ -530,9 +535,6 @@ struct Held<'a, S: Shape> {
 }
 
 impl<S: Shape> Shape for Held<'_, S> {
-    fn points(&self) -> usize {
-        self.inner.points()
-    }
     fn values(&self, p: &[f64], out: &mut [f64]) -> Result<(), String> {
         let mut full = self.full.borrow_mut();
         let (before, after) = p.split_at(self.index);
@@ -616,9 +618,6 @@ mod tests {
     /// y = a·exp(−b x) at fixed x.
     struct Decay(Vec<f64>);
     impl Shape for Decay {
-        fn points(&self) -> usize {
-            self.0.len()
-        }
         fn values(&self, p: &[f64], out: &mut [f64]) -> Result<(), String> {
             for (o, x) in out.iter_mut().zip(&self.0) {
                 *o = p[0] * (-p[1] * x).exp();
@@ -678,9 +677,6 @@ mod tests {
     /// y = a + b x.
     struct Line(Vec<f64>);
     impl Shape for Line {
-        fn points(&self) -> usize {
-            self.0.len()
-        }
         fn values(&self, p: &[f64], out: &mut [f64]) -> Result<(), String> {
             for (o, x) in out.iter_mut().zip(&self.0) {
                 *o = p[0] + p[1] * x;
