@@ -203,3 +203,222 @@ fn a_run_pattern_that_matches_nothing_is_a_warning_for_a_batch() {
     // `reduce` and `check` still call it an error.
     assert_eq!(xsflow(tmp.path(), &["check", "experiment.yaml"]).status.code(), Some(2));
 }
+
+#[test]
+fn a_run_file_that_changes_or_disappears_during_the_batch_fails_that_run_and_a_rerun_picks_it_up() {
+    // The batch hashes every run's files when it decides what to do, and reads them later.
+    // Here the hashes are taken first (as the batch's change check does), then, before the
+    // batch reads them: run 0101's yields table is rewritten, run 0102's record and run
+    // 0103's yields table are deleted. A fourth run (0104, a copy of 0101) stays as it was.
+    let tmp = demo_copy();
+    let runs = tmp.path().join("runs");
+    std::fs::copy(runs.join("run0101.yields.csv"), runs.join("run0104.yields.csv")).expect("copy");
+    let record = std::fs::read_to_string(runs.join("run0101.run.yaml")).expect("record");
+    std::fs::write(runs.join("run0104.run.yaml"), record.replace("0101", "0104")).expect("write");
+    let plan = xsflow::plan::plan_with(&tmp.path().join("experiment.yaml"), true).expect("the demo plans");
+    for run in &plan.runs {
+        run.loaded.as_ref().expect("loads").data_hash().expect("hashed");
+    }
+    let yields_0101 = runs.join("run0101.yields.csv");
+    let original_0101 = std::fs::read(&yields_0101).expect("read");
+    edit(&yields_0101, "D01,elastic,", "D01,elastic,1");
+    let record_0102 = std::fs::read(runs.join("run0102.run.yaml")).expect("read");
+    std::fs::remove_file(runs.join("run0102.run.yaml")).expect("remove");
+    let yields_0103 = std::fs::read(runs.join("run0103.yields.csv")).expect("read");
+    std::fs::remove_file(runs.join("run0103.yields.csv")).expect("remove");
+    let opts =
+        xsflow::batch::BatchOptions { out: tmp.path().join("out"), jobs: 2, shard: None, force: false, dry_run: false };
+    let (summary, failures, _) = xsflow::batch::batch(&plan, &opts).expect("the batch runs");
+    assert_eq!((summary.ok, summary.failed), (1, 3), "{failures:?}");
+    let reason =
+        |run: &str| failures.iter().find(|f| f.run == run).map(|f| f.problems[0].to_string()).unwrap_or_default();
+    assert!(
+        reason("0101").contains("run0101.yields.csv the file changed while the run was being reduced (size"),
+        "{}",
+        reason("0101")
+    );
+    assert!(
+        reason("0102").contains("run0102.run.yaml the file disappeared while the run was being reduced"),
+        "{}",
+        reason("0102")
+    );
+    assert!(
+        reason("0103").contains("run0103.yields.csv the file disappeared while the run was being reduced"),
+        "{}",
+        reason("0103")
+    );
+    for run in ["0101", "0102", "0103"] {
+        assert!(!tmp.path().join("out").join(run).exists(), "nothing of {run} is written");
+    }
+    let list: serde_json::Value =
+        serde_json::from_slice(&xsflow(tmp.path(), &["runs", "out", "--failed", "--format", "json"]).stdout)
+            .expect("json");
+    assert_eq!(list.as_array().map(Vec::len), Some(3), "{list}");
+    // The files come back as they were: the next batch processes exactly the three runs,
+    // and gives what an undisturbed reduction gives.
+    std::fs::write(&yields_0101, original_0101).expect("restore");
+    std::fs::write(runs.join("run0102.run.yaml"), record_0102).expect("restore");
+    std::fs::write(runs.join("run0103.yields.csv"), yields_0103).expect("restore");
+    let again = batch(tmp.path(), &[]);
+    assert_eq!(again.status.code(), Some(0), "{}", text(&again));
+    assert!(summary_line(&again).starts_with("batch: 3 ok, 0 failed, 1 skipped"), "{}", text(&again));
+    for run in ["0101", "0102", "0103"] {
+        let got = std::fs::read(tmp.path().join("out").join(run).join("cross_sections.csv")).expect("csv");
+        let want = std::fs::read(demo_dir().join("expected").join(run).join("cross_sections.csv")).expect("csv");
+        assert!(got == want, "{run} differs from the expected demo output");
+    }
+}
+
+/// A small file system of its own (a tmpfs of a given size) mounted on a folder, in a new
+/// user and mount namespace held by a shell (`unshare` from util-linux); commands run in
+/// that shell see the small file system, and this process reads it through
+/// `/proc/PID/root`. Nothing here needs root, and nothing can fill the real disk.
+struct SmallDisk {
+    shell: std::process::Child,
+    input: std::process::ChildStdin,
+    output: std::io::BufReader<std::process::ChildStdout>,
+    mount: std::path::PathBuf,
+}
+
+impl SmallDisk {
+    /// Mount a tmpfs of `size_kib` on `mount`; the shell's commands run in `mount`'s parent.
+    fn mount(mount: &Path, size_kib: u64) -> SmallDisk {
+        use std::io::BufRead;
+        std::fs::create_dir_all(mount).expect("mount point");
+        let script = r#"mount -t tmpfs -o size="$1"k xsflow-test "$2" || exit 1
+echo mounted
+while read -r line; do (eval "$line"); echo "exit $?"; done"#;
+        let mut shell = std::process::Command::new("unshare")
+            .args(["--user", "--map-root-user", "--mount", "sh", "-c", script, "sh"])
+            .arg(size_kib.to_string())
+            .arg(mount)
+            .current_dir(mount.parent().expect("a parent folder"))
+            .env("SOURCE_DATE_EPOCH", "1764633600")
+            .env_remove("RUST_LOG")
+            .stdin(std::process::Stdio::piped())
+            .stdout(std::process::Stdio::piped())
+            .spawn()
+            .expect("unshare (util-linux) runs");
+        let input = shell.stdin.take().expect("stdin");
+        let mut output = std::io::BufReader::new(shell.stdout.take().expect("stdout"));
+        let mut line = String::new();
+        output.read_line(&mut line).expect("the shell answers");
+        assert_eq!(
+            line.trim(),
+            "mounted",
+            "this test needs user and mount namespaces (unshare --user --map-root-user --mount) to mount a tmpfs"
+        );
+        SmallDisk { shell, input, output, mount: mount.to_path_buf() }
+    }
+
+    /// Run a shell line in the namespace; its exit code.
+    fn sh(&mut self, line: &str) -> i32 {
+        use std::io::{BufRead, Write};
+        writeln!(self.input, "{line}").expect("send");
+        let mut answer = String::new();
+        self.output.read_line(&mut answer).expect("answer");
+        answer.trim().strip_prefix("exit ").and_then(|c| c.parse().ok()).unwrap_or_else(|| panic!("{answer:?}"))
+    }
+
+    /// The small disk's folder as this process sees it.
+    fn inside(&self) -> std::path::PathBuf {
+        let root = Path::new("/proc").join(self.shell.id().to_string()).join("root");
+        root.join(self.mount.strip_prefix("/").expect("absolute"))
+    }
+
+    /// The files on the small disk, with their bytes (the filler aside).
+    fn files(&self) -> Vec<(String, Vec<u8>)> {
+        let inside = self.inside();
+        crate::common::files_below(&inside)
+            .into_iter()
+            .map(|f| {
+                (
+                    f.strip_prefix(&inside).expect("below").to_string_lossy().into_owned(),
+                    std::fs::read(&f).expect("read"),
+                )
+            })
+            .filter(|(name, _)| name != "filler")
+            .collect()
+    }
+}
+
+impl Drop for SmallDisk {
+    fn drop(&mut self) {
+        let _ = self.shell.kill();
+        let _ = self.shell.wait();
+    }
+}
+
+#[test]
+fn a_full_disk_or_a_read_only_output_folder_stops_the_batch_with_a_clear_error_and_the_catalogue_unchanged() {
+    let tmp = demo_copy();
+    let dir = tmp.path().to_path_buf();
+    let mut disk = SmallDisk::mount(&dir.join("out"), 2048);
+    let xsflow_bin = env!("CARGO_BIN_EXE_xsflow");
+    let batch_inside = |disk: &mut SmallDisk, log: &str| -> (i32, String) {
+        let code = disk.sh(&format!("'{xsflow_bin}' batch experiment.yaml --out out > {log} 2>&1"));
+        (code, std::fs::read_to_string(dir.join(log)).expect("log"))
+    };
+    let (code, log) = batch_inside(&mut disk, "first.log");
+    assert_eq!(code, 0, "{log}");
+    assert!(!dir.join("out/catalogue.sqlite").exists(), "the outputs are on the small disk, not the real one");
+    let before = disk.files();
+    assert!(before.iter().any(|(n, _)| n == "catalogue.sqlite") && before.len() > 10, "{}", before.len());
+
+    // Run 0102 changes, then the disk fills up (dd stops at the tmpfs size, 2 MiB, well
+    // before its 4 MiB count).
+    edit(&dir.join("runs/run0102.yields.csv"), "D01,elastic,", "D01,elastic,1");
+    assert_ne!(disk.sh("dd if=/dev/zero of=out/filler bs=4k count=1024 2>/dev/null"), 0, "dd must hit a full disk");
+    let filler = std::fs::metadata(disk.inside().join("filler")).expect("the filler is on the small disk").len();
+    assert!(filler > 0 && filler < 2 << 20, "{filler} bytes: the small disk is full");
+    let (code, log) = batch_inside(&mut disk, "full.log");
+    assert_eq!(code, 2, "{log}");
+    assert!(log.contains("No space left on device"), "{log}");
+    assert!(log.contains("the batch stopped: 0 run(s) written, 0 failed, 1 not processed"), "{log}");
+    assert!(log.contains("help: free space on the disk or make the output folder writable"), "{log}");
+    let after = disk.files();
+    let names = |f: &[(String, Vec<u8>)]| f.iter().map(|x| x.0.clone()).collect::<Vec<_>>();
+    assert_eq!(names(&after), names(&before), "no file added or left behind, no temporary file");
+    for ((name, a), (_, b)) in after.iter().zip(&before) {
+        assert!(a == b, "{name} changed on the full disk");
+    }
+
+    // Space again: the rerun takes up exactly the changed run and gives what a batch on the
+    // real disk gives.
+    assert_eq!(disk.sh("rm out/filler"), 0);
+    let (code, log) = batch_inside(&mut disk, "rerun.log");
+    assert_eq!(code, 0, "{log}");
+    assert!(log.contains("batch: 1 ok, 0 failed, 2 skipped"), "{log}");
+    let reference = xsflow(&dir, &["batch", "experiment.yaml", "--out", "out-ref"]);
+    assert_eq!(reference.status.code(), Some(0), "{}", text(&reference));
+    let on_disk = disk.files();
+    for (name, bytes) in &on_disk {
+        if name != "catalogue.sqlite" {
+            let want = std::fs::read(dir.join("out-ref").join(name));
+            assert!(want.is_ok_and(|w| w == *bytes), "{name} differs from an undisturbed batch");
+        }
+    }
+
+    // A read-only output folder: a clear error before any run is read, nothing changes.
+    edit(&dir.join("runs/run0103.yields.csv"), "D01,elastic,", "D01,elastic,1");
+    assert_eq!(disk.sh("mount -o remount,ro out"), 0);
+    let (code, log) = batch_inside(&mut disk, "readonly.log");
+    assert_eq!(code, 2, "{log}");
+    assert!(log.contains("cannot write into the output folder: Read-only file system"), "{log}");
+    assert!(disk.files() == on_disk, "nothing changed in the read-only folder");
+}
+
+#[test]
+fn an_output_folder_that_is_a_file_is_refused_before_any_run_is_read() {
+    let tmp = demo_copy();
+    std::fs::write(tmp.path().join("out"), "not a folder").expect("write");
+    let out = batch(tmp.path(), &[]);
+    let msg = text(&out);
+    assert_eq!(out.status.code(), Some(2), "{msg}");
+    assert!(msg.contains("out cannot create the output folder: File exists"), "{msg}");
+    assert!(
+        msg.contains("help: the output folder must exist or be creatable, be writable and have free space"),
+        "{msg}"
+    );
+    assert_eq!(std::fs::read_to_string(tmp.path().join("out")).expect("read"), "not a folder");
+}

@@ -4,7 +4,11 @@
 //! data file, or of the config sections that affect every run (reaction, target, detectors,
 //! the per-run stages, raw), differs from its last successful processing. One bad run never
 //! stops the others; outputs are written atomically before the catalogue records them, so a
-//! batch killed at any moment leaves either the old or the new state of each run.
+//! batch killed at any moment leaves either the old or the new state of each run. A record
+//! or data file that changes or disappears while its run is reduced fails that run (the
+//! next batch picks it up). An output folder that cannot take the outputs (full disk,
+//! read-only or unwritable) stops the batch with one error; the runs it hit keep their
+//! files and catalogue entries as they were.
 
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicUsize, Ordering};
@@ -14,12 +18,13 @@ use std::time::Instant;
 use polars::prelude::DataFrame;
 use tracing::{info, info_span, warn};
 
-use crate::catalogue::{Catalogue, RunEntry};
+use crate::catalogue::{Catalogue, RunEntry, CATALOGUE_FILE};
 use crate::config::YamlFile;
 use crate::error::{Diagnostic, RunFailure};
 use crate::plan::{Plan, PlannedRun};
 use crate::provenance::{record_time_s, rfc3339_utc, sha256_file, sha256_hex, InputFile};
-use crate::run::{reduce_run, write_outputs, Summary, CROSS_SECTIONS_PARQUET, PROVENANCE_JSON};
+use crate::run::{output_files, reduce_run, Summary, CROSS_SECTIONS_PARQUET, PROVENANCE_JSON};
+use crate::tables::write_all_atomic;
 
 /// Settings of a batch.
 #[derive(Debug, Clone)]
@@ -105,7 +110,10 @@ fn input_hash(run: &PlannedRun) -> Result<String, String> {
 /// An output folder or catalogue that cannot be used (nothing is processed then).
 pub fn batch(plan: &Plan, opts: &BatchOptions) -> Result<(BatchSummary, Vec<RunFailure>, Vec<String>), Diagnostic> {
     let fail = |m: String| Diagnostic::new(&opts.out, "", m);
-    std::fs::create_dir_all(&opts.out).map_err(|e| fail(format!("cannot create the output folder: {e}")))?;
+    let unusable =
+        |m: String| fail(m).with_help("the output folder must exist or be creatable, be writable and have free space");
+    std::fs::create_dir_all(&opts.out).map_err(|e| unusable(format!("cannot create the output folder: {e}")))?;
+    probe_writable(&opts.out).map_err(|e| unusable(format!("cannot write into the output folder: {e}")))?;
     remove_stale_temporaries(&opts.out);
     let catalogue = Catalogue::open(&opts.out).map_err(fail)?;
     let shard_text = opts.shard.map_or_else(|| "1/1".to_string(), |(k, n)| format!("{k}/{n}"));
@@ -171,10 +179,21 @@ pub fn batch(plan: &Plan, opts: &BatchOptions) -> Result<(BatchSummary, Vec<RunF
     let next = AtomicUsize::new(0);
     let failures = Mutex::new(Vec::new());
     let counts = Mutex::new((0usize, 0usize));
-    let catalogue_errors = Mutex::new(Vec::new());
+    // The first problem of the output folder itself (a full disk, a read-only folder, a
+    // catalogue that cannot be written): no run starts after it, and the run it hit is not
+    // recorded, so the catalogue keeps what it said of that run before.
+    let stopped: Mutex<Option<String>> = Mutex::new(None);
+    let stop = |why: String| {
+        if let Ok(mut s) = stopped.lock() {
+            s.get_or_insert(why);
+        }
+    };
     std::thread::scope(|scope| {
         for _ in 0..opts.jobs.max(1).min(todo.len().max(1)) {
             scope.spawn(|| loop {
+                if stopped.lock().map_or(true, |s| s.is_some()) {
+                    break;
+                }
                 let i = next.fetch_add(1, Ordering::SeqCst);
                 let Some((run, hash)) = todo.get(i) else { break };
                 let label = run.label();
@@ -182,58 +201,38 @@ pub fn batch(plan: &Plan, opts: &BatchOptions) -> Result<(BatchSummary, Vec<RunF
                 let start = Instant::now();
                 let result = run.loaded.as_ref().map_err(Clone::clone).and_then(|loaded| {
                     let mut reduced = reduce_run(plan, loaded)?;
-                    write_outputs(&opts.out, &mut reduced).map_err(|d| vec![d])?;
-                    Ok(reduced)
+                    let files = output_files(&opts.out, &mut reduced).map_err(|d| vec![d])?;
+                    Ok((reduced, files))
                 });
-                let mut entry = RunEntry {
-                    run: label.clone(),
-                    record_file: run.record_path.to_string_lossy().into_owned(),
-                    data_file: run
-                        .loaded
-                        .as_ref()
-                        .map(|l| l.yields_path.to_string_lossy().into_owned())
-                        .unwrap_or_default(),
-                    input_sha256: hash.clone(),
-                    config_sha256: config_sha.clone(),
-                    status: "ok".into(),
-                    error: String::new(),
-                    processed_utc: rfc3339_utc(record_time_s()),
-                    seconds: start.elapsed().as_secs_f64(),
-                    events: None,
-                    charge_c: run.loaded.as_ref().ok().and_then(|l| l.record.charge_c()),
-                    live_fraction: None,
-                    warnings: String::new(),
-                };
-                match &result {
-                    Ok(reduced) => {
-                        entry.events = reduced.raw.as_ref().map(|r| r.result.tally.events as i64);
-                        entry.warnings = reduced.raw.as_ref().map(|r| r.result.warnings.join("\n")).unwrap_or_default();
-                        entry.live_fraction = stages::table::f64_values(&reduced.table, "live_fraction")
-                            .ok()
-                            .filter(|v| !v.is_empty())
-                            .map(|v| v.iter().sum::<f64>() / v.len() as f64);
-                        info!(seconds = entry.seconds, "run reduced");
-                    }
-                    Err(problems) => {
-                        entry.status = "failed".into();
-                        entry.error = problems.iter().map(ToString::to_string).collect::<Vec<_>>().join("\n");
-                        warn!(problems = problems.len(), "run failed");
-                    }
-                }
-                if let Ok(mut c) = catalogue.lock() {
-                    if let Err(e) = c.put(&entry) {
-                        if let Ok(mut errs) = catalogue_errors.lock() {
-                            errs.push(e);
+                let result = match result {
+                    Ok((reduced, files)) => match write_all_atomic(&files) {
+                        Ok(()) => Ok(reduced),
+                        Err(e) => {
+                            warn!(error = %e, "output folder cannot be written; the batch stops");
+                            stop(e.to_string());
+                            break;
                         }
-                    }
+                    },
+                    Err(problems) => Err(problems),
+                };
+                let entry = catalogue_entry(run, hash, &config_sha, start, &result);
+                if let Err(e) =
+                    catalogue.lock().map_err(|_| "lock poisoned".to_string()).and_then(|mut c| c.put(&entry))
+                {
+                    stop(format!("cannot record run {label} in {CATALOGUE_FILE}: {e}"));
+                    break;
                 }
                 if let Some(b) = &bar {
                     b.inc(1);
                 }
                 if let Ok(mut n) = counts.lock() {
                     match result {
-                        Ok(_) => n.0 += 1,
+                        Ok(_) => {
+                            info!(seconds = entry.seconds, "run reduced");
+                            n.0 += 1;
+                        }
                         Err(problems) => {
+                            warn!(problems = problems.len(), "run failed");
                             n.1 += 1;
                             if let Ok(mut f) = failures.lock() {
                                 f.push(RunFailure { run: label, problems });
@@ -252,8 +251,13 @@ pub fn batch(plan: &Plan, opts: &BatchOptions) -> Result<(BatchSummary, Vec<RunF
     summary.failed = failed;
     let mut failures = failures.into_inner().unwrap_or_default();
     failures.sort_by(|a, b| a.run.cmp(&b.run));
-    if let Some(e) = catalogue_errors.into_inner().unwrap_or_default().into_iter().next() {
-        return Err(fail(e));
+    if let Some(why) = stopped.into_inner().unwrap_or_default() {
+        let left = todo.len() - ok - failed;
+        return Err(fail(format!(
+            "{why}; the batch stopped: {ok} run(s) written, {failed} failed, {left} not processed (the catalogue \
+             keeps what it said of those before); the combination and the fits were not redone"
+        ))
+        .with_help("free space on the disk or make the output folder writable, then run the batch again: it picks up every run not done"));
     }
     // The combination and the fits again only when what they are made of changed (the ok
     // runs' hashes, the whole config, the fit files) or an output is missing; the key is
@@ -276,6 +280,56 @@ pub fn batch(plan: &Plan, opts: &BatchOptions) -> Result<(BatchSummary, Vec<RunF
         }
     }
     Ok((summary, failures, lines))
+}
+
+/// The catalogue entry of a processed run.
+fn catalogue_entry(
+    run: &PlannedRun,
+    hash: &str,
+    config_sha: &str,
+    start: Instant,
+    result: &Result<crate::run::Reduced, Vec<Diagnostic>>,
+) -> RunEntry {
+    let loaded = run.loaded.as_ref().ok();
+    let mut entry = RunEntry {
+        run: run.label(),
+        record_file: run.record_path.to_string_lossy().into_owned(),
+        data_file: loaded.map(|l| l.yields_path.to_string_lossy().into_owned()).unwrap_or_default(),
+        input_sha256: hash.to_string(),
+        config_sha256: config_sha.to_string(),
+        status: "ok".into(),
+        error: String::new(),
+        processed_utc: rfc3339_utc(record_time_s()),
+        seconds: start.elapsed().as_secs_f64(),
+        events: None,
+        charge_c: loaded.and_then(|l| l.record.charge_c()),
+        live_fraction: None,
+        warnings: String::new(),
+    };
+    match result {
+        Ok(reduced) => {
+            entry.events = reduced.raw.as_ref().map(|r| r.result.tally.events as i64);
+            entry.warnings = reduced.raw.as_ref().map(|r| r.result.warnings.join("\n")).unwrap_or_default();
+            entry.live_fraction = stages::table::f64_values(&reduced.table, "live_fraction")
+                .ok()
+                .filter(|v| !v.is_empty())
+                .map(|v| v.iter().sum::<f64>() / v.len() as f64);
+        }
+        Err(problems) => {
+            entry.status = "failed".into();
+            entry.error = problems.iter().map(ToString::to_string).collect::<Vec<_>>().join("\n");
+        }
+    }
+    entry
+}
+
+/// Whether the output folder takes a new file: an empty one is written and removed, so
+/// that a read-only or unwritable folder is reported before any run is read. Its name is
+/// that of a temporary file, removed as stale if a kill leaves it.
+fn probe_writable(out: &Path) -> std::io::Result<()> {
+    let probe = out.join(format!(".xsflow-probe.tmp-{}", std::process::id()));
+    std::fs::write(&probe, b"")?;
+    std::fs::remove_file(&probe)
 }
 
 /// What the combined distribution and the fits are made of: the ok runs and their hashes,
@@ -417,7 +471,7 @@ pub fn merge(dirs: &[PathBuf], out: &Path) -> Result<(BatchSummary, Vec<RunFailu
     Ok((summary, failures))
 }
 
-/// Copy a run folder, each file atomically.
+/// Copy a run folder, its files together and atomically.
 fn copy_dir(src: &Path, dst: &Path) -> Result<(), String> {
     std::fs::create_dir_all(dst).map_err(|e| e.to_string())?;
     let mut names: Vec<PathBuf> = std::fs::read_dir(src)
@@ -427,10 +481,11 @@ fn copy_dir(src: &Path, dst: &Path) -> Result<(), String> {
         .filter(|p| p.is_file())
         .collect();
     names.sort();
+    let mut files = Vec::new();
     for p in names {
         let bytes = std::fs::read(&p).map_err(|e| format!("{}: {e}", p.display()))?;
         let name = p.file_name().map(|n| n.to_os_string()).unwrap_or_default();
-        crate::tables::write_atomic(&dst.join(name), &bytes).map_err(|e| e.to_string())?;
+        files.push((dst.join(name), bytes));
     }
-    Ok(())
+    crate::tables::write_all_atomic(&files).map_err(|e| e.to_string())
 }

@@ -149,11 +149,15 @@ impl Catalogue {
         self.conn.query_row("SELECT value FROM meta WHERE key = ?1", [key], |r| r.get(0)).optional().map_err(sql)
     }
 
-    /// Set a value of the `meta` table.
+    /// Set a value of the `meta` table (nothing is written when it already has that value,
+    /// so that a batch with nothing to do writes nothing).
     ///
     /// # Errors
     /// A database error.
     pub fn set_meta(&self, key: &str, value: &str) -> Result<(), String> {
+        if self.meta(key)?.as_deref() == Some(value) {
+            return Ok(());
+        }
         self.conn
             .execute("INSERT OR REPLACE INTO meta (key, value) VALUES (?1, ?2)", [key, value])
             .map(|_| ())

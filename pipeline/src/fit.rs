@@ -12,7 +12,7 @@ use stages::physics::model_fit::NORMALISATION;
 use crate::config::YamlFile;
 use crate::error::Diagnostic;
 use crate::provenance::{record_time_s, rfc3339_utc, sha256_hex, InputFile, Provenance};
-use crate::tables::{csv_bytes, is_csv, parquet_bytes, read_table, write_atomic};
+use crate::tables::{csv_bytes, is_csv, parquet_bytes, read_table, write_all_atomic};
 
 /// A fit file, read, checked and built.
 pub struct LoadedFit {
@@ -197,28 +197,20 @@ pub fn run(loaded: &LoadedFit, table: &DataFrame, state: &str) -> Result<FitOutp
 /// # Errors
 /// A diagnostic naming the file that could not be written.
 pub fn write(dir: &Path, out: &mut FitOutput, provenance_json: &str) -> Result<Vec<PathBuf>, Diagnostic> {
-    let fail = |path: &Path, e: &dyn std::fmt::Display| {
-        Diagnostic::new(path, "", format!("cannot write the output: {e}"))
-            .with_help("check that the output folder is writable and the disk is not full")
-    };
-    std::fs::create_dir_all(dir).map_err(|e| fail(dir, &e))?;
-    let yaml = serde_yaml::to_string(&out.report).map_err(|e| fail(dir, &e))?;
-    let json = serde_json::to_string_pretty(&out.report).map_err(|e| fail(dir, &e))? + "\n";
-    let csv = csv_bytes(&mut out.curve).map_err(|e| fail(dir, &e))?;
+    let fail = |e: &dyn std::fmt::Display| Diagnostic::new(dir, "", format!("cannot encode the output: {e}"));
+    let yaml = serde_yaml::to_string(&out.report).map_err(|e| fail(&e))?;
+    let json = serde_json::to_string_pretty(&out.report).map_err(|e| fail(&e))? + "\n";
+    let csv = csv_bytes(&mut out.curve).map_err(|e| fail(&e))?;
     let parquet = parquet_bytes(&mut out.curve, vec![(crate::run::PROVENANCE_KEY.to_string(), provenance_json.into())])
-        .map_err(|e| fail(dir, &e))?;
-    let mut written = Vec::new();
-    for (name, bytes) in [
-        ("fit.yaml", yaml.into_bytes()),
-        ("fit.json", json.into_bytes()),
-        ("curve.csv", csv),
-        ("curve.parquet", parquet),
-    ] {
-        let path = dir.join(name);
-        write_atomic(&path, &bytes).map_err(|e| fail(&path, &e))?;
-        written.push(path);
-    }
-    Ok(written)
+        .map_err(|e| fail(&e))?;
+    let files = [
+        (dir.join("fit.yaml"), yaml.into_bytes()),
+        (dir.join("fit.json"), json.into_bytes()),
+        (dir.join("curve.csv"), csv),
+        (dir.join("curve.parquet"), parquet),
+    ];
+    write_all_atomic(&files).map_err(|e| e.diagnostic())?;
+    Ok(files.into_iter().map(|(path, _)| path).collect())
 }
 
 fn opt(v: Option<f64>, prec: usize) -> String {

@@ -11,7 +11,7 @@ use stages::{Problem, RunRecord, Setup, Stage};
 
 use crate::config::{parse_experiment, ExperimentInfo, YamlFile};
 use crate::error::Diagnostic;
-use crate::provenance::sha256_hex;
+use crate::provenance::{change_since, sha256_file_stamped, sha256_hex, FileStamp};
 
 /// A stage ready to run, with where it came from in the config.
 pub struct PlannedStage {
@@ -46,22 +46,58 @@ pub struct LoadedRun {
     pub yields_path: PathBuf,
     /// What the data file holds.
     pub data: stages::setup::RunData,
-    /// SHA-256 of the data file, computed once (a batch's change check and the run's
-    /// provenance use the same one; event files can be large).
-    pub data_sha256: std::sync::OnceLock<String>,
+    /// SHA-256 of the data file and the stamp of the version hashed, computed once (a
+    /// batch's change check and the run's provenance use the same one; event files can be
+    /// large).
+    pub data_sha256: std::sync::OnceLock<(String, FileStamp)>,
 }
 
 impl LoadedRun {
     /// SHA-256 of the data file, read the first time it is asked for.
     ///
     /// # Errors
-    /// The file cannot be read.
+    /// The file cannot be read, or changed while it was read.
     pub fn data_hash(&self) -> std::io::Result<String> {
-        if let Some(h) = self.data_sha256.get() {
+        if let Some((h, _)) = self.data_sha256.get() {
             return Ok(h.clone());
         }
-        let h = crate::provenance::sha256_file(&self.yields_path)?;
-        Ok(self.data_sha256.get_or_init(|| h).clone())
+        let hashed = sha256_file_stamped(&self.yields_path)?;
+        Ok(self.data_sha256.get_or_init(|| hashed).0.clone())
+    }
+
+    /// Whether the record and the data file are still the versions this run was planned
+    /// and hashed from, so that its outputs match the hashes recorded with them.
+    ///
+    /// # Errors
+    /// The file (named) that disappeared or changed, and how.
+    pub fn check_unchanged(&self) -> Result<(), Diagnostic> {
+        let changed = |path: &Path, how: String| {
+            Diagnostic::new(path, "", format!("the file changed while the run was being reduced ({how})")).with_help(
+                "nothing of this run was written; once the file is complete, run again: the run is picked up",
+            )
+        };
+        let gone = |path: &Path, e: std::io::Error| {
+            let what = if e.kind() == std::io::ErrorKind::NotFound { "disappeared" } else { "could no longer be read" };
+            Diagnostic::new(path, "", format!("the file {what} while the run was being reduced ({e})"))
+                .with_help("nothing of this run was written; the run is picked up again when the file is back")
+        };
+        match std::fs::read(&self.record_path) {
+            Err(e) => return Err(gone(&self.record_path, e)),
+            Ok(bytes) if bytes != self.record_bytes => {
+                let how = match (self.record_bytes.len(), bytes.len()) {
+                    (a, b) if a == b => "same size, different content".to_string(),
+                    (a, b) => format!("size {a} -> {b} bytes"),
+                };
+                return Err(changed(&self.record_path, how));
+            }
+            Ok(_) => {}
+        }
+        let Some((sha, stamp)) = self.data_sha256.get() else { return Ok(()) };
+        match change_since(&self.yields_path, sha, stamp) {
+            Err(e) => Err(gone(&self.yields_path, e)),
+            Ok(Some(how)) => Err(changed(&self.yields_path, how)),
+            Ok(None) => Ok(()),
+        }
     }
 }
 

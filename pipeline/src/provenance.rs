@@ -75,6 +75,109 @@ pub fn sha256_file(path: &Path) -> std::io::Result<String> {
     Ok(h.finalize().iter().map(|b| format!("{b:02x}")).collect())
 }
 
+/// What identifies one version of a file without reading it: size, modification time and,
+/// on Unix, the inode and the status-change time (which no program can set back). Two
+/// equal stamps mean the same version unless the file was rewritten within one tick of
+/// the file system's clock after the first stamp was taken; such a stamp is `recent`,
+/// and a caller that must be sure hashes the file again (the "racy timestamp" rule of
+/// common practice, as in git's index).
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct FileStamp {
+    /// Size in bytes.
+    pub len: u64,
+    /// Modification time.
+    modified: Option<SystemTime>,
+    /// Device, inode, status-change time (s, ns); zeros where the platform has none.
+    identity: [i64; 4],
+    /// Whether the file changed within `RECENT_S` of the stamp.
+    recent: bool,
+}
+
+/// A file modified less than this many seconds before its stamp was taken may change
+/// again without its stamp changing (coarse file-system clocks tick in milliseconds).
+const RECENT_S: f64 = 2.0;
+
+impl FileStamp {
+    /// The stamp of `path` now.
+    ///
+    /// # Errors
+    /// The file cannot be looked up (not found, no permission).
+    pub fn of(path: &Path) -> std::io::Result<FileStamp> {
+        let meta = std::fs::metadata(path)?;
+        let modified = meta.modified().ok();
+        #[cfg(unix)]
+        let (identity, changed) = {
+            use std::os::unix::fs::MetadataExt;
+            let since_epoch = std::time::Duration::new(
+                u64::try_from(meta.ctime()).unwrap_or(0),
+                u32::try_from(meta.ctime_nsec()).unwrap_or(0),
+            );
+            ([meta.dev() as i64, meta.ino() as i64, meta.ctime(), meta.ctime_nsec()], Some(UNIX_EPOCH + since_epoch))
+        };
+        #[cfg(not(unix))]
+        let (identity, changed) = ([0; 4], None::<SystemTime>);
+        let latest = changed.max(modified);
+        let recent =
+            latest.is_none_or(|t| SystemTime::now().duration_since(t).map_or(true, |age| age.as_secs_f64() < RECENT_S));
+        Ok(FileStamp { len: meta.len(), modified, identity, recent })
+    }
+
+    /// Whether the file may have changed since this stamp although a new stamp is equal.
+    pub fn recent(&self) -> bool {
+        self.recent
+    }
+
+    /// Whether `later` is a stamp of the same version (the `recent` flag aside).
+    pub fn same_version(&self, later: &FileStamp) -> bool {
+        self.len == later.len && self.modified == later.modified && self.identity == later.identity
+    }
+
+    /// What differs between this stamp and a later one, for a message.
+    pub fn difference(&self, later: &FileStamp) -> String {
+        if self.len != later.len {
+            format!("size {} -> {} bytes", self.len, later.len)
+        } else if self.modified != later.modified {
+            "same size, new modification time".into()
+        } else {
+            "same size and modification time, but rewritten or replaced".into()
+        }
+    }
+}
+
+/// SHA-256 of a file together with the stamp of the version that was hashed.
+///
+/// # Errors
+/// The I/O error; a file that changed while it was read is an error naming what changed.
+pub fn sha256_file_stamped(path: &Path) -> std::io::Result<(String, FileStamp)> {
+    let before = FileStamp::of(path)?;
+    let sha = sha256_file(path)?;
+    let after = FileStamp::of(path)?;
+    if !before.same_version(&after) {
+        return Err(std::io::Error::other(format!(
+            "the file changed while it was being hashed ({})",
+            before.difference(&after)
+        )));
+    }
+    Ok((sha, before))
+}
+
+/// How the file at `path` differs from the version hashed as `sha256` with `stamp`, or
+/// `None` when it is that version: a different stamp is a change; an equal stamp of a
+/// recent version is checked by hashing the file again.
+///
+/// # Errors
+/// The file cannot be looked up or read (it disappeared, say).
+pub fn change_since(path: &Path, sha256: &str, stamp: &FileStamp) -> std::io::Result<Option<String>> {
+    let now = FileStamp::of(path)?;
+    if !stamp.same_version(&now) {
+        return Ok(Some(stamp.difference(&now)));
+    }
+    if stamp.recent() && sha256_file(path)? != sha256 {
+        return Ok(Some("same size and times, different content".into()));
+    }
+    Ok(None)
+}
+
 /// Seconds since 1970 for the record: `SOURCE_DATE_EPOCH` if set and valid, else now.
 pub fn record_time_s() -> i64 {
     std::env::var("SOURCE_DATE_EPOCH").ok().and_then(|s| s.trim().parse::<i64>().ok()).unwrap_or_else(|| {
@@ -115,5 +218,28 @@ mod tests {
     fn sha256_of_abc() {
         // FIPS 180-2, appendix B.1 test vector.
         assert_eq!(sha256_hex(b"abc"), "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad");
+    }
+
+    #[test]
+    fn a_file_is_the_version_hashed_until_it_changes_and_a_recent_one_is_hashed_again() {
+        let dir = tempfile::tempdir().expect("scratch");
+        let path = dir.path().join("yields.csv");
+        std::fs::write(&path, "detector,state\nD01,elastic\n").expect("write");
+        let (sha, stamp) = sha256_file_stamped(&path).expect("hash");
+        assert_eq!(sha, sha256_hex(b"detector,state\nD01,elastic\n"));
+        assert!(stamp.recent(), "just written");
+        assert_eq!(change_since(&path, &sha, &stamp).expect("stat"), None);
+        // Same stamp, other content (what a rewrite within one clock tick looks like): only
+        // the second hash of a recent file sees it; an old file's stamp is trusted.
+        assert_eq!(
+            change_since(&path, "0", &stamp).expect("stat").as_deref(),
+            Some("same size and times, different content")
+        );
+        let old = FileStamp { recent: false, ..stamp.clone() };
+        assert_eq!(change_since(&path, "0", &old).expect("stat"), None);
+        std::fs::write(&path, "detector,state\nD01,elastic\nD02,elastic\n").expect("write");
+        assert_eq!(change_since(&path, &sha, &stamp).expect("stat").as_deref(), Some("size 27 -> 39 bytes"));
+        std::fs::remove_file(&path).expect("remove");
+        assert!(change_since(&path, &sha, &stamp).is_err_and(|e| e.kind() == std::io::ErrorKind::NotFound));
     }
 }

@@ -11,7 +11,7 @@ use tracing::{debug, info, info_span, warn};
 use crate::error::{Diagnostic, RunFailure};
 use crate::plan::{LoadedRun, Plan};
 use crate::provenance::{record_time_s, rfc3339_utc, Provenance};
-use crate::tables::{csv_bytes, is_csv, parquet_bytes, read_table, write_atomic};
+use crate::tables::{csv_bytes, is_csv, parquet_bytes, read_table, write_all_atomic};
 
 /// File names of one run's outputs inside `<out>/<run>/`.
 pub const CROSS_SECTIONS_PARQUET: &str = "cross_sections.parquet";
@@ -85,15 +85,29 @@ fn reduce_raw(plan: &Plan, run: &LoadedRun) -> Result<(DataFrame, RawOutputs), V
     Ok((table, RawOutputs { result, gates: raw.gates(), detectors, energies_mev }))
 }
 
-/// Read and check one run's yields table, then apply every stage.
+/// Read and check one run's yields table, then apply every stage; then check that the
+/// record and the data file are still the versions that were read and hashed.
 ///
 /// # Errors
-/// Every problem of the yields table, or the first stage that fails; located.
+/// A record or data file that changed or disappeared meanwhile; otherwise every problem of
+/// the yields table, or the first stage that fails; located.
 pub fn reduce_run(plan: &Plan, run: &LoadedRun) -> Result<Reduced, Vec<Diagnostic>> {
+    let result = read_and_reduce(plan, run);
+    // A file that changed since it was hashed explains any failure, and would make a
+    // success disagree with the hashes recorded in its provenance and the catalogue.
+    run.check_unchanged().map_err(|d| vec![d])?;
+    result
+}
+
+fn read_and_reduce(plan: &Plan, run: &LoadedRun) -> Result<Reduced, Vec<Diagnostic>> {
     let yields = &run.yields_path;
-    let sha = run
-        .data_hash()
-        .map_err(|e| vec![Diagnostic::new(yields, "", format!("cannot read the run's data file: {e}"))])?;
+    let sha = run.data_hash().map_err(|e| {
+        let what = match e.kind() {
+            std::io::ErrorKind::NotFound => "the run's data file disappeared after the runs were found",
+            _ => "cannot read the run's data file",
+        };
+        vec![Diagnostic::new(yields, "", format!("{what}: {e}"))]
+    })?;
     let (raw, raw_outputs) = if run.data == RunData::Yields {
         let t = read_table(yields).map_err(|m| {
             vec![Diagnostic::new(yields, "", m)
@@ -163,36 +177,37 @@ fn table_diagnostic(file: &Path, key: &str, e: &StageError) -> Diagnostic {
     Diagnostic::new(file, key, e.to_string()).at(line)
 }
 
-/// Write one run's tables and provenance into `<out>/<run>/`, each file atomically.
+/// Write one run's tables and provenance into `<out>/<run>/`, all together (see
+/// [`write_all_atomic`]).
 ///
 /// # Errors
-/// A diagnostic naming the file that could not be written.
+/// A diagnostic naming the file that could not be encoded or written.
 pub fn write_outputs(out_dir: &Path, reduced: &mut Reduced) -> Result<Vec<PathBuf>, Diagnostic> {
+    let files = output_files(out_dir, reduced)?;
+    write_all_atomic(&files).map_err(|e| e.diagnostic())?;
+    Ok(files.into_iter().map(|(path, _)| path).collect())
+}
+
+/// One run's output files, encoded: its tables and provenance in `<out>/<run>/`.
+///
+/// # Errors
+/// A table the writer rejects.
+pub fn output_files(out_dir: &Path, reduced: &mut Reduced) -> Result<Vec<(PathBuf, Vec<u8>)>, Diagnostic> {
     let dir = out_dir.join(&reduced.provenance.run);
-    let fail = |path: &Path, e: &dyn std::fmt::Display| {
-        Diagnostic::new(path, "", format!("cannot write the output: {e}"))
-            .with_help("check that the output folder is writable and the disk is not full")
-    };
-    std::fs::create_dir_all(&dir).map_err(|e| fail(&dir, &e))?;
-    let record = serde_json::to_string_pretty(&reduced.provenance).map_err(|e| fail(&dir, &e))?;
-    let parquet = parquet_bytes(&mut reduced.table, vec![(PROVENANCE_KEY.to_string(), record.clone())])
-        .map_err(|e| fail(&dir, &e))?;
-    let csv = csv_bytes(&mut reduced.table).map_err(|e| fail(&dir, &e))?;
+    let fail = |e: &dyn std::fmt::Display| Diagnostic::new(&dir, "", format!("cannot encode the output: {e}"));
+    let record = serde_json::to_string_pretty(&reduced.provenance).map_err(|e| fail(&e))?;
+    let parquet =
+        parquet_bytes(&mut reduced.table, vec![(PROVENANCE_KEY.to_string(), record.clone())]).map_err(|e| fail(&e))?;
+    let csv = csv_bytes(&mut reduced.table).map_err(|e| fail(&e))?;
     let mut files = vec![
         (CROSS_SECTIONS_PARQUET, parquet),
         (CROSS_SECTIONS_CSV, csv),
         (PROVENANCE_JSON, format!("{record}\n").into_bytes()),
     ];
     if let Some(raw) = &reduced.raw {
-        files.extend(raw_files(raw, &record).map_err(|e| fail(&dir, &e))?);
+        files.extend(raw_files(raw, &record).map_err(|e| fail(&e))?);
     }
-    let mut written = Vec::new();
-    for (name, bytes) in files {
-        let path = dir.join(name);
-        write_atomic(&path, &bytes).map_err(|e| fail(&path, &e))?;
-        written.push(path);
-    }
-    Ok(written)
+    Ok(files.into_iter().map(|(name, bytes)| (dir.join(name), bytes)).collect())
 }
 
 /// The derived yields (`yields.csv`), the tallies, gates and peak fits (`raw.json`), the
@@ -381,12 +396,15 @@ pub fn combine_and_write(plan: &Plan, tables: &[DataFrame], out_dir: &Path) -> R
             }
         }
     }
-    let write = |name: &str, bytes: &[u8]| {
-        write_atomic(&out_dir.join(name), bytes).map_err(|e| fail(format!("cannot write {name}: {e}")))
-    };
-    write(ANGULAR_DISTRIBUTION_CSV, &csv_bytes(&mut table).map_err(|e| fail(e.to_string()))?)?;
-    write(ANGULAR_DISTRIBUTION_PARQUET, &parquet_bytes(&mut table, vec![]).map_err(|e| fail(e.to_string()))?)?;
-    write(COVARIANCE_CSV, cov_csv.as_bytes())?;
+    let files = [
+        (out_dir.join(ANGULAR_DISTRIBUTION_CSV), csv_bytes(&mut table).map_err(|e| fail(e.to_string()))?),
+        (
+            out_dir.join(ANGULAR_DISTRIBUTION_PARQUET),
+            parquet_bytes(&mut table, vec![]).map_err(|e| fail(e.to_string()))?,
+        ),
+        (out_dir.join(COVARIANCE_CSV), cov_csv.into_bytes()),
+    ];
+    write_all_atomic(&files).map_err(|e| e.diagnostic())?;
     Ok(Some(table))
 }
 

@@ -63,25 +63,82 @@ pub fn parquet_bytes(table: &mut DataFrame, metadata: Vec<(String, String)>) -> 
     Ok(out)
 }
 
-/// Write `bytes` to `path` atomically: a temporary file beside it, flushed to disk, then
-/// renamed over the final name. On any error the temporary file is removed and the final
-/// name is untouched.
+/// A file that could not be written, and why.
+#[derive(Debug)]
+pub struct WriteError {
+    /// The file (or folder) being written.
+    pub path: std::path::PathBuf,
+    /// The I/O error.
+    pub error: std::io::Error,
+}
+
+impl std::fmt::Display for WriteError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(f, "cannot write {}: {}", self.path.display(), self.error)
+    }
+}
+
+impl WriteError {
+    /// The error as a diagnostic on the file, with what to check.
+    pub fn diagnostic(&self) -> crate::error::Diagnostic {
+        crate::error::Diagnostic::new(&self.path, "", format!("cannot write the output: {}", self.error))
+            .with_help("check that the output folder is writable and the disk is not full")
+    }
+}
+
+/// Write `bytes` to `path` atomically (see [`write_all_atomic`]).
 ///
 /// # Errors
 /// The I/O error, for the caller to report with the path.
 pub fn write_atomic(path: &Path, bytes: &[u8]) -> std::io::Result<()> {
-    let dir = path.parent().unwrap_or(Path::new("."));
-    let name = path.file_name().map_or_else(|| "out".into(), |n| n.to_string_lossy().into_owned());
-    let tmp = dir.join(format!(".{name}.tmp-{}", std::process::id()));
-    let result = (|| {
-        let mut f = File::create(&tmp)?;
-        f.write_all(bytes)?;
-        f.sync_all()?;
-        std::fs::rename(&tmp, path)
-    })();
+    write_all_atomic(&[(path.to_path_buf(), bytes.to_vec())]).map_err(|e| e.error)
+}
+
+/// Write a set of files that belong together (one run's tables and provenance): each to a
+/// temporary file beside its final name, flushed to disk; only when every one is written,
+/// all are renamed over their final names. A full disk or an unwritable folder therefore
+/// leaves every final name as it was (old set or none), and the temporary files are
+/// removed. Folders are created as needed.
+///
+/// # Errors
+/// The first file or folder that could not be written, with the I/O error.
+pub fn write_all_atomic(files: &[(std::path::PathBuf, Vec<u8>)]) -> Result<(), WriteError> {
+    let temporary = |path: &Path| {
+        let dir = path.parent().unwrap_or(Path::new("."));
+        let name = path.file_name().map_or_else(|| "out".into(), |n| n.to_string_lossy().into_owned());
+        dir.join(format!(".{name}.tmp-{}", std::process::id()))
+    };
+    let mut written = Vec::new();
+    let mut result = Ok(());
+    for (path, bytes) in files {
+        let tmp = temporary(path);
+        let attempt = (|| {
+            if let Some(dir) = path.parent().filter(|d| !d.as_os_str().is_empty()) {
+                std::fs::create_dir_all(dir)?;
+            }
+            let mut f = File::create(&tmp)?;
+            written.push(tmp.clone());
+            f.write_all(bytes)?;
+            f.sync_all()
+        })();
+        if let Err(error) = attempt {
+            result = Err(WriteError { path: path.clone(), error });
+            break;
+        }
+    }
+    if result.is_ok() {
+        for (path, _) in files {
+            if let Err(error) = std::fs::rename(temporary(path), path) {
+                result = Err(WriteError { path: path.clone(), error });
+                break;
+            }
+        }
+    }
     if result.is_err() {
-        // The temporary file may not exist; nothing else to undo.
-        let _ = std::fs::remove_file(&tmp);
+        for tmp in written {
+            // Already renamed, or never created: nothing else to undo.
+            let _ = std::fs::remove_file(tmp);
+        }
     }
     result
 }
