@@ -18,7 +18,7 @@ use std::time::Instant;
 use polars::prelude::DataFrame;
 use tracing::{info, info_span, warn};
 
-use crate::catalogue::{Catalogue, RunEntry, CATALOGUE_FILE};
+use crate::catalogue::{Catalogue, RunEntry, RunStatus, CATALOGUE_FILE};
 use crate::config::YamlFile;
 use crate::error::{Diagnostic, RunFailure};
 use crate::plan::{Plan, PlannedRun};
@@ -130,6 +130,7 @@ pub fn batch(plan: &Plan, opts: &BatchOptions) -> Result<(BatchSummary, Vec<RunF
     let config_sha = config_hash(&plan.config_path)?;
     let mut summary = BatchSummary::default();
     let mut todo: Vec<(&PlannedRun, String)> = Vec::new();
+    let mut newly_skipped = Vec::new();
     let mut lines = Vec::new();
     for run in &plan.runs {
         let label = run.label();
@@ -143,7 +144,7 @@ pub fn batch(plan: &Plan, opts: &BatchOptions) -> Result<(BatchSummary, Vec<RunF
         let previous =
             catalogue.lock().map_err(|_| fail("catalogue lock poisoned".into()))?.get(&label).map_err(fail)?;
         let unchanged = previous.as_ref().is_some_and(|p| {
-            p.status == "ok"
+            p.status.has_outputs()
                 && p.input_sha256 == hash
                 && p.config_sha256 == config_sha
                 && opts.out.join(&label).join(CROSS_SECTIONS_PARQUET).is_file()
@@ -151,10 +152,13 @@ pub fn batch(plan: &Plan, opts: &BatchOptions) -> Result<(BatchSummary, Vec<RunF
         if unchanged && !opts.force {
             summary.skipped += 1;
             lines.push(format!("{label}: unchanged"));
+            if previous.as_ref().is_some_and(|p| p.status == RunStatus::Ok) {
+                newly_skipped.push(label);
+            }
         } else {
             let why = match &previous {
                 None => "new",
-                Some(p) if p.status != "ok" => "failed before",
+                Some(p) if !p.status.has_outputs() => "failed before",
                 Some(p) if p.config_sha256 != config_sha => "config changed",
                 Some(_) if opts.force => "forced",
                 Some(_) => "inputs changed",
@@ -259,6 +263,11 @@ pub fn batch(plan: &Plan, opts: &BatchOptions) -> Result<(BatchSummary, Vec<RunF
         ))
         .with_help("free space on the disk or make the output folder writable, then run the batch again: it picks up every run not done"));
     }
+    catalogue
+        .lock()
+        .map_err(|_| "lock poisoned".to_string())
+        .and_then(|mut c| c.mark_skipped(&newly_skipped))
+        .map_err(|e| fail(format!("cannot record the unchanged runs in {CATALOGUE_FILE}: {e}")))?;
     // The combination and the fits again only when what they are made of changed (the ok
     // runs' hashes, the whole config, the fit files) or an output is missing; the key is
     // recorded after they are written, so a batch killed before that redoes them.
@@ -297,7 +306,7 @@ fn catalogue_entry(
         data_file: loaded.map(|l| l.yields_path.to_string_lossy().into_owned()).unwrap_or_default(),
         input_sha256: hash.to_string(),
         config_sha256: config_sha.to_string(),
-        status: "ok".into(),
+        status: RunStatus::Ok,
         error: String::new(),
         processed_utc: rfc3339_utc(record_time_s()),
         seconds: start.elapsed().as_secs_f64(),
@@ -316,7 +325,7 @@ fn catalogue_entry(
                 .map(|v| v.iter().sum::<f64>() / v.len() as f64);
         }
         Err(problems) => {
-            entry.status = "failed".into();
+            entry.status = RunStatus::Failed;
             entry.error = problems.iter().map(ToString::to_string).collect::<Vec<_>>().join("\n");
         }
     }
@@ -341,7 +350,7 @@ fn combined_key(plan: &Plan, catalogue: &Catalogue) -> Result<String, Diagnostic
     }
     for run in &plan.runs {
         if let Some(e) = catalogue.get(&run.label()).map_err(|m| Diagnostic::new(&plan.config_path, "", m))? {
-            if e.status == "ok" {
+            if e.status.has_outputs() {
                 parts.push(format!("{} {} {}", e.run, e.input_sha256, e.config_sha256));
             }
         }
@@ -378,7 +387,7 @@ fn ok_tables(plan: &Plan, out: &Path, catalogue: &Catalogue) -> Result<Vec<(Data
     let mut tables = Vec::new();
     for run in &plan.runs {
         let label = run.label();
-        if catalogue.get(&label).map_err(|m| Diagnostic::new(out, "", m))?.is_some_and(|e| e.status == "ok") {
+        if catalogue.get(&label).map_err(|m| Diagnostic::new(out, "", m))?.is_some_and(|e| e.status.has_outputs()) {
             let dir = out.join(&label);
             let t = crate::tables::read_table(&dir.join(CROSS_SECTIONS_PARQUET))
                 .map_err(|m| Diagnostic::new(&dir, "", m))?;
@@ -452,7 +461,7 @@ pub fn merge(dirs: &[PathBuf], out: &Path) -> Result<(BatchSummary, Vec<RunFailu
     let mut summary = BatchSummary::default();
     for (dir, e) in &entries {
         let src = dir.join(&e.run);
-        if e.status == "ok" {
+        if e.status.has_outputs() {
             copy_dir(&src, &out.join(&e.run)).map_err(|m| fail(&src, m))?;
             summary.ok += 1;
         } else {

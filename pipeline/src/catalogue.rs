@@ -30,8 +30,8 @@ pub struct RunEntry {
     pub input_sha256: String,
     /// SHA-256 of the config sections that affect every run.
     pub config_sha256: String,
-    /// `ok` or `failed`.
-    pub status: String,
+    /// What the latest batch that saw the run did with it.
+    pub status: RunStatus,
     /// The error, for failed runs.
     pub error: String,
     /// When it was processed (UTC, RFC 3339; `SOURCE_DATE_EPOCH` when set).
@@ -46,6 +46,61 @@ pub struct RunEntry {
     pub live_fraction: Option<f64>,
     /// Warnings, one per line.
     pub warnings: String,
+}
+
+/// What the latest batch that saw a run did with it (text `ok`, `failed`, `skipped` in the
+/// catalogue and in `xsflow runs`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum RunStatus {
+    /// Processed; its outputs were written then (`processed_utc`).
+    Ok,
+    /// Processed, and it failed (`error` says why); it has no outputs in use.
+    Failed,
+    /// Unchanged since it was processed with success (`processed_utc`); its outputs are
+    /// those of then.
+    Skipped,
+}
+
+impl RunStatus {
+    /// The text stored in the catalogue.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            RunStatus::Ok => "ok",
+            RunStatus::Failed => "failed",
+            RunStatus::Skipped => "skipped",
+        }
+    }
+
+    /// Whether the run's outputs in the folder are current (ok, or skipped as unchanged).
+    pub fn has_outputs(self) -> bool {
+        self != RunStatus::Failed
+    }
+}
+
+impl std::fmt::Display for RunStatus {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.as_str())
+    }
+}
+
+impl rusqlite::types::ToSql for RunStatus {
+    fn to_sql(&self) -> rusqlite::Result<rusqlite::types::ToSqlOutput<'_>> {
+        Ok(self.as_str().into())
+    }
+}
+
+impl rusqlite::types::FromSql for RunStatus {
+    fn column_result(value: rusqlite::types::ValueRef<'_>) -> rusqlite::types::FromSqlResult<Self> {
+        match value.as_str()? {
+            "ok" => Ok(RunStatus::Ok),
+            "failed" => Ok(RunStatus::Failed),
+            "skipped" => Ok(RunStatus::Skipped),
+            other => Err(rusqlite::types::FromSqlError::Other(
+                format!("run status `{other}`; accepted: ok, failed, skipped").into(),
+            )),
+        }
+    }
 }
 
 /// An open catalogue.
@@ -123,6 +178,26 @@ impl Catalogue {
             ],
         )
         .map_err(sql)?;
+        tx.commit().map_err(sql)
+    }
+
+    /// Record that this batch found `runs` unchanged: those that are `ok` become `skipped`,
+    /// in one transaction (nothing is written when there are none).
+    ///
+    /// # Errors
+    /// A database error (the catalogue is then unchanged).
+    pub fn mark_skipped(&mut self, runs: &[String]) -> Result<(), String> {
+        if runs.is_empty() {
+            return Ok(());
+        }
+        let tx = self.conn.transaction_with_behavior(rusqlite::TransactionBehavior::Immediate).map_err(sql)?;
+        {
+            let mut update =
+                tx.prepare("UPDATE runs SET status = 'skipped' WHERE run = ?1 AND status = 'ok'").map_err(sql)?;
+            for run in runs {
+                update.execute([run]).map_err(sql)?;
+            }
+        }
         tx.commit().map_err(sql)
     }
 
