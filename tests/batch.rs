@@ -126,21 +126,7 @@ fn three_shards_merged_give_what_one_batch_gives() {
     args.extend(["--out", "merged"]);
     let out = xsflow(tmp.path(), &args);
     assert_eq!(out.status.code(), Some(0), "{}", text(&out));
-    let single = crate::common::files_below(&tmp.path().join("out"));
-    let merged = crate::common::files_below(&tmp.path().join("merged"));
-    let rel = |files: &[std::path::PathBuf], base: &str| -> Vec<String> {
-        files
-            .iter()
-            .map(|f| f.strip_prefix(tmp.path().join(base)).expect("below").to_string_lossy().into_owned())
-            .filter(|f| f != xsflow::catalogue::CATALOGUE_FILE)
-            .collect()
-    };
-    assert_eq!(rel(&single, "out"), rel(&merged, "merged"));
-    for f in rel(&single, "out") {
-        let (a, b) =
-            (std::fs::read(tmp.path().join("out").join(&f)), std::fs::read(tmp.path().join("merged").join(&f)));
-        assert!(a.expect("a") == b.expect("b"), "{f} differs between one batch and three merged shards");
-    }
+    assert_same_outputs(tmp.path(), "out", "merged");
     // Shards of different N are refused.
     let other = xsflow(tmp.path(), &["batch", "experiment.yaml", "--out", "half", "--shard", "1/2"]);
     assert_eq!(other.status.code(), Some(0));
@@ -150,19 +136,74 @@ fn three_shards_merged_give_what_one_batch_gives() {
     assert!(msg.contains("inconsistent N"), "{msg}");
 }
 
+/// The demo with `extra` more run records (`k000`, ...) that reuse its three yields tables.
+fn demo_with_more_runs(extra: usize) -> tempfile::TempDir {
+    let tmp = demo_copy();
+    for i in 0..extra {
+        let src = ["0101", "0102", "0103"][i % 3];
+        let record = std::fs::read_to_string(tmp.path().join(format!("runs/run{src}.run.yaml"))).expect("record");
+        let record = record.replace(&format!("run: \"{src}\""), &format!("run: \"k{i:03}\""));
+        std::fs::write(tmp.path().join(format!("runs/k{i:03}.run.yaml")), record).expect("write");
+    }
+    tmp
+}
+
+/// The files below `base` in `dir` (the catalogue aside), relative, sorted.
+fn output_files(dir: &Path, base: &str) -> Vec<String> {
+    crate::common::files_below(&dir.join(base))
+        .iter()
+        .map(|f| f.strip_prefix(dir.join(base)).expect("below").to_string_lossy().into_owned())
+        .filter(|f| !f.starts_with(xsflow::catalogue::CATALOGUE_FILE))
+        .collect()
+}
+
+/// Assert that two output folders hold the same files with the same bytes (catalogue aside).
+fn assert_same_outputs(dir: &Path, a: &str, b: &str) {
+    let (files_a, files_b) = (output_files(dir, a), output_files(dir, b));
+    assert_eq!(files_a, files_b, "the same files, and no temporary ones");
+    for f in &files_a {
+        let same = std::fs::read(dir.join(a).join(f)).expect("a") == std::fs::read(dir.join(b).join(f)).expect("b");
+        assert!(same, "{f} differs between {a} and {b}");
+    }
+}
+
+#[test]
+fn two_batches_started_at_once_on_one_output_folder_leave_it_whole() {
+    // A second batch started by mistake while the first runs: both finish, the catalogue
+    // passes SQLite's integrity check and lists every run once, and the outputs are those
+    // of one batch.
+    let tmp = demo_with_more_runs(40);
+    assert_eq!(xsflow(tmp.path(), &["batch", "experiment.yaml", "--out", "ref"]).status.code(), Some(0));
+    let spawn = || {
+        std::process::Command::new(env!("CARGO_BIN_EXE_xsflow"))
+            .args(["batch", "experiment.yaml", "--out", "out", "--jobs", "2", "-q"])
+            .current_dir(tmp.path())
+            .env("SOURCE_DATE_EPOCH", "1764633600")
+            .stderr(std::process::Stdio::piped())
+            .spawn()
+            .expect("spawn")
+    };
+    let (first, second) = (spawn(), spawn());
+    for child in [first, second] {
+        let out = child.wait_with_output().expect("wait");
+        assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+    }
+    assert_same_outputs(tmp.path(), "ref", "out");
+    let db = rusqlite::Connection::open(tmp.path().join("out").join(xsflow::catalogue::CATALOGUE_FILE)).expect("db");
+    let check: String = db.query_row("PRAGMA integrity_check", [], |r| r.get(0)).expect("integrity check");
+    assert_eq!(check, "ok");
+    let runs = xsflow::catalogue::Catalogue::open(&tmp.path().join("out")).expect("open").list(false).expect("list");
+    assert_eq!(runs.len(), 43);
+    assert!(runs.iter().all(|r| r.status.has_outputs()), "{runs:?}");
+}
+
 #[test]
 fn a_batch_killed_at_any_moment_and_rerun_gives_the_uninterrupted_outputs() {
     // 43 runs (the demo's three and 40 more records of the same yields); SIGKILL after
     // 20, 60, 150, 300 and 500 ms, a rerun after each kill, then one to completion: every
     // output byte-identical to an uninterrupted batch, no temporary file left, and a
     // catalogue with every run ok.
-    let tmp = demo_copy();
-    for i in 0..40 {
-        let src = ["0101", "0102", "0103"][i % 3];
-        let record = std::fs::read_to_string(tmp.path().join(format!("runs/run{src}.run.yaml"))).expect("record");
-        let record = record.replace(&format!("run: \"{src}\""), &format!("run: \"k{i:03}\""));
-        std::fs::write(tmp.path().join(format!("runs/k{i:03}.run.yaml")), record).expect("write");
-    }
+    let tmp = demo_with_more_runs(40);
     assert_eq!(xsflow(tmp.path(), &["batch", "experiment.yaml", "--out", "ref"]).status.code(), Some(0));
     for delay_ms in [20u64, 60, 150, 300, 500] {
         let mut child = std::process::Command::new(env!("CARGO_BIN_EXE_xsflow"))
@@ -178,20 +219,7 @@ fn a_batch_killed_at_any_moment_and_rerun_gives_the_uninterrupted_outputs() {
     }
     let last = batch(tmp.path(), &[]);
     assert_eq!(last.status.code(), Some(0), "{}", text(&last));
-    let files = |base: &str| -> Vec<String> {
-        crate::common::files_below(&tmp.path().join(base))
-            .iter()
-            .map(|f| f.strip_prefix(tmp.path().join(base)).expect("below").to_string_lossy().into_owned())
-            .filter(|f| !f.starts_with(xsflow::catalogue::CATALOGUE_FILE))
-            .collect()
-    };
-    let (a, b) = (files("ref"), files("out"));
-    assert_eq!(a, b, "the same files, and no temporary ones");
-    for f in &a {
-        let same = std::fs::read(tmp.path().join("ref").join(f)).expect("ref")
-            == std::fs::read(tmp.path().join("out").join(f)).expect("out");
-        assert!(same, "{f} differs after the kills");
-    }
+    assert_same_outputs(tmp.path(), "ref", "out");
     let all: serde_json::Value =
         serde_json::from_slice(&xsflow(tmp.path(), &["runs", "out", "--format", "json"]).stdout).expect("json");
     let runs = all.as_array().expect("runs");
