@@ -268,17 +268,18 @@ fn a_run_file_that_changes_or_disappears_during_the_batch_fails_that_run_and_a_r
     let reason =
         |run: &str| failures.iter().find(|f| f.run == run).map(|f| f.problems[0].to_string()).unwrap_or_default();
     assert!(
-        reason("0101").contains("run0101.yields.csv the file changed while the run was being reduced (size"),
+        reason("0101")
+            .contains("run0101.yields.csv the file changed after the run's inputs were read and hashed (size"),
         "{}",
         reason("0101")
     );
     assert!(
-        reason("0102").contains("run0102.run.yaml the file disappeared while the run was being reduced"),
+        reason("0102").contains("run0102.run.yaml the file disappeared after the run's inputs were read and hashed"),
         "{}",
         reason("0102")
     );
     assert!(
-        reason("0103").contains("run0103.yields.csv the file disappeared while the run was being reduced"),
+        reason("0103").contains("run0103.yields.csv the file disappeared after the run's inputs were read and hashed"),
         "{}",
         reason("0103")
     );

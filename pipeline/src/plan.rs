@@ -72,13 +72,14 @@ impl LoadedRun {
     /// The file (named) that disappeared or changed, and how.
     pub fn check_unchanged(&self) -> Result<(), Diagnostic> {
         let changed = |path: &Path, how: String| {
-            Diagnostic::new(path, "", format!("the file changed while the run was being reduced ({how})")).with_help(
-                "nothing of this run was written; once the file is complete, run again: the run is picked up",
-            )
+            Diagnostic::new(path, "", format!("the file changed after the run's inputs were read and hashed ({how})"))
+                .with_help(
+                    "nothing of this run was written; once the file is complete, run again: the run is picked up",
+                )
         };
         let gone = |path: &Path, e: std::io::Error| {
             let what = if e.kind() == std::io::ErrorKind::NotFound { "disappeared" } else { "could no longer be read" };
-            Diagnostic::new(path, "", format!("the file {what} while the run was being reduced ({e})"))
+            Diagnostic::new(path, "", format!("the file {what} after the run's inputs were read and hashed ({e})"))
                 .with_help("nothing of this run was written; the run is picked up again when the file is back")
         };
         match std::fs::read(&self.record_path) {
