@@ -93,6 +93,7 @@ fn run_record(charge_c: f64, live_fraction: f64) -> RunRecord {
         triggers_raw: None,
         triggers_accepted: None,
         recorded_rate_per_s: None,
+        arm_theta_lab_deg: Default::default(),
     }
 }
 
@@ -124,6 +125,7 @@ fn detector(
         id: Id("D".into()),
         theta_lab_deg: 30.0,
         theta_lab_err_deg: 0.0,
+        arm: None,
         distance_mm: Some(distance_mm),
         distance_err_mm,
         aperture,

@@ -2,7 +2,7 @@
 //! folder with a run catalogue; runs spread over `--jobs` threads, optionally one shard of
 //! a cluster job array (`--shard K/N`). A run is changed when the SHA-256 of its record and
 //! data file, or of the config sections that affect every run (reaction, target, detectors,
-//! the per-run stages, raw), differs from its last successful processing. One bad run never
+//! arms, the per-run stages, raw), differs from its last successful processing. One bad run never
 //! stops the others; outputs are written atomically before the catalogue records them, so a
 //! batch killed at any moment leaves either the old or the new state of each run. A record
 //! or data file that changes or disappears while its run is reduced fails that run (the
@@ -87,7 +87,7 @@ pub fn shard_of(run: &str, n: u64) -> u64 {
 pub fn config_hash(config_path: &Path) -> Result<String, Diagnostic> {
     let file = YamlFile::read(config_path)?;
     let mut parts = Vec::new();
-    for key in ["reaction", "target", "detectors", "stages", "raw"] {
+    for key in ["reaction", "target", "detectors", "arms", "stages", "raw"] {
         let mut v = file.value.get(key).cloned().unwrap_or(serde_yaml::Value::Null);
         if let (Some(items), "stages") = (v.as_sequence_mut(), key) {
             items.retain(|i| i.get("type").and_then(|t| t.as_str()) != Some("fit"));

@@ -38,6 +38,10 @@ pub struct ExperimentConfig {
     pub target: TargetConfig,
     /// The detectors, in the order the output rows follow.
     pub detectors: Vec<DetectorConfig>,
+    /// Rotating arms that carry detectors between runs (optional): each run record may set
+    /// an arm's angle in `arm_theta_lab_deg`, and the detectors on it turn with it.
+    #[serde(default)]
+    pub arms: Option<Vec<stages::setup::ArmConfig>>,
     /// Run record files (YAML, one per run): paths or glob patterns relative to this file.
     pub runs: Vec<String>,
     /// The stages to apply to each run, in order; each has a `type:` and its settings.
@@ -51,7 +55,8 @@ pub struct ExperimentConfig {
     pub combine: Option<stages::combine::CombineConfig>,
 }
 
-const SECTIONS: [&str; 8] = ["experiment", "reaction", "target", "detectors", "runs", "stages", "raw", "combine"];
+const SECTIONS: [&str; 9] =
+    ["experiment", "reaction", "target", "detectors", "arms", "runs", "stages", "raw", "combine"];
 
 /// A YAML file read into text, its parsed value and its key locations.
 pub struct YamlFile {
@@ -156,6 +161,8 @@ pub struct PartialConfig {
     pub target: Option<TargetConfig>,
     /// `detectors:`, when every item parsed.
     pub detectors: Option<Vec<DetectorConfig>>,
+    /// `arms:`, when present and every item parsed.
+    pub arms: Option<Vec<stages::setup::ArmConfig>>,
     /// `runs:`.
     pub runs: Option<Vec<String>>,
     /// `stages:`, when every item parsed.
@@ -211,6 +218,7 @@ pub fn parse_experiment(file: &YamlFile) -> (PartialConfig, Vec<Diagnostic>) {
         reaction: section("reaction", &mut diags).and_then(|v| keep(file.parse("reaction", &v), &mut diags)),
         target: section("target", &mut diags).and_then(|v| keep(file.parse("target", &v), &mut diags)),
         detectors: section("detectors", &mut diags).and_then(|v| parse_list(file, "detectors", &v, &mut diags)),
+        arms: map.get("arms").and_then(|v| parse_list(file, "arms", v, &mut diags)),
         runs: section("runs", &mut diags).and_then(|v| keep(file.parse("runs", &v), &mut diags)),
         stages: section("stages", &mut diags).and_then(|v| parse_list(file, "stages", &v, &mut diags)),
         raw: map.get("raw").and_then(|v| keep(file.parse("raw", v), &mut diags)),

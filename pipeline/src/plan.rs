@@ -46,6 +46,12 @@ pub struct LoadedRun {
     pub yields_path: PathBuf,
     /// What the data file holds.
     pub data: stages::setup::RunData,
+    /// This run's set-up when its arms stand away from the config's angles (else the
+    /// plan's).
+    pub setup: Option<Setup>,
+    /// This run's raw-data plan when its arms moved (automatic windows follow the
+    /// kinematics at the new angles; else the plan's).
+    pub raw: Option<stages::raw::RawPlan>,
     /// SHA-256 of the data file and the stamp of the version hashed, computed once (a
     /// batch's change check and the run's provenance use the same one; event files can be
     /// large).
@@ -53,6 +59,16 @@ pub struct LoadedRun {
 }
 
 impl LoadedRun {
+    /// The set-up this run is reduced with: its own when arms moved, else the plan's.
+    pub fn setup<'a>(&'a self, plan: &'a Plan) -> &'a Setup {
+        self.setup.as_ref().unwrap_or(&plan.setup)
+    }
+
+    /// The raw-data plan of this run: its own when arms moved, else the plan's.
+    pub fn raw<'a>(&'a self, plan: &'a Plan) -> Option<&'a stages::raw::RawPlan> {
+        self.raw.as_ref().or(plan.raw.as_ref())
+    }
+
     /// SHA-256 of the data file, read the first time it is asked for.
     ///
     /// # Errors
@@ -169,8 +185,9 @@ pub fn plan_with(config_path: &Path, empty_patterns_warn: bool) -> Result<Plan, 
     // Each section's own ranges are checked even when another section failed to parse.
     let setup = match (config.reaction.clone(), config.target.clone(), config.detectors.clone()) {
         (Some(reaction), Some(target), Some(detectors)) => {
-            let (setup, problems) = Setup::new(reaction, target, detectors);
+            let (mut setup, problems) = Setup::new(reaction, target, detectors);
             diags.extend(locate(problems));
+            diags.extend(locate(setup.attach_arms(config.arms.clone().unwrap_or_default())));
             Some(setup)
         }
         (reaction, target, detectors) => {
@@ -255,7 +272,10 @@ pub fn plan_with(config_path: &Path, empty_patterns_warn: bool) -> Result<Plan, 
         (Some(setup), Some(experiment)) if diags.is_empty() => {
             let runs = record_paths
                 .into_iter()
-                .map(|record_path| PlannedRun { loaded: load_run(&record_path, &stages, raw.is_some()), record_path })
+                .map(|record_path| PlannedRun {
+                    loaded: load_run(&record_path, &stages, &setup, config.raw.as_ref().filter(|_| raw.is_some())),
+                    record_path,
+                })
                 .collect();
             let plan = Plan {
                 config_sha256: sha256_hex(&file.bytes),
@@ -414,10 +434,39 @@ fn safe_id(id: &str) -> bool {
 }
 
 /// Read and check one run record against the stages.
-fn load_run(record_path: &Path, stages: &[PlannedStage], has_raw: bool) -> Result<LoadedRun, Vec<Diagnostic>> {
+fn load_run(
+    record_path: &Path,
+    stages: &[PlannedStage],
+    setup: &Setup,
+    raw: Option<&stages::raw::RawConfig>,
+) -> Result<LoadedRun, Vec<Diagnostic>> {
+    let has_raw = raw.is_some();
     let file = YamlFile::read(record_path).map_err(|d| vec![d])?;
     let record: RunRecord = file.parse("", &file.value).map_err(|d| vec![d])?;
     let mut problems = record.validate();
+    // Detectors on arms turned away from the config's angles: this run's own set-up, and
+    // its own gates where they follow the kinematics.
+    let (run_setup, run_raw) = match setup.for_run(&record) {
+        Err(p) => {
+            problems.extend(p);
+            (None, None)
+        }
+        Ok(None) => (None, None),
+        Ok(Some(turned)) => {
+            let turned_raw =
+                match raw.map(|r| r.build(&turned)) {
+                    Some(Err(p)) => {
+                        problems.extend(p.into_iter().map(|p| {
+                            Problem::new("arm_theta_lab_deg", format!("raw.{} {}", p.key, p.found), p.expected)
+                        }));
+                        None
+                    }
+                    Some(Ok(plan)) => Some(plan),
+                    None => None,
+                };
+            (Some(turned), turned_raw)
+        }
+    };
     if !safe_id(&record.run.0) {
         problems.push(Problem::new(
             "run",
@@ -455,6 +504,8 @@ fn load_run(record_path: &Path, stages: &[PlannedStage], has_raw: bool) -> Resul
         record,
         yields_path,
         data,
+        setup: run_setup,
+        raw: run_raw,
         data_sha256: std::sync::OnceLock::new(),
     })
 }

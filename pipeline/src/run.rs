@@ -58,7 +58,7 @@ fn yields_frame(rows: &[stages::raw::YieldRow]) -> PolarsResult<DataFrame> {
 /// Read a run's events or spectra through the `raw:` section.
 fn reduce_raw(plan: &Plan, run: &LoadedRun) -> Result<(DataFrame, RawOutputs), Vec<Diagnostic>> {
     let path = &run.yields_path;
-    let raw = plan.raw.as_ref().ok_or_else(|| {
+    let raw = run.raw(plan).ok_or_else(|| {
         vec![Diagnostic::new(&run.record_path, "", "events or spectra need a `raw:` section in the config")]
     })?;
     let result = match run.data {
@@ -121,12 +121,13 @@ fn read_and_reduce(plan: &Plan, run: &LoadedRun) -> Result<Reduced, Vec<Diagnost
     if raw.height() == 0 {
         warn!(run = %run.record.run, file = %yields.display(), "yields table has no rows");
     }
-    let prepared = stages::yields::prepare(&raw, &plan.setup, &run.record.run.0)
+    let setup = run.setup(plan);
+    let prepared = stages::yields::prepare(&raw, setup, &run.record.run.0)
         .map_err(|errs| errs.iter().map(|e| table_diagnostic(yields, "", e)).collect::<Vec<_>>())?;
     for c in &prepared.ignored_columns {
         warn!(run = %run.record.run, column = %c, "yields column is not part of the yields table and is ignored");
     }
-    let ctx = RunContext { setup: &plan.setup, run: &run.record };
+    let ctx = RunContext { setup, run: &run.record };
     let mut table = prepared.table;
     for s in &plan.stages {
         let _span = info_span!("stage", stage = s.stage.name()).entered();
@@ -491,7 +492,7 @@ pub fn check_runs(plan: &Plan) -> Vec<RunFailure> {
         let problems = match &planned.loaded {
             Err(d) => d.clone(),
             // Event and spectrum files: their columns only (the files may be large).
-            Ok(run) if run.data != RunData::Yields => match &plan.raw {
+            Ok(run) if run.data != RunData::Yields => match run.raw(plan) {
                 Some(raw) => crate::events::check_file(&run.yields_path, raw, run.data == RunData::Spectra)
                     .err()
                     .map(|m| vec![Diagnostic::new(&run.yields_path, "", m)])
@@ -500,7 +501,7 @@ pub fn check_runs(plan: &Plan) -> Vec<RunFailure> {
             },
             Ok(run) => match read_table(&run.yields_path) {
                 Err(m) => vec![Diagnostic::new(&run.yields_path, "", m)],
-                Ok(raw) => match stages::yields::prepare(&raw, &plan.setup, &run.record.run.0) {
+                Ok(raw) => match stages::yields::prepare(&raw, run.setup(plan), &run.record.run.0) {
                     Err(errs) => errs.iter().map(|e| table_diagnostic(&run.yields_path, "", e)).collect(),
                     Ok(prepared) => plan
                         .stages
