@@ -24,7 +24,7 @@ fn assert_config_error(edit_from: &str, edit_to: &str, expected: &[&str]) {
 }
 
 /// A mistake in run 0101's files: exit 1, the message, nothing written for 0101, and the
-/// other two runs reduced.
+/// other three runs reduced.
 fn assert_run_error(file: &str, edit_from: &str, edit_to: &str, expected: &[&str]) {
     let tmp = demo_copy();
     edit(&tmp.path().join("runs").join(file), edit_from, edit_to);
@@ -34,10 +34,10 @@ fn assert_run_error(file: &str, edit_from: &str, edit_to: &str, expected: &[&str
         assert!(msg.contains(e), "expected {e:?} in:\n{msg}");
     }
     assert!(!tmp.path().join("out/0101").exists(), "the bad run wrote outputs");
-    for good in ["0102", "0103"] {
+    for good in ["0102", "0103", "0104"] {
         assert_eq!(files_below(&tmp.path().join("out").join(good)).len(), 3, "run {good} was not reduced: {msg}");
     }
-    assert!(msg.contains("2 run(s) reduced, 1 failed"), "{msg}");
+    assert!(msg.contains("3 run(s) reduced, 1 failed"), "{msg}");
 }
 
 #[test]
@@ -169,6 +169,23 @@ fn paralyzable_rate_above_the_maximum_is_a_clear_error() {
     let (code, msg) = reduce(tmp.path());
     assert_eq!(code, Some(1), "{msg}");
     assert!(msg.contains("exceeds the paralyzable model's maximum observable rate 1/(e·τ) = 183.939"), "{msg}");
-    assert!(msg.contains("3 failed"), "{msg}");
+    assert!(msg.contains("4 failed"), "{msg}");
     assert!(files_below(&tmp.path().join("out")).is_empty());
+}
+
+#[test]
+fn a_run_that_turns_an_arm_the_config_does_not_have_or_too_far_is_refused_with_its_line() {
+    assert_run_error(
+        "run0101.run.yaml",
+        "charge_c:",
+        "arm_theta_lab_deg: { right: 60.0 }\ncharge_c:",
+        &["run0101.run.yaml:4:22 arm_theta_lab_deg.right: found right, expected an arm of the config (left)"],
+    );
+    assert_run_error(
+        "run0101.run.yaml",
+        "charge_c:",
+        "arm_theta_lab_deg: { left: 25.0 }\ncharge_c:",
+        &["arm_theta_lab_deg.left: found 25, expected a setting that keeps the arm's detectors within (0, 180) \
+           degrees (D01 would stand at -5)"],
+    );
 }

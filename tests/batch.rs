@@ -21,7 +21,7 @@ fn second_batch_skips_unchanged_runs_and_a_change_reprocesses_exactly_its_runs()
     let tmp = demo_copy();
     let first = batch(tmp.path(), &["--jobs", "2"]);
     assert_eq!(first.status.code(), Some(0), "{}", text(&first));
-    assert!(summary_line(&first).starts_with("batch: 3 ok, 0 failed, 0 skipped"), "{}", text(&first));
+    assert!(summary_line(&first).starts_with("batch: 4 ok, 0 failed, 0 skipped"), "{}", text(&first));
     // The same bytes as `xsflow reduce` writes.
     for run in ["0101", "0102", "0103"] {
         let got = std::fs::read_to_string(tmp.path().join("out").join(run).join("cross_sections.csv")).expect("csv");
@@ -31,18 +31,18 @@ fn second_batch_skips_unchanged_runs_and_a_change_reprocesses_exactly_its_runs()
     }
     assert!(tmp.path().join("out/fits/elastic_optical/fit.json").is_file());
     let second = batch(tmp.path(), &[]);
-    assert!(summary_line(&second).starts_with("batch: 0 ok, 0 failed, 3 skipped"), "{}", text(&second));
+    assert!(summary_line(&second).starts_with("batch: 0 ok, 0 failed, 4 skipped"), "{}", text(&second));
     // One yields file changes: that run only.
     edit(&tmp.path().join("runs/run0102.yields.csv"), "D01,elastic,", "D01,elastic,1");
     let third = batch(tmp.path(), &[]);
-    assert!(summary_line(&third).starts_with("batch: 1 ok, 0 failed, 2 skipped"), "{}", text(&third));
+    assert!(summary_line(&third).starts_with("batch: 1 ok, 0 failed, 3 skipped"), "{}", text(&third));
     // A stage setting changes: every run; a fit entry does not change any run.
     edit(&tmp.path().join("experiment.yaml"), "charge_rel_err: 0.01", "charge_rel_err: 0.02");
     let fourth = batch(tmp.path(), &[]);
-    assert!(summary_line(&fourth).starts_with("batch: 3 ok, 0 failed, 0 skipped"), "{}", text(&fourth));
+    assert!(summary_line(&fourth).starts_with("batch: 4 ok, 0 failed, 0 skipped"), "{}", text(&fourth));
     edit(&tmp.path().join("experiment.yaml"), "name: inelastic_legendre", "name: inelastic_series");
     let fifth = batch(tmp.path(), &["--dry-run"]);
-    assert!(summary_line(&fifth).starts_with("batch: 0 would be processed, 0 failed, 3 skipped"), "{}", text(&fifth));
+    assert!(summary_line(&fifth).starts_with("batch: 0 would be processed, 0 failed, 4 skipped"), "{}", text(&fifth));
 }
 
 #[test]
@@ -51,7 +51,7 @@ fn a_failed_run_is_catalogued_with_its_reason_and_picked_up_once_fixed() {
     edit(&tmp.path().join("runs/run0103.yields.csv"), "D01,elastic,", "D01,elastic,-");
     let out = batch(tmp.path(), &[]);
     assert_eq!(out.status.code(), Some(1), "{}", text(&out));
-    assert!(summary_line(&out).starts_with("batch: 2 ok, 1 failed, 0 skipped"), "{}", text(&out));
+    assert!(summary_line(&out).starts_with("batch: 3 ok, 1 failed, 0 skipped"), "{}", text(&out));
     let list = xsflow(tmp.path(), &["runs", "out", "--failed", "--format", "json"]);
     let failed: serde_json::Value = serde_json::from_slice(&list.stdout).expect("json");
     assert_eq!(failed.as_array().map(Vec::len), Some(1), "{failed}");
@@ -60,7 +60,7 @@ fn a_failed_run_is_catalogued_with_its_reason_and_picked_up_once_fixed() {
     edit(&tmp.path().join("runs/run0103.yields.csv"), "D01,elastic,-", "D01,elastic,");
     let again = batch(tmp.path(), &[]);
     assert_eq!(again.status.code(), Some(0), "{}", text(&again));
-    assert!(summary_line(&again).starts_with("batch: 1 ok, 0 failed, 2 skipped"), "{}", text(&again));
+    assert!(summary_line(&again).starts_with("batch: 1 ok, 0 failed, 3 skipped"), "{}", text(&again));
     // The catalogue says what this batch did: 0103 processed, the others unchanged.
     let all: serde_json::Value =
         serde_json::from_slice(&xsflow(tmp.path(), &["runs", "out", "--format", "json"]).stdout).expect("json");
@@ -70,7 +70,7 @@ fn a_failed_run_is_catalogued_with_its_reason_and_picked_up_once_fixed() {
         .iter()
         .map(|r| (r["run"].as_str().unwrap_or_default(), r["status"].as_str().unwrap_or_default()))
         .collect();
-    assert_eq!(status, [("0101", "skipped"), ("0102", "skipped"), ("0103", "ok")], "{all}");
+    assert_eq!(status, [("0101", "skipped"), ("0102", "skipped"), ("0103", "ok"), ("0104", "skipped")], "{all}");
 }
 
 #[test]
@@ -193,13 +193,13 @@ fn two_batches_started_at_once_on_one_output_folder_leave_it_whole() {
     let check: String = db.query_row("PRAGMA integrity_check", [], |r| r.get(0)).expect("integrity check");
     assert_eq!(check, "ok");
     let runs = xsflow::catalogue::Catalogue::open(&tmp.path().join("out")).expect("open").list(false).expect("list");
-    assert_eq!(runs.len(), 43);
+    assert_eq!(runs.len(), 44);
     assert!(runs.iter().all(|r| r.status.has_outputs()), "{runs:?}");
 }
 
 #[test]
 fn a_batch_killed_at_any_moment_and_rerun_gives_the_uninterrupted_outputs() {
-    // 43 runs (the demo's three and 40 more records of the same yields); SIGKILL after
+    // 44 runs (the demo's four and 40 more records of the same yields); SIGKILL after
     // 20, 60, 150, 300 and 500 ms, a rerun after each kill, then one to completion: every
     // output byte-identical to an uninterrupted batch, no temporary file left, and a
     // catalogue with every run ok.
@@ -223,7 +223,7 @@ fn a_batch_killed_at_any_moment_and_rerun_gives_the_uninterrupted_outputs() {
     let all: serde_json::Value =
         serde_json::from_slice(&xsflow(tmp.path(), &["runs", "out", "--format", "json"]).stdout).expect("json");
     let runs = all.as_array().expect("runs");
-    assert_eq!(runs.len(), 43);
+    assert_eq!(runs.len(), 44);
     assert!(runs.iter().all(|r| r["status"] == "ok" || r["status"] == "skipped"), "{all}");
 }
 
@@ -244,12 +244,13 @@ fn a_run_file_that_changes_or_disappears_during_the_batch_fails_that_run_and_a_r
     // The batch hashes every run's files when it decides what to do, and reads them later.
     // Here the hashes are taken first (as the batch's change check does), then, before the
     // batch reads them: run 0101's yields table is rewritten, run 0102's record and run
-    // 0103's yields table are deleted. A fourth run (0104, a copy of 0101) stays as it was.
+    // 0103's yields table are deleted. Run 0104 and a fifth run (0105, a copy of 0101) stay as
+    // they were.
     let tmp = demo_copy();
     let runs = tmp.path().join("runs");
-    std::fs::copy(runs.join("run0101.yields.csv"), runs.join("run0104.yields.csv")).expect("copy");
+    std::fs::copy(runs.join("run0101.yields.csv"), runs.join("run0105.yields.csv")).expect("copy");
     let record = std::fs::read_to_string(runs.join("run0101.run.yaml")).expect("record");
-    std::fs::write(runs.join("run0104.run.yaml"), record.replace("0101", "0104")).expect("write");
+    std::fs::write(runs.join("run0105.run.yaml"), record.replace("0101", "0105")).expect("write");
     let plan = xsflow::plan::plan_with(&tmp.path().join("experiment.yaml"), true).expect("the demo plans");
     for run in &plan.runs {
         run.loaded.as_ref().expect("loads").data_hash().expect("hashed");
@@ -264,7 +265,7 @@ fn a_run_file_that_changes_or_disappears_during_the_batch_fails_that_run_and_a_r
     let opts =
         xsflow::batch::BatchOptions { out: tmp.path().join("out"), jobs: 2, shard: None, force: false, dry_run: false };
     let (summary, failures, _) = xsflow::batch::batch(&plan, &opts).expect("the batch runs");
-    assert_eq!((summary.ok, summary.failed), (1, 3), "{failures:?}");
+    assert_eq!((summary.ok, summary.failed), (2, 3), "{failures:?}");
     let reason =
         |run: &str| failures.iter().find(|f| f.run == run).map(|f| f.problems[0].to_string()).unwrap_or_default();
     assert!(
@@ -297,7 +298,7 @@ fn a_run_file_that_changes_or_disappears_during_the_batch_fails_that_run_and_a_r
     std::fs::write(runs.join("run0103.yields.csv"), yields_0103).expect("restore");
     let again = batch(tmp.path(), &[]);
     assert_eq!(again.status.code(), Some(0), "{}", text(&again));
-    assert!(summary_line(&again).starts_with("batch: 3 ok, 0 failed, 1 skipped"), "{}", text(&again));
+    assert!(summary_line(&again).starts_with("batch: 3 ok, 0 failed, 2 skipped"), "{}", text(&again));
     for run in ["0101", "0102", "0103"] {
         let got = std::fs::read(tmp.path().join("out").join(run).join("cross_sections.csv")).expect("csv");
         let want = std::fs::read(demo_dir().join("expected").join(run).join("cross_sections.csv")).expect("csv");
@@ -424,7 +425,7 @@ fn a_full_disk_or_a_read_only_output_folder_stops_the_batch_with_a_clear_error_a
     assert_eq!(disk.sh("rm out/filler"), 0);
     let (code, log) = batch_inside(&mut disk, "rerun.log");
     assert_eq!(code, 0, "{log}");
-    assert!(log.contains("batch: 1 ok, 0 failed, 2 skipped"), "{log}");
+    assert!(log.contains("batch: 1 ok, 0 failed, 3 skipped"), "{log}");
     let reference = xsflow(&dir, &["batch", "experiment.yaml", "--out", "out-ref"]);
     assert_eq!(reference.status.code(), Some(0), "{}", text(&reference));
     let on_disk = disk.files();

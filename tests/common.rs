@@ -87,3 +87,10 @@ pub fn files_below(dir: &Path) -> Vec<PathBuf> {
     out.sort();
     out
 }
+
+/// `xsflow kinematics` for the demo's reaction (24 MeV 4He on 58Ni) at `angles`
+/// (`FROM:TO:STEP`), printed as JSON.
+pub fn demo_kinematics(angles: &str) -> Output {
+    let args = ["kinematics", "--beam", "4He", "--target", "58Ni", "--energy-mev", "24", "--angles", angles];
+    xsflow(&repo_root(), &[&args[..], &["--format", "json"]].concat())
+}

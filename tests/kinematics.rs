@@ -188,22 +188,7 @@ fn monitor_mode_makes_the_monitor_pure_rutherford_and_reports_the_cross_check() 
 
 #[test]
 fn kinematics_command_prints_the_contract_keys() {
-    let out = xsflow(
-        &crate::common::repo_root(),
-        &[
-            "kinematics",
-            "--beam",
-            "4He",
-            "--target",
-            "58Ni",
-            "--energy-mev",
-            "24",
-            "--angles",
-            "10:170:10",
-            "--format",
-            "json",
-        ],
-    );
+    let out = crate::common::demo_kinematics("10:170:10");
     assert_eq!(out.status.code(), Some(0), "{}", text(&out));
     let rows: Vec<serde_json::Value> = serde_json::from_slice(&out.stdout).expect("JSON array");
     assert_eq!(rows.len(), 17);

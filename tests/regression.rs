@@ -35,7 +35,7 @@ fn demo_reduces_to_its_expected_output() {
     // allows a different libm on another machine, nothing more.
     let tmp = demo_copy();
     reduce_demo(tmp.path());
-    for run in ["0101", "0102", "0103"] {
+    for run in ["0101", "0102", "0103", "0104"] {
         let got = std::fs::read_to_string(tmp.path().join("out").join(run).join("cross_sections.csv"))
             .expect("output written");
         let want = std::fs::read_to_string(demo_dir().join("expected").join(run).join("cross_sections.csv"))
@@ -92,8 +92,8 @@ fn identical_inputs_give_identical_bytes() {
     let files_a = files_below(&a.path().join("out"));
     assert_eq!(
         files_a.len(),
-        20,
-        "three files for each of three runs, three for the combined distribution, four for each of two fits: {files_a:?}"
+        23,
+        "three files for each of four runs, three for the combined distribution, four for each of two fits: {files_a:?}"
     );
     for fa in files_a {
         let rel = fa.strip_prefix(a.path()).expect("below the scratch folder");
@@ -181,4 +181,54 @@ fn rows_follow_detector_config_order_and_no_temporary_files_remain() {
         .expect("name")
         .to_string_lossy()
         .starts_with('.')));
+}
+
+/// The rows of a CSV file as maps from column name to text.
+fn csv_rows(path: &Path) -> Vec<std::collections::HashMap<String, String>> {
+    let text = std::fs::read_to_string(path).unwrap_or_else(|e| panic!("{}: {e}", path.display()));
+    let mut lines = text.lines();
+    let header: Vec<String> = lines.next().expect("header").split(',').map(str::to_string).collect();
+    lines.map(|l| header.iter().cloned().zip(l.split(',').map(str::to_string)).collect()).collect()
+}
+
+#[test]
+fn a_run_with_its_arm_turned_is_reduced_at_the_turned_angles_and_merged_with_the_others() {
+    // Run 0104 was taken with the arm of D01-D07 at 55 instead of 50 degrees: those
+    // detectors stand 5 degrees further out, the others where they were.
+    let expected = demo_dir().join("expected");
+    let rows = csv_rows(&expected.join("0104/cross_sections.csv"));
+    let angle = |det: &str| -> (f64, f64) {
+        let r = rows.iter().find(|r| r["detector"] == det && r["state"] == "elastic").expect("row");
+        (r["theta_lab_deg"].parse().expect("number"), r["theta_cm_deg"].parse().expect("number"))
+    };
+    for (det, want) in [("D01", 25.0), ("D07", 85.0), ("D08", 90.0)] {
+        assert!((angle(det).0 - want).abs() < 1e-12, "{det} at {} degrees", angle(det).0);
+    }
+    // Its CM angle is the kinematics at 25 degrees, as `xsflow kinematics` gives it.
+    let kin = crate::common::demo_kinematics("25:25:1");
+    let kin: serde_json::Value = serde_json::from_slice(&kin.stdout).expect("json");
+    let theta_cm = kin[0]["theta_cm_deg"].as_f64().expect("theta_cm_deg");
+    assert!((angle("D01").1 - theta_cm).abs() < 1e-9, "{} vs {theta_cm}", angle("D01").1);
+    // The combined distribution: the turned detectors fill in 25, 35, ..., 85 degrees, one
+    // row each; the fixed ones average all four runs.
+    let points = csv_rows(&expected.join("angular_distribution.csv"));
+    let elastic: Vec<(f64, String)> = points
+        .iter()
+        .filter(|p| p["state"] == "elastic")
+        .map(|p| (p["theta_lab_deg"].parse().expect("number"), p["members"].clone()))
+        .collect();
+    assert_eq!(elastic.len(), 19, "{elastic:?}");
+    for (theta, members) in &elastic {
+        let on_arm_turned = (25.0..=85.0).contains(theta) && (theta % 10.0 - 5.0).abs() < 1e-9;
+        let want = if on_arm_turned {
+            format!("0104/D0{}", (*theta as usize - 15) / 10)
+        } else if *theta < 81.0 {
+            let d = (*theta as usize - 10) / 10;
+            format!("0101/D0{d}+0102/D0{d}+0103/D0{d}")
+        } else {
+            let d = members.split(['/', '+']).nth(1).expect("a member").to_string();
+            format!("0101/{d}+0102/{d}+0103/{d}+0104/{d}")
+        };
+        assert_eq!(*members, want, "at {theta} degrees");
+    }
 }

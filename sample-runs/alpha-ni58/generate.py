@@ -10,7 +10,8 @@ demo can recover that potential; for the inelastic peak, Rutherford times a made
 fall-off. Neither is a measurement; they must not be compared with measured data.
 
 Run:  python3 sample-runs/alpha-ni58/generate.py      (needs numpy)
-It rewrites runs/*.run.yaml and runs/*.yields.csv beside this script.
+It rewrites runs/*.run.yaml and runs/*.yields.csv beside this script. Run 0104 was taken
+with the detector arm turned by 5 degrees (its record says so in arm_theta_lab_deg).
 """
 
 import math
@@ -41,11 +42,19 @@ DETECTORS = [
 RADIUS_MM = 2.5
 STATES = [("elastic", 0.0, 1.0), ("2+_1.454", 1.454, 0.04)]
 
+# D01-D07 sit on a rotating arm ("left" in experiment.yaml) whose scale reads
+# ARM_CONFIG_DEG when they stand at the angles above; the others are fixed.
+ON_ARM = {"D01", "D02", "D03", "D04", "D05", "D06", "D07"}
+ARM_CONFIG_DEG = 50.0
+
 RUNS = [
-    # run, charge C, live s, real s, pulser sent, pulser recorded, triggers raw, accepted
-    ("0101", 2.0e-5, 3421.0, 3600.0, 36000, 34210, 1_250_000, 1_187_900),
-    ("0102", 3.5e-5, 5050.5, 5400.0, 54000, 50505, 2_100_000, 1_963_500),
-    ("0103", 1.2e-5, 1765.0, 1800.0, 18000, 17650, 560_000, 549_100),
+    # run, charge C, live s, real s, pulser sent, pulser recorded, triggers raw, accepted,
+    # arm setting (degrees on the arm's scale)
+    ("0101", 2.0e-5, 3421.0, 3600.0, 36000, 34210, 1_250_000, 1_187_900, ARM_CONFIG_DEG),
+    ("0102", 3.5e-5, 5050.5, 5400.0, 54000, 50505, 2_100_000, 1_963_500, ARM_CONFIG_DEG),
+    ("0103", 1.2e-5, 1765.0, 1800.0, 18000, 17650, 560_000, 549_100, ARM_CONFIG_DEG),
+    # The arm turned by +5 degrees: D01-D07 fill in 25, 35, ..., 85 degrees.
+    ("0104", 3.0e-5, 4380.0, 4500.0, 45000, 43800, 1_520_000, 1_479_500, 55.0),
 ]
 
 AREAL_DENSITY_G_CM2 = 210e-6
@@ -88,11 +97,12 @@ def main():
     n_target = AREAL_DENSITY_G_CM2 * AVOGADRO / MOLAR_MASS * ISOTOPIC_FRACTION
     runs_dir = HERE / "runs"
     runs_dir.mkdir(exist_ok=True)
-    for run, charge, live, real, p_sent, p_rec, t_raw, t_acc in RUNS:
+    for run, charge, live, real, p_sent, p_rec, t_raw, t_acc, arm_deg in RUNS:
         n_beam = charge / (BEAM_CHARGE_STATE * E_CHARGE_C)
         live_fraction = live / real
         lines = ["detector,state,counts_gross,counts_background,counts_background_err,peak_energy_lab_mev"]
-        for det, theta, dist, _, eff in DETECTORS:
+        for det, theta_config, dist, _, eff in DETECTORS:
+            theta = theta_config + (arm_deg - ARM_CONFIG_DEG if det in ON_ARM else 0.0)
             omega = solid_angle_sr(dist, RADIUS_MM)
             for state, ex_mev, scale in STATES:
                 expected = invented_dsdo_mb_sr(theta, scale) * 1e-27 * n_beam * n_target * omega * eff * live_fraction
@@ -114,6 +124,8 @@ pulser_recorded: {p_rec}
 triggers_raw: {t_raw}
 triggers_accepted: {t_acc}
 """
+        if arm_deg != ARM_CONFIG_DEG:
+            record += f"arm_theta_lab_deg: {{ left: {arm_deg} }}\n"
         (runs_dir / f"run{run}.run.yaml").write_text(record)
 
 

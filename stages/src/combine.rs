@@ -140,7 +140,12 @@ pub fn combine(rows: &[Row], tolerance_deg: f64) -> Result<(Vec<Point>, Vec<f64>
             })
             .collect();
         let wsum: f64 = w.iter().sum();
-        let mean = |f: &dyn Fn(&Row) -> f64| g.iter().zip(&w).map(|(&i, wi)| wi * f(&rows[i])).sum::<f64>() / wsum;
+        // Written as the first row's value plus the weighted mean offset, so that rows with
+        // one value (the same angle) give exactly that value.
+        let mean = |f: &dyn Fn(&Row) -> f64| {
+            let first = f(&rows[g[0]]);
+            first + g.iter().zip(&w).map(|(&i, wi)| wi * (f(&rows[i]) - first)).sum::<f64>() / wsum
+        };
         let y = mean(&|r| r.y);
         let stat = g.iter().zip(&w).map(|(&i, wi)| (wi * rows[i].stat).powi(2)).sum::<f64>().sqrt() / wsum;
         for (&i, wi) in g.iter().zip(&w) {
