@@ -1,22 +1,30 @@
 //! Combining runs into one angular distribution per state: rows of the same state at the
 //! same lab angle (within a tolerance) are averaged; rows at other angles (other arm
 //! settings) become other points. The covariance matrix of the result keeps the
-//! normalisation correlations.
+//! correlations that the runs and detectors share.
 //!
-//! For the rows i of one point k, with weights w_i = 1/(σ_stat,i² + σ_p2p,i²) and W_k = Σ w_i
-//! (common practice):
-//!     y_k = Σ w_i y_i / W_k,   σ_stat,k² = Σ w_i² σ_stat,i² / W_k²,
-//!     σ_p2p,k = Σ w_i σ_p2p,i / W_k   (the point-to-point errors of one detector — solid
-//!                                      angle, efficiency — are common to its runs),
-//! Each run's normalisation error splits into a part shared by every run (the target:
-//! `target_atoms_rel_err`, when the table has it) and an independent part
-//! ν_r² = norm_rel_err² − shared², per run (beam charge, dead time). With
-//! a_rk = Σ_{i∈k, run r} w_i y_i / W_k and b_k = Σ_{i∈k} w_i y_i s_i / W_k (s_i the shared
-//! relative error):
-//!     C_kl = δ_kl (σ_stat,k² + σ_p2p,k²) + Σ_r a_rk a_rl ν_r² + b_k b_l.
-//! The combined table's `sys_err_mb_sr` holds σ_p2p,k ⊕ √(Σ_r a_rk² ν_r²) (what a fit with
-//! diagonal errors should use) and `norm_rel_err` the shared part b_k/y_k, which a fit
-//! takes as its normalisation prior.
+//! Error model of a row i (run r, detector d): counting statistics σ_stat,i, independent;
+//! point-to-point systematic σ_p2p,i (solid angle, efficiency: properties of the detector),
+//! fully correlated between all rows of the same detector, whatever the run or angle, and
+//! independent between detectors; normalisation, split into a part shared by every run (the
+//! target: `target_atoms_rel_err`, when the table has it) and an independent part per run
+//! ν_r² = norm_rel_err² − shared² (beam charge, dead time).
+//!
+//! One point k is the best linear unbiased estimate from its rows without the
+//! normalisations (which would bias a weighted mean towards low values; Peelle's pertinent
+//! puzzle, common practice). With σ_p2p equal within a detector this is exact in two steps:
+//! the rows of one detector D are averaged with weights u_i = 1/σ_stat,i², giving
+//! y_D, σ_stat,D² = Σ u_i² σ_stat,i² / U_D² and σ_p2p,D = Σ u_i σ_p2p,i / U_D (U_D = Σ u_i);
+//! the detectors are then averaged with w_D = 1/(σ_stat,D² + σ_p2p,D²), W = Σ w_D. Each row
+//! enters with c_i = (w_D / W)(u_i / U_D):
+//!     y_k = Σ c_i y_i,   σ_stat,k² = Σ c_i² σ_stat,i²,   s_kD = Σ_{i∈D} c_i σ_p2p,i,
+//!     a_rk = Σ_{i∈k, run r} c_i y_i,   b_k = Σ_i c_i y_i s_i   (s_i the shared relative error),
+//!     C_kl = δ_kl σ_stat,k² + Σ_D s_kD s_lD + Σ_r a_rk a_rl ν_r² + b_k b_l.
+//! Source: linear propagation of the covariance through a linear combination, JCGM 100:2008
+//! (GUM) section 5.2; the two-step mean is the generalised least-squares mean for this block
+//! covariance. The combined table's `sys_err_mb_sr` holds √(Σ_D s_kD² + Σ_r a_rk² ν_r²)
+//! (what a fit with diagonal errors should use) and `norm_rel_err` the shared part b_k/y_k,
+//! which a fit takes as its normalisation prior.
 
 /// The `combine:` section of a config.
 #[derive(Debug, Clone, serde::Deserialize, schemars::JsonSchema)]
@@ -112,58 +120,49 @@ pub fn combine(rows: &[Row], tolerance_deg: f64) -> Result<(Vec<Point>, Vec<f64>
             _ => groups.push(vec![i]),
         }
     }
-    let runs: Vec<&str> = {
-        let mut r: Vec<&str> = rows.iter().map(|r| r.run.as_str()).collect();
-        r.sort_unstable();
-        r.dedup();
-        r
+    let sorted_unique = |f: &dyn Fn(&Row) -> &str| {
+        let mut v: Vec<&str> = rows.iter().map(f).collect();
+        v.sort_unstable();
+        v.dedup();
+        v
     };
+    let runs = sorted_unique(&|r| r.run.as_str());
+    let detectors = sorted_unique(&|r| r.detector.as_str());
+    let index = |list: &[&str], name: &str| list.binary_search(&name).unwrap_or(0);
     let n = groups.len();
-    // a[k][r] and b[k] of the module docs; ν_r per run.
+    // a[k][r], s[k][d] and b[k] of the module docs; ν_r per run.
     let mut a = vec![vec![0.0; runs.len()]; n];
+    let mut s = vec![vec![0.0; detectors.len()]; n];
     let mut nu = vec![0.0; runs.len()];
     let mut b = vec![0.0; n];
-    // σ_p2p,k, kept for the covariance (the point's `sys` also holds the independent part).
-    let mut p2p = vec![0.0; n];
     let mut points = Vec::with_capacity(n);
     for (k, g) in groups.iter().enumerate() {
-        // A row with no counts has no error; it takes the smallest error of the point's other
-        // rows (or, when all are zero, equal weights), so that it still pulls the mean down.
-        let var = |i: usize| rows[i].stat.powi(2) + rows[i].sys.powi(2);
-        let floor = g.iter().map(|&i| var(i)).filter(|v| *v > 0.0).fold(f64::INFINITY, f64::min);
-        let w: Vec<f64> = g
-            .iter()
-            .map(|&i| match (var(i), floor.is_finite()) {
-                (v, _) if v > 0.0 => 1.0 / v,
-                (_, true) => 1.0 / floor,
-                _ => 1.0,
-            })
-            .collect();
-        let wsum: f64 = w.iter().sum();
-        // Written as the first row's value plus the weighted mean offset, so that rows with
-        // one value (the same angle) give exactly that value.
+        let c = row_coefficients(rows, g);
         let mean = |f: &dyn Fn(&Row) -> f64| {
+            // The first row's value plus the weighted mean offset, so that rows with one value
+            // (the same angle) give exactly that value.
             let first = f(&rows[g[0]]);
-            first + g.iter().zip(&w).map(|(&i, wi)| wi * (f(&rows[i]) - first)).sum::<f64>() / wsum
+            first + g.iter().zip(&c).map(|(&i, ci)| ci * (f(&rows[i]) - first)).sum::<f64>()
         };
         let y = mean(&|r| r.y);
-        let stat = g.iter().zip(&w).map(|(&i, wi)| (wi * rows[i].stat).powi(2)).sum::<f64>().sqrt() / wsum;
-        for (&i, wi) in g.iter().zip(&w) {
+        let stat = g.iter().zip(&c).map(|(&i, ci)| (ci * rows[i].stat).powi(2)).sum::<f64>().sqrt();
+        for (&i, ci) in g.iter().zip(&c) {
             let r = &rows[i];
-            let ri = runs.binary_search(&r.run.as_str()).unwrap_or(0);
-            a[k][ri] += wi * r.y / wsum;
+            let ri = index(&runs, &r.run);
+            a[k][ri] += ci * r.y;
             nu[ri] = (r.norm_rel_err.powi(2) - r.shared_rel_err.powi(2)).max(0.0).sqrt();
-            b[k] += wi * r.y * r.shared_rel_err / wsum;
+            b[k] += ci * r.y * r.shared_rel_err;
+            s[k][index(&detectors, &r.detector)] += ci * r.sys;
         }
         let independent: f64 = a[k].iter().zip(&nu).map(|(a, nu)| (a * nu).powi(2)).sum();
-        p2p[k] = mean(&|r| r.sys);
+        let p2p: f64 = s[k].iter().map(|x| x * x).sum();
         points.push(Point {
             state: rows[g[0]].state.clone(),
             theta_lab_deg: mean(&|r| r.theta_lab_deg),
             theta_cm_deg: mean(&|r| r.theta_cm_deg),
             y,
             stat,
-            sys: (p2p[k].powi(2) + independent).sqrt(),
+            sys: (p2p + independent).sqrt(),
             norm_rel_err: if y == 0.0 { 0.0 } else { b[k] / y },
             members: g.iter().map(|&i| format!("{}/{}", rows[i].run, rows[i].detector)).collect::<Vec<_>>().join("+"),
             rows: g.len(),
@@ -173,11 +172,59 @@ pub fn combine(rows: &[Row], tolerance_deg: f64) -> Result<(Vec<Point>, Vec<f64>
     for k in 0..n {
         for l in 0..n {
             let ind: f64 = (0..runs.len()).map(|r| a[k][r] * a[l][r] * nu[r] * nu[r]).sum();
-            let diag = if k == l { points[k].stat.powi(2) + p2p[k].powi(2) } else { 0.0 };
-            cov[k * n + l] = diag + ind + b[k] * b[l];
+            let p2p: f64 = s[k].iter().zip(&s[l]).map(|(x, y)| x * y).sum();
+            let diag = if k == l { points[k].stat.powi(2) } else { 0.0 };
+            cov[k * n + l] = diag + p2p + ind + b[k] * b[l];
         }
     }
     Ok((points, cov))
+}
+
+/// The coefficient c_i of each row of one point (module docs): inverse-variance weights
+/// within each detector (statistics only), then between detectors (statistics and
+/// point-to-point). Sums to 1.
+fn row_coefficients(rows: &[Row], group: &[usize]) -> Vec<f64> {
+    let mut detectors: Vec<&str> = group.iter().map(|&i| rows[i].detector.as_str()).collect();
+    detectors.sort_unstable();
+    detectors.dedup();
+    let mut within = vec![0.0; group.len()];
+    let mut per_detector = Vec::with_capacity(detectors.len());
+    for det in &detectors {
+        let members: Vec<usize> = (0..group.len()).filter(|&j| rows[group[j]].detector == *det).collect();
+        let u = inverse_variance_weights(&members.iter().map(|&j| rows[group[j]].stat.powi(2)).collect::<Vec<_>>());
+        let total: f64 = u.iter().sum();
+        let (mut stat2, mut p2p) = (0.0, 0.0);
+        for (&j, uj) in members.iter().zip(&u) {
+            within[j] = uj / total;
+            stat2 += (within[j] * rows[group[j]].stat).powi(2);
+            p2p += within[j] * rows[group[j]].sys;
+        }
+        per_detector.push((members, stat2 + p2p * p2p));
+    }
+    let w = inverse_variance_weights(&per_detector.iter().map(|(_, v)| *v).collect::<Vec<_>>());
+    let total: f64 = w.iter().sum();
+    let mut c = within;
+    for ((members, _), wd) in per_detector.iter().zip(&w) {
+        for &j in members {
+            c[j] *= wd / total;
+        }
+    }
+    c
+}
+
+/// Weights 1/v_i. A zero variance (a row with no counts has no counting error) takes the
+/// smallest positive variance of the others, so that it still pulls the mean towards
+/// itself; all zero gives equal weights.
+fn inverse_variance_weights(variances: &[f64]) -> Vec<f64> {
+    let floor = variances.iter().copied().filter(|v| *v > 0.0).fold(f64::INFINITY, f64::min);
+    variances
+        .iter()
+        .map(|&v| match (v > 0.0, floor.is_finite()) {
+            (true, _) => 1.0 / v,
+            (false, true) => 1.0 / floor,
+            (false, false) => 1.0,
+        })
+        .collect()
 }
 
 #[cfg(test)]
@@ -200,6 +247,39 @@ mod tests {
         }
     }
 
+    fn at(detector: &str, sys: f64, r: Row) -> Row {
+        Row { detector: detector.into(), sys, ..r }
+    }
+
+    /// `at`, with the normalisation errors left out (set to zero).
+    fn plain_at(detector: &str, sys: f64, r: Row) -> Row {
+        Row { norm_rel_err: 0.0, shared_rel_err: 0.0, ..at(detector, sys, r) }
+    }
+
+    /// Solve A x = rhs for a small dense matrix (Gaussian elimination with partial pivoting).
+    fn solve(mut m: Vec<Vec<f64>>, mut rhs: Vec<f64>) -> Vec<f64> {
+        let n = rhs.len();
+        for col in 0..n {
+            let p = (col..n).max_by(|&i, &j| m[i][col].abs().total_cmp(&m[j][col].abs())).expect("rows");
+            m.swap(col, p);
+            rhs.swap(col, p);
+            let (upper, lower) = m.split_at_mut(col + 1);
+            let pivot = &upper[col];
+            for (r, row) in (col + 1..).zip(lower.iter_mut()) {
+                let f = row[col] / pivot[col];
+                for (x, p) in row[col..].iter_mut().zip(&pivot[col..]) {
+                    *x -= f * p;
+                }
+                rhs[r] -= f * rhs[col];
+            }
+        }
+        let mut x = vec![0.0; n];
+        for r in (0..n).rev() {
+            x[r] = (rhs[r] - (r + 1..n).map(|c| m[r][c] * x[c]).sum::<f64>()) / m[r][r];
+        }
+        x
+    }
+
     #[test]
     fn two_runs_at_one_angle_average_and_keep_their_normalisations() {
         // y = 10 ± 1 and 12 ± 2 at 30°: weights 1 and 1/4, mean (10 + 3)/1.25 = 10.4,
@@ -217,5 +297,53 @@ mod tests {
         // Points 0 and 1 share run a's independent normalisation and the shared one.
         assert_relative_eq!(cov[1], 8.0 * 5.0 * 0.04 * 0.04 + 10.4 * 0.03 * 5.0 * 0.03, max_relative = 1e-12);
         assert_relative_eq!(cov[1], cov[2], max_relative = 1e-15);
+    }
+
+    #[test]
+    fn a_point_is_the_generalised_least_squares_mean_of_its_rows() {
+        // Two runs in detector D1 (point-to-point error 0.5, common to both) and one in D2
+        // (1.0) at 30°. The generalised least-squares mean with the covariance
+        //     V = diag(σ_stat²) + [same detector] σ_p2p,i σ_p2p,j
+        // is y = 1ᵀV⁻¹y / 1ᵀV⁻¹1 with variance 1/1ᵀV⁻¹1 (Aitken; common practice); the
+        // two-step mean must give both exactly. Normalisations are left out (set to zero).
+        let rows = [
+            plain_at("D1", 0.5, row("a", 30.0, 10.0, 1.0)),
+            plain_at("D1", 0.5, row("b", 30.0, 12.0, 2.0)),
+            plain_at("D2", 1.0, row("c", 30.0, 11.0, 1.0)),
+        ];
+        let v: Vec<Vec<f64>> = (0..3)
+            .map(|i| {
+                (0..3)
+                    .map(|j| {
+                        let stat = if i == j { rows[i].stat.powi(2) } else { 0.0 };
+                        let p2p = if rows[i].detector == rows[j].detector { rows[i].sys * rows[j].sys } else { 0.0 };
+                        stat + p2p
+                    })
+                    .collect()
+            })
+            .collect();
+        let v_inv_one = solve(v, vec![1.0; 3]);
+        let norm: f64 = v_inv_one.iter().sum();
+        let gls_mean = v_inv_one.iter().zip(&rows).map(|(w, r)| w * r.y).sum::<f64>() / norm;
+        let (p, cov) = combine(&rows, 0.05).expect("combines");
+        assert_eq!(p.len(), 1);
+        assert_relative_eq!(p[0].y, gls_mean, max_relative = 1e-12);
+        assert_relative_eq!(cov[0], 1.0 / norm, max_relative = 1e-12);
+        assert_relative_eq!(p[0].stat.powi(2) + p[0].sys.powi(2), 1.0 / norm, max_relative = 1e-12);
+    }
+
+    #[test]
+    fn one_detector_at_two_arm_settings_correlates_the_two_points() {
+        // D1 at 20° in run a and at 25° in run b (its arm turned): its solid-angle error
+        // (sys 0.3 and 0.2, the same relative error) is common to both points; D2 at 60°
+        // is independent of them.
+        // Statistical errors 1.
+        let rows = [("D1", 0.3, "a", 20.0, 30.0), ("D1", 0.2, "b", 25.0, 20.0), ("D2", 0.1, "a", 60.0, 10.0)]
+            .map(|(detector, sys, run, theta, y)| plain_at(detector, sys, row(run, theta, y, 1.0)));
+        let (p, cov) = combine(&rows, 0.05).expect("combines");
+        assert_eq!(p.len(), 3);
+        assert_relative_eq!(cov[1], 0.3 * 0.2, max_relative = 1e-12);
+        assert_relative_eq!(cov[0], 1.0 + 0.09, max_relative = 1e-12);
+        assert!(cov[2].abs() < 1e-15 && cov[5].abs() < 1e-15, "{cov:?}");
     }
 }
