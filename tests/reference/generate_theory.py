@@ -17,7 +17,9 @@ Usage (from the repository root)::
 
 DIR defaults to ``tests/reference/fixtures`` next to this script.  The output
 is deterministic: no random numbers are used, so two runs with the same
-library versions produce byte-identical files.  ``--time`` times the
+library versions on one machine produce byte-identical files; on another CPU
+numpy's SIMD code paths can move the 13th digit, so CI compares the files
+cell by cell within round-off (``compare_fixtures.py``).  ``--time`` times the
 reference optical-model solution of the ``ni58`` set (all S_L and dsigma/dOmega
 at 170 angles), prints the median of 5 runs and writes nothing.
 
