@@ -230,6 +230,7 @@ fn inverse_variance_weights(variances: &[f64]) -> Vec<f64> {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::physics::least_squares::qr_solve;
     use approx::assert_relative_eq;
 
     fn row(run: &str, theta: f64, y: f64, stat: f64) -> Row {
@@ -254,30 +255,6 @@ mod tests {
     /// `at`, with the normalisation errors left out (set to zero).
     fn plain_at(detector: &str, sys: f64, r: Row) -> Row {
         Row { norm_rel_err: 0.0, shared_rel_err: 0.0, ..at(detector, sys, r) }
-    }
-
-    /// Solve A x = rhs for a small dense matrix (Gaussian elimination with partial pivoting).
-    fn solve(mut m: Vec<Vec<f64>>, mut rhs: Vec<f64>) -> Vec<f64> {
-        let n = rhs.len();
-        for col in 0..n {
-            let p = (col..n).max_by(|&i, &j| m[i][col].abs().total_cmp(&m[j][col].abs())).expect("rows");
-            m.swap(col, p);
-            rhs.swap(col, p);
-            let (upper, lower) = m.split_at_mut(col + 1);
-            let pivot = &upper[col];
-            for (r, row) in (col + 1..).zip(lower.iter_mut()) {
-                let f = row[col] / pivot[col];
-                for (x, p) in row[col..].iter_mut().zip(&pivot[col..]) {
-                    *x -= f * p;
-                }
-                rhs[r] -= f * rhs[col];
-            }
-        }
-        let mut x = vec![0.0; n];
-        for r in (0..n).rev() {
-            x[r] = (rhs[r] - (r + 1..n).map(|c| m[r][c] * x[c]).sum::<f64>()) / m[r][r];
-        }
-        x
     }
 
     #[test]
@@ -311,18 +288,14 @@ mod tests {
             plain_at("D1", 0.5, row("b", 30.0, 12.0, 2.0)),
             plain_at("D2", 1.0, row("c", 30.0, 11.0, 1.0)),
         ];
-        let v: Vec<Vec<f64>> = (0..3)
-            .map(|i| {
-                (0..3)
-                    .map(|j| {
-                        let stat = if i == j { rows[i].stat.powi(2) } else { 0.0 };
-                        let p2p = if rows[i].detector == rows[j].detector { rows[i].sys * rows[j].sys } else { 0.0 };
-                        stat + p2p
-                    })
-                    .collect()
+        let mut v: Vec<f64> = (0..9)
+            .map(|ij| {
+                let (ri, rj) = (&rows[ij / 3], &rows[ij % 3]);
+                let stat = if ij / 3 == ij % 3 { ri.stat.powi(2) } else { 0.0 };
+                stat + if ri.detector == rj.detector { ri.sys * rj.sys } else { 0.0 }
             })
             .collect();
-        let v_inv_one = solve(v, vec![1.0; 3]);
+        let v_inv_one = qr_solve(&mut v, 3, 3, &mut [1.0; 3]).expect("V is positive definite");
         let norm: f64 = v_inv_one.iter().sum();
         let gls_mean = v_inv_one.iter().zip(&rows).map(|(w, r)| w * r.y).sum::<f64>() / norm;
         let (p, cov) = combine(&rows, 0.05).expect("combines");

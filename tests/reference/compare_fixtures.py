@@ -25,7 +25,7 @@ So this compares what matters, cell by cell:
   The mpmath-based fixtures reproduce exactly and are held to the same rtol.
 
 Exit status 0 if everything agrees, 1 with one line per difference (file,
-line, column, both values) otherwise.  Standard library only.
+line of the committed file, column, both values) otherwise.  Standard library only.
 """
 
 import argparse
@@ -51,7 +51,7 @@ def as_real(cell):
 def column_scales(rows):
     """Largest finite |value| of each column over the data rows (0 for text columns)."""
     scales = {}
-    for cells in rows:
+    for _, cells in rows:
         for j, cell in enumerate(cells):
             value = as_real(cell)
             if value is not None and math.isfinite(value):
@@ -60,12 +60,12 @@ def column_scales(rows):
 
 
 def split_file(path):
-    """(comment lines, header line, data rows as cell lists) of a fixture CSV."""
+    """(comment lines, header line, data rows as (line number, cells)) of a fixture CSV."""
     lines = path.read_text().split("\n")
     comments = [line for line in lines if line.startswith("#")]
-    rest = [line for line in lines if not line.startswith("#") and line != ""]
-    header = rest[0] if rest else ""
-    return comments, header, [line.split(",") for line in rest[1:]]
+    rest = [(n, line) for n, line in enumerate(lines, start=1) if not line.startswith("#") and line != ""]
+    header = rest[0][1] if rest else ""
+    return comments, header, [(n, line.split(",")) for n, line in rest[1:]]
 
 
 def compare_file(fresh, committed, rtol):
@@ -85,22 +85,22 @@ def compare_file(fresh, committed, rtol):
         return problems
     columns = c_header.split(",")
     scales = column_scales(c_rows)
-    for i, (fa, ca) in enumerate(zip(f_rows, c_rows), start=1):
+    for (_, fa), (i, ca) in zip(f_rows, c_rows):
         if len(fa) != len(ca):
-            problems.append(f"{name}: data row {i} has {len(fa)} cells generated, {len(ca)} committed")
+            problems.append(f"{name}: line {i} has {len(fa)} cells generated, {len(ca)} committed")
             continue
         for j, (a, b) in enumerate(zip(fa, ca)):
             column = columns[j] if j < len(columns) else f"#{j + 1}"
             x, y = as_real(a), as_real(b)
             if x is None or y is None:
                 if a != b:
-                    problems.append(f"{name}: data row {i}, column {column}: {a!r} generated, {b!r} committed")
+                    problems.append(f"{name}: line {i}, column {column}: {a!r} generated, {b!r} committed")
                 continue
             if math.isnan(x) and math.isnan(y):
                 continue
             allowed = rtol * max(abs(x), abs(y)) + 1e-15 * scales.get(j, 0.0)
             if not abs(x - y) <= allowed:
-                problems.append(f"{name}: data row {i}, column {column}: {a} generated, {b} committed "
+                problems.append(f"{name}: line {i}, column {column}: {a} generated, {b} committed "
                                 f"(difference {abs(x - y):.3g}, allowed {allowed:.3g})")
     return problems
 
