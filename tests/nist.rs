@@ -10,7 +10,7 @@
 
 use std::path::Path;
 
-use stages::physics::dual::{Dual, Real};
+use stages::physics::dual::{values_and_jacobian, Dual, Real};
 use stages::physics::least_squares::{inverse_normal_matrix, minimise, LmOptions, Residuals};
 
 use crate::common::repo_root;
@@ -133,13 +133,8 @@ impl Residuals for Dataset {
         self.y.len()
     }
     fn eval(&self, p: &[f64], r: &mut [f64], jac: &mut [f64]) -> bool {
-        let n = p.len();
-        let b: Vec<Dual> = p.iter().enumerate().map(|(i, v)| Dual::param(*v, i)).collect();
-        for (i, (x, y)) in self.x.iter().zip(&self.y).enumerate() {
-            let f = model(&self.name, x, &b);
-            r[i] = f.v - response(&self.name, *y);
-            jac[i * n..(i + 1) * n].copy_from_slice(&f.d[..n]);
-        }
+        let residual = |i: usize, b: &[Dual]| model(&self.name, &self.x[i], b) - response(&self.name, self.y[i]);
+        values_and_jacobian(p, residual, r, jac);
         true
     }
 }

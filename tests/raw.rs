@@ -66,11 +66,27 @@ fn listmode_demo_reduces_to_its_expected_output_and_every_event_is_tallied() {
 
 /// A tiny config with one detector, for hand-counted events.
 fn tiny(dir: &Path, raw_extra: &str, events_csv: &str) {
+    one_detector(
+        dir,
+        "{ name: elastic, excitation_mev: 0.0 }",
+        &format!(
+            "  gates:
+    resolution_mev: 0.1
+    windows: [{{ detector: A, state: elastic, window_mev: [20.0, 21.0], left_mev: [19.0, 19.5], right_mev: [21.5, 22.0] }}]
+{raw_extra}"
+        ),
+        events_csv,
+    );
+}
+
+/// A config with one detector A at 30° (0.01 MeV per channel), the given `states` (YAML
+/// list items) and the rest of its `raw:` section, run `t1` with its events.
+fn one_detector(dir: &Path, states: &str, raw_rest: &str, events_csv: &str) {
     std::fs::write(
         dir.join("experiment.yaml"),
         format!(
             "experiment: {{ name: tiny }}
-reaction: {{ beam: 4He, target: 58Ni, energy_mev: 24.0, beam_charge_state: 2, states: [{{ name: elastic, excitation_mev: 0.0 }}] }}
+reaction: {{ beam: 4He, target: 58Ni, energy_mev: 24.0, beam_charge_state: 2, states: [{states}] }}
 target: {{ areal_density_ug_cm2: 210.0, molar_mass_g_mol: 57.9353 }}
 detectors:
   - {{ id: A, theta_lab_deg: 30.0, distance_mm: 200.0, aperture: {{ shape: circle, radius_mm: 2.5 }} }}
@@ -82,10 +98,7 @@ raw:
   overflow_channel: 4096
   calibration:
     A: {{ offset_mev: 0.0, gain_mev_per_channel: 0.01 }}
-  gates:
-    resolution_mev: 0.1
-    windows: [{{ detector: A, state: elastic, window_mev: [20.0, 21.0], left_mev: [19.0, 19.5], right_mev: [21.5, 22.0] }}]
-{raw_extra}"
+{raw_rest}"
         ),
     )
     .expect("config");
@@ -247,6 +260,52 @@ fn peak_fit_background_agrees_with_side_bands_on_the_demo() {
     assert!((a - b).abs() < 3.0 * ea.hypot(eb), "side bands {a} ± {ea}, peak fit {b} ± {eb}");
     let fits = &raw_json(tmp.path(), "0201")["peak_fits"];
     assert!(fits.as_array().is_some_and(|f| !f.is_empty()), "{fits}");
+}
+
+/// Issue 11, defect 1: a detector with five states and a peak-fit background is a fit of
+/// 17 parameters, more than the dual numbers held; `reduce` panicked before any run was
+/// written. Five Gaussian peaks (σ = 0.08 MeV) on a flat background at the kinematic
+/// energies of five invented states, counts filled channel by channel.
+#[test]
+fn issue_11_five_states_in_one_peak_fit_reduce() {
+    let tmp = tempfile::tempdir().expect("scratch");
+    let excitations_mev = [0.0, 1.2, 2.4, 3.6, 4.8];
+    let mut states = String::new();
+    let mut events = String::from("det,adc,pu\n");
+    let (gain_mev, sigma_mev) = (0.01, 0.08); // one_detector's calibration; the resolution
+    let mut centres = Vec::new();
+    for (k, ex) in excitations_mev.iter().enumerate() {
+        states.push_str(&format!("{{ name: s{k}, excitation_mev: {ex} }}, "));
+        let kin = xsflow(
+            tmp.path(),
+            &["kinematics", "--beam", "4He", "--target", "58Ni", "--energy-mev", "24", "--angles", "30:30:1"]
+                .into_iter()
+                .chain(["--excitation-mev", &ex.to_string(), "--format", "json"])
+                .collect::<Vec<_>>(),
+        );
+        let rows: serde_json::Value = serde_json::from_slice(&kin.stdout).expect("kinematics json");
+        centres.push(rows[0]["energy_lab_mev"].as_f64().expect("energy"));
+    }
+    for ch in 1500..2500 {
+        let e = f64::from(ch) * gain_mev;
+        let peaks: f64 = centres.iter().map(|c| 150.0 * (-((e - c) / sigma_mev).powi(2) / 2.0).exp()).sum();
+        for _ in 0..(2.0 + peaks).round() as u32 {
+            events.push_str(&format!("A,{ch},0\n"));
+        }
+    }
+    let gates = format!("  gates:\n    resolution_mev: {sigma_mev}\n  background: peak_fit_linear\n");
+    one_detector(tmp.path(), &states, &gates, &events);
+    let out = reduce(tmp.path());
+    assert_eq!(out.status.code(), Some(0), "{}", text(&out));
+    let fits = &raw_json(tmp.path(), "t1")["peak_fits"];
+    assert_eq!(fits[0]["peaks"].as_array().map(Vec::len), Some(5), "{fits}");
+    assert_eq!(fits[0]["converged"], true, "{fits}");
+    // Each area is 150 · σ/Δx · √(2π) ≈ 3008 counts filled by rounding, within the fit's error.
+    let want = 150.0 * sigma_mev / gain_mev * (2.0 * std::f64::consts::PI).sqrt();
+    for peak in fits[0]["peaks"].as_array().expect("peaks") {
+        let (area, err) = (peak["area"].as_f64().expect("area"), peak["area_err"].as_f64().expect("error"));
+        assert!((area - want).abs() < 3.0 * err, "{area} ± {err} vs {want}: {fits}");
+    }
 }
 
 #[test]

@@ -660,10 +660,25 @@ pub struct PeakFitRecord {
     pub ndf: usize,
     /// Converged.
     pub converged: bool,
-    /// Per state: (state, centroid MeV, width MeV, area, area error).
-    pub peaks: Vec<(String, f64, f64, f64, f64)>,
+    /// Per state, its fitted peak.
+    pub peaks: Vec<FittedPeak>,
     /// Per state, the counts in the peak window.
     pub window_counts: Vec<f64>,
+}
+
+/// One state's peak in a peak fit.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct FittedPeak {
+    /// State name.
+    pub state: String,
+    /// Centroid, MeV.
+    pub centroid_mev: f64,
+    /// Width (standard deviation), MeV.
+    pub width_mev: f64,
+    /// Area in counts.
+    pub area: f64,
+    /// Its standard uncertainty.
+    pub area_err: f64,
 }
 
 /// What one run's raw data gave.
@@ -830,7 +845,7 @@ impl Accumulator<'_> {
             let fitted = match plan.config.background {
                 BackgroundMethod::SideBands => None,
                 m => match fit_detector(det, m, n_ch, &spectrum, plan.config.gates.resolution_mev) {
-                    Ok(f) if f.converged && f.peaks.iter().all(|p| p.3 >= 0.0) => Some(f),
+                    Ok(f) if f.converged && f.peaks.iter().all(|p| p.area >= 0.0) => Some(f),
                     Ok(f) => {
                         warnings.push(format!(
                             "{}: the peak fit {} (χ² {:.1} for {} degrees of freedom); side bands used instead",
@@ -856,7 +871,8 @@ impl Accumulator<'_> {
                         // so that the later net-count error √(gross + σ_bg²) is σ_N (or √N
                         // when the fit's error is below Poisson's). The window sum is in the
                         // peak-fit record.
-                        let (n, e) = f.peaks.iter().find(|p| p.0 == g.state).map_or((0.0, 0.0), |p| (p.3, p.4));
+                        let (n, e) =
+                            f.peaks.iter().find(|p| p.state == g.state).map_or((0.0, 0.0), |p| (p.area, p.area_err));
                         (n, 0.0, (e * e - n).max(0.0).sqrt())
                     }
                     None => {
@@ -942,7 +958,13 @@ fn fit_detector(
             .gates
             .iter()
             .zip(&fit.peaks)
-            .map(|((_, g), p)| (g.state.clone(), p.centroid, p.width, p.area, p.area_err))
+            .map(|((_, g), p)| FittedPeak {
+                state: g.state.clone(),
+                centroid_mev: p.centroid,
+                width_mev: p.width,
+                area: p.area,
+                area_err: p.area_err,
+            })
             .collect(),
     })
 }

@@ -2,12 +2,45 @@
 //! respect to up to [`MAX_PARAMS`] parameters, carried through arithmetic and the elementary
 //! functions by the chain rule. Gives exact Jacobians for model functions written once,
 //! generically over [`Real`] (L. B. Rall, Automatic Differentiation: Techniques and
-//! Applications, Springer LNCS 120, 1981; common practice).
+//! Applications, Springer LNCS 120, 1981; common practice). Problems with more parameters
+//! than one gradient holds are differentiated in chunks ([`values_and_jacobian`]).
 
 use std::ops::{Add, Div, Mul, Neg, Sub};
 
-/// Largest number of parameters a gradient carries.
+/// Largest number of parameters one gradient carries; [`values_and_jacobian`] handles any
+/// number by seeding this many at a time.
 pub const MAX_PARAMS: usize = 12;
+
+/// Values f_i(p) and the Jacobian ∂f_i/∂p_j (row-major, `values.len()` × `p.len()`) of
+/// functions of any number of parameters, by forward mode in chunks: each pass seeds at most
+/// [`MAX_PARAMS`] parameters as [`Dual::param`] and holds the others constant, so the
+/// functions are evaluated ⌈n / MAX_PARAMS⌉ times (the "chunk mode" of forward
+/// differentiation: J. Revels, M. Lubin, T. Papamarkou, arXiv:1607.07892, 2016, section 3;
+/// common practice). `f(i, p)` is function i at the dual parameters `p`.
+///
+/// # Panics
+/// If `jac.len() != values.len() * p.len()` (a programming error).
+pub fn values_and_jacobian(p: &[f64], f: impl Fn(usize, &[Dual]) -> Dual, values: &mut [f64], jac: &mut [f64]) {
+    let n = p.len();
+    assert_eq!(jac.len(), values.len() * n, "the Jacobian is values × parameters");
+    if n == 0 {
+        values.iter_mut().enumerate().for_each(|(i, v)| *v = f(i, &[]).v);
+        return;
+    }
+    for start in (0..n).step_by(MAX_PARAMS) {
+        let width = MAX_PARAMS.min(n - start);
+        let seeded: Vec<Dual> = p
+            .iter()
+            .enumerate()
+            .map(|(j, v)| if (start..start + width).contains(&j) { Dual::param(*v, j - start) } else { Dual::cst(*v) })
+            .collect();
+        for (i, value) in values.iter_mut().enumerate() {
+            let y = f(i, &seeded);
+            *value = y.v;
+            jac[i * n + start..i * n + start + width].copy_from_slice(&y.d[..width]);
+        }
+    }
+}
 
 /// A number usable in a model: `f64`, or [`Dual`] to carry derivatives.
 pub trait Real:
@@ -227,5 +260,43 @@ mod tests {
         assert_relative_eq!(g.v, f(a, b), max_relative = 1e-15);
         assert_relative_eq!(g.d[0], (f(a + h, b) - f(a - h, b)) / (2.0 * h), max_relative = 1e-8);
         assert_relative_eq!(g.d[1], (f(a, b + h) - f(a, b - h)) / (2.0 * h), max_relative = 1e-8);
+    }
+
+    #[test]
+    fn jacobians_of_any_size_match_the_analytic_one() {
+        // f_i(p) = Σ_j (i + 1) p_j² + p_0 p_{n−1}: ∂f_i/∂p_j = 2 (i + 1) p_j + [j = 0] p_{n−1}
+        // + [j = n−1] p_0. Sizes below, at and across chunk boundaries; the derivatives of
+        // a polynomial are exact, up to round-off of the products (1e-14).
+        for n in [0, 1, MAX_PARAMS - 1, MAX_PARAMS, MAX_PARAMS + 1, 3 * MAX_PARAMS + 5] {
+            let p: Vec<f64> = (0..n).map(|j| 0.5 + j as f64 * 0.25).collect();
+            let f = |i: usize, q: &[Dual]| {
+                let mut y = Dual::cst(0.0);
+                for x in q {
+                    y = y + *x * *x * (i + 1) as f64;
+                }
+                if n > 0 {
+                    y = y + q[0] * q[n - 1];
+                }
+                y
+            };
+            let m = 3;
+            let (mut values, mut jac) = (vec![0.0; m], vec![f64::NAN; m * n]);
+            values_and_jacobian(&p, f, &mut values, &mut jac);
+            for i in 0..m {
+                let sum: f64 = p.iter().map(|x| x * x * (i + 1) as f64).sum();
+                let cross = if n > 0 { p[0] * p[n - 1] } else { 0.0 };
+                assert_relative_eq!(values[i], sum + cross, max_relative = 1e-14);
+                for j in 0..n {
+                    let mut want = 2.0 * (i + 1) as f64 * p[j];
+                    if j == 0 {
+                        want += p[n - 1];
+                    }
+                    if j == n - 1 {
+                        want += p[0];
+                    }
+                    assert_relative_eq!(jac[i * n + j], want, max_relative = 1e-14);
+                }
+            }
+        }
     }
 }

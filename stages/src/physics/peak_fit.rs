@@ -10,7 +10,7 @@
 //! the error from the covariance of (A_k, s_k) (linear propagation). Bin weights
 //! 1/max(n_i, 1) (Neyman's χ², with a floor for empty bins; common practice).
 
-use super::dual::{Dual, Real};
+use super::dual::{values_and_jacobian, Dual, Real};
 use super::least_squares::{inverse_normal_matrix, minimise, LmOptions, Residuals, Termination};
 
 /// The background under the peaks.
@@ -65,15 +65,8 @@ impl Residuals for Points<'_> {
         self.x.len()
     }
     fn eval(&self, p: &[f64], r: &mut [f64], jac: &mut [f64]) -> bool {
-        let n = p.len();
-        let d: Vec<Dual> = p.iter().enumerate().map(|(i, v)| Dual::param(*v, i)).collect();
-        for (i, ((x, y), s)) in self.x.iter().zip(self.y).zip(self.sigma).enumerate() {
-            let v = self.model.value(&d, *x);
-            r[i] = (v.v - y) / s;
-            for j in 0..n {
-                jac[i * n + j] = v.d[j] / s;
-            }
-        }
+        let residual = |i: usize, d: &[Dual]| (self.model.value(d, self.x[i]) - self.y[i]) / self.sigma[i];
+        values_and_jacobian(p, residual, r, jac);
         true
     }
 }
@@ -166,5 +159,29 @@ mod tests {
         assert!(fit.termination.converged(), "{:?}", fit.termination);
         assert_relative_eq!(fit.peaks[0].area, 200.0 * 2.0 * (2.0 * std::f64::consts::PI).sqrt(), max_relative = 1e-9);
         assert_relative_eq!(fit.peaks[0].centroid, 30.0, max_relative = 1e-9);
+    }
+
+    /// Issue 11, defect 1: five states in one region are 17 parameters, more than one dual
+    /// gradient holds; this panicked before the Jacobian was built in chunks.
+    #[test]
+    fn issue_11_five_peaks_fit_with_more_parameters_than_one_gradient_holds() {
+        let model = PeakModel { background: Background::Exponential, peaks: 5 };
+        assert!(model.n_params() > crate::physics::dual::MAX_PARAMS);
+        let x: Vec<f64> = (0..200).map(f64::from).collect();
+        let mut truth = vec![40.0, 0.01];
+        for k in 0..5 {
+            truth.extend([300.0 + 50.0 * f64::from(k), 20.0 + 38.0 * f64::from(k), 3.0]);
+        }
+        let y: Vec<f64> = x.iter().map(|x| model.value(&truth, *x)).collect();
+        let sigma: Vec<f64> = y.iter().map(|y| y.max(1.0).sqrt()).collect();
+        let start: Vec<f64> =
+            truth.iter().enumerate().map(|(j, v)| if j % 3 == 0 { v + 1.0 } else { v * 0.9 }).collect();
+        let fit = fit_peaks(&model, &x, &y, &sigma, &start, 1.0);
+        assert!(fit.termination.converged(), "{:?}", fit.termination);
+        // Noiseless data: the fit returns the truth to the minimiser's tolerance.
+        for (k, peak) in fit.peaks.iter().enumerate() {
+            let want = truth[2 + 3 * k] * truth[4 + 3 * k] * (2.0 * std::f64::consts::PI).sqrt();
+            assert_relative_eq!(peak.area, want, max_relative = 1e-8);
+        }
     }
 }
