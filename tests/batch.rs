@@ -4,7 +4,7 @@
 
 use std::path::Path;
 
-use crate::common::{demo_copy, demo_dir, edit, text, xsflow};
+use crate::common::{demo_copy, demo_dir, edit, text, xsflow, xsflow_with_env};
 
 fn batch(dir: &Path, extra: &[&str]) -> std::process::Output {
     let mut args = vec!["batch", "experiment.yaml", "--out", "out"];
@@ -71,6 +71,34 @@ fn a_failed_run_is_catalogued_with_its_reason_and_picked_up_once_fixed() {
         .map(|r| (r["run"].as_str().unwrap_or_default(), r["status"].as_str().unwrap_or_default()))
         .collect();
     assert_eq!(status, [("0101", "skipped"), ("0102", "skipped"), ("0103", "ok"), ("0104", "skipped")], "{all}");
+}
+
+/// Issue 11, defect 1: a panic inside one run (a peak fit with more parameters than the
+/// dual numbers held) stopped the whole batch. A debug build panics on purpose in the run
+/// named by XSFLOW_TEST_PANIC_RUN; that run fails with the message, the others finish.
+#[test]
+fn issue_11_a_panic_in_one_run_fails_that_run_and_the_others_finish() {
+    let tmp = demo_copy();
+    let args = ["batch", "experiment.yaml", "--out", "out", "--jobs", "2"];
+    let out = xsflow_with_env(tmp.path(), &args, &[("XSFLOW_TEST_PANIC_RUN", "0102")]);
+    assert_eq!(out.status.code(), Some(1), "{}", text(&out));
+    assert!(summary_line(&out).starts_with("batch: 3 ok, 1 failed, 0 skipped"), "{}", text(&out));
+    let list = xsflow(tmp.path(), &["runs", "out", "--failed", "--format", "json"]);
+    let failed: serde_json::Value = serde_json::from_slice(&list.stdout).expect("json");
+    assert_eq!(failed[0]["run"], "0102", "{failed}");
+    assert!(failed[0]["error"].as_str().is_some_and(|e| e.contains("internal error")), "{failed}");
+    for run in ["0101", "0103", "0104"] {
+        assert!(tmp.path().join("out").join(run).join("cross_sections.csv").is_file(), "{run}");
+    }
+    assert!(!tmp.path().join("out/0102").exists(), "the panicked run wrote outputs");
+    // `reduce` likewise goes on with the other runs.
+    let reduce = xsflow_with_env(
+        tmp.path(),
+        &["reduce", "experiment.yaml", "--out", "again"],
+        &[("XSFLOW_TEST_PANIC_RUN", "0101")],
+    );
+    assert_eq!(reduce.status.code(), Some(1), "{}", text(&reduce));
+    assert!(text(&reduce).contains("3 run(s) reduced, 1 failed"), "{}", text(&reduce));
 }
 
 #[test]

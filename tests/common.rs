@@ -16,11 +16,17 @@ pub fn demo_dir() -> PathBuf {
 
 /// Run `xsflow` with `args` in `dir`, with a fixed record time so outputs are reproducible.
 pub fn xsflow(dir: &Path, args: &[&str]) -> Output {
+    xsflow_with_env(dir, args, &[])
+}
+
+/// [`xsflow`] with extra environment variables.
+pub fn xsflow_with_env(dir: &Path, args: &[&str], env: &[(&str, &str)]) -> Output {
     Command::new(env!("CARGO_BIN_EXE_xsflow"))
         .args(args)
         .current_dir(dir)
         .env("SOURCE_DATE_EPOCH", "1764633600")
         .env_remove("RUST_LOG")
+        .envs(env.iter().copied())
         .output()
         .expect("the xsflow binary runs")
 }

@@ -92,14 +92,39 @@ fn reduce_raw(plan: &Plan, run: &LoadedRun) -> Result<(DataFrame, RawOutputs), V
 /// A record or data file that changed or disappeared meanwhile; otherwise every problem of
 /// the yields table, or the first stage that fails; located.
 pub fn reduce_run(plan: &Plan, run: &LoadedRun) -> Result<Reduced, Vec<Diagnostic>> {
-    let result = read_and_reduce(plan, run);
+    let result = without_panics(&run.record_path, || read_and_reduce(plan, run)).map_err(|d| vec![d]).and_then(|r| r);
     // A file that changed since it was hashed explains any failure, and would make a
     // success disagree with the hashes recorded in its provenance and the catalogue.
     run.check_unchanged().map_err(|d| vec![d])?;
     result
 }
 
+/// Environment variable that makes the run of that name panic, in debug builds only: the
+/// tests use it to show that a panic fails one run and the others go on.
+pub const PANIC_RUN_ENV: &str = "XSFLOW_TEST_PANIC_RUN";
+
+/// Run `work`, turning a panic (a defect of xsflow, never the user's input) into a failure
+/// of that one run or fit, reported against `file` with the panic's message, so that the
+/// other runs of a batch still finish. The panic's default report on stderr stays.
+///
+/// # Errors
+/// The panic's message.
+pub fn without_panics<T>(file: &Path, work: impl FnOnce() -> T) -> Result<T, Diagnostic> {
+    std::panic::catch_unwind(std::panic::AssertUnwindSafe(work)).map_err(|payload| {
+        let message = payload
+            .downcast_ref::<&str>()
+            .map(|s| (*s).to_string())
+            .or_else(|| payload.downcast_ref::<String>().cloned())
+            .unwrap_or_else(|| "no message".into());
+        Diagnostic::new(file, "", format!("internal error (a defect of xsflow, not of this input): {message}"))
+            .with_help("the other runs went on; please report this with the run's files")
+    })
+}
+
 fn read_and_reduce(plan: &Plan, run: &LoadedRun) -> Result<Reduced, Vec<Diagnostic>> {
+    if cfg!(debug_assertions) && std::env::var(PANIC_RUN_ENV).is_ok_and(|r| r == run.record.run.0) {
+        panic!("{PANIC_RUN_ENV} asked run {} to panic", run.record.run.0);
+    }
     let yields = &run.yields_path;
     let sha = run.data_hash().map_err(|e| {
         let what = match e.kind() {
@@ -420,7 +445,8 @@ pub fn run_fits(
 ) {
     for f in &plan.fits {
         let _span = info_span!("fit", fit = %f.name).entered();
-        match run_fit(plan, f, tables, out_dir) {
+        let result = without_panics(&f.loaded.path, || run_fit(plan, f, tables, out_dir)).and_then(|r| r);
+        match result {
             Ok(true) => summary.fits_ok += 1,
             Ok(false) => {
                 summary.fits_failed += 1;
