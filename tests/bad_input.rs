@@ -148,6 +148,17 @@ fn empty_count_cell_is_refused() {
     );
 }
 
+/// Issue 11, defect 2: a branch other than 1 or 2 was read as 1 or 2 without a word.
+#[test]
+fn issue_11_a_branch_other_than_1_or_2_is_refused_with_its_line() {
+    assert_run_error(
+        "run0101.yields.csv",
+        "peak_energy_lab_mev",
+        "branch",
+        &["run0101.yields.csv:2:1 data row 1, column `branch`: found 23.9566, expected branch 1 (the higher-energy solution) or 2"],
+    );
+}
+
 #[test]
 fn detector_unknown_to_the_config_is_refused() {
     assert_run_error(

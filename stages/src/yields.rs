@@ -47,6 +47,16 @@ pub const ADDED_COLUMNS: [&str; 3] = ["run", "theta_lab_deg", "theta_lab_err_deg
 /// At most this many bad values are listed for one table; the rest are counted.
 const MAX_LISTED: usize = 20;
 
+/// What a finite value of the numeric yields column `column` must be, when `x` is not
+/// that; `None` when it is.
+fn value_problem(column: &str, x: f64) -> Option<&'static str> {
+    match column {
+        "peak_energy_lab_mev" => (x <= 0.0).then_some("an energy > 0 MeV"),
+        "branch" => (![1.0, 2.0].contains(&x)).then_some("branch 1 (the higher-energy solution) or 2"),
+        _ => (x < 0.0).then_some("a count >= 0"),
+    }
+}
+
 /// A checked yields table and the notes that did not stop it.
 #[derive(Debug)]
 pub struct Prepared {
@@ -60,7 +70,8 @@ pub struct Prepared {
 ///
 /// # Errors
 /// Every problem found (missing columns listing the columns found, unknown detectors,
-/// empty, negative or non-finite counts, duplicate detector × state rows), up to 20 listed.
+/// empty, negative or non-finite counts, peak energies <= 0, branches other than 1 or 2,
+/// duplicate detector × state rows), up to 20 listed.
 pub fn prepare(table: &DataFrame, setup: &Setup, run: &str) -> Result<Prepared, Vec<StageError>> {
     let missing: Vec<StageError> = REQUIRED_COLUMNS
         .iter()
@@ -79,14 +90,13 @@ pub fn prepare(table: &DataFrame, setup: &Setup, run: &str) -> Result<Prepared, 
         if table.column(name).is_ok() {
             match f64_values(table, name) {
                 Ok(v) => {
-                    let strictly = *name == "energy_lab_mev";
                     for (i, x) in v.iter().enumerate() {
-                        if *x < 0.0 || (strictly && *x <= 0.0) {
+                        if let Some(expected) = value_problem(name, *x) {
                             errors.push(StageError::BadValue {
                                 row: i + 1,
                                 column: (*name).to_string(),
                                 value: x.to_string(),
-                                expected: if strictly { "an energy > 0 MeV" } else { "a count >= 0" }.into(),
+                                expected: expected.into(),
                             });
                         }
                     }
@@ -166,4 +176,34 @@ pub fn prepare(table: &DataFrame, setup: &Setup, run: &str) -> Result<Prepared, 
     let ignored_columns =
         table.get_column_names().iter().map(|c| c.to_string()).filter(|c| !known.contains(&c.as_str())).collect();
     Ok(Prepared { table: table_out, ignored_columns })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn values_are_checked_by_column() {
+        // (column, value, accepted)
+        let cases = [
+            ("counts_gross", 0.0, true),
+            ("counts_gross", 12.5, true),
+            ("counts_gross", -1.0, false),
+            ("counts_background", -0.5, false),
+            ("counts_background_err", 3.0, true),
+            ("peak_energy_lab_mev", 21.3, true),
+            ("peak_energy_lab_mev", 0.0, false),
+            ("peak_energy_lab_mev", -2.0, false),
+            ("branch", 1.0, true),
+            ("branch", 2.0, true),
+            // Issue 11, defect 2: these were read as branch 1 and 2 without a word.
+            ("branch", 0.0, false),
+            ("branch", 7.0, false),
+            ("branch", 1.5, false),
+            ("branch", -1.0, false),
+        ];
+        for (column, x, accepted) in cases {
+            assert_eq!(value_problem(column, x).is_none(), accepted, "{column} = {x}");
+        }
+    }
 }
