@@ -98,7 +98,8 @@ pub struct Point {
 /// covariance matrix (row-major).
 ///
 /// # Errors
-/// A row with a non-finite value or error.
+/// A row with a non-finite value or error, or a statistical error that is not > 0 (every
+/// counted row has one, even with zero counts: see `subtract_background::net_counts`).
 pub fn combine(rows: &[Row], tolerance_deg: f64) -> Result<(Vec<Point>, Vec<f64>), String> {
     let mut order: Vec<usize> = (0..rows.len()).collect();
     order.sort_by(|&a, &b| {
@@ -109,6 +110,12 @@ pub fn combine(rows: &[Row], tolerance_deg: f64) -> Result<(Vec<Point>, Vec<f64>
         let r = &rows[i];
         if !(r.stat.is_finite() && r.sys.is_finite() && r.y.is_finite()) {
             return Err(format!("{}/{} ({}): a non-finite value or error", r.run, r.detector, r.state));
+        }
+        if r.stat <= 0.0 {
+            return Err(format!(
+                "{}/{} ({}): statistical error {} mb/sr; a point needs one > 0 to be weighted",
+                r.run, r.detector, r.state, r.stat
+            ));
         }
         match groups.last_mut() {
             Some(g)
@@ -212,19 +219,9 @@ fn row_coefficients(rows: &[Row], group: &[usize]) -> Vec<f64> {
     c
 }
 
-/// Weights 1/v_i. A zero variance (a row with no counts has no counting error) takes the
-/// smallest positive variance of the others, so that it still pulls the mean towards
-/// itself; all zero gives equal weights.
+/// Weights 1/v_i; every v_i > 0 ([`combine`] refuses a row without a statistical error).
 fn inverse_variance_weights(variances: &[f64]) -> Vec<f64> {
-    let floor = variances.iter().copied().filter(|v| *v > 0.0).fold(f64::INFINITY, f64::min);
-    variances
-        .iter()
-        .map(|&v| match (v > 0.0, floor.is_finite()) {
-            (true, _) => 1.0 / v,
-            (false, true) => 1.0 / floor,
-            (false, false) => 1.0,
-        })
-        .collect()
+    variances.iter().map(|v| 1.0 / v).collect()
 }
 
 #[cfg(test)]
@@ -255,6 +252,17 @@ mod tests {
     /// `at`, with the normalisation errors left out (set to zero).
     fn plain_at(detector: &str, sys: f64, r: Row) -> Row {
         Row { norm_rel_err: 0.0, shared_rel_err: 0.0, ..at(detector, sys, r) }
+    }
+
+    /// Issue 11, defect 4: a row without a statistical error used to take the smallest
+    /// variance of the others; every counted row now has one, so none is refused.
+    #[test]
+    fn issue_11_a_row_without_a_statistical_error_is_refused() {
+        for stat in [0.0, -1.0] {
+            let rows = [row("a", 30.0, 10.0, 1.0), row("b", 30.0, 0.0, stat)];
+            let e = combine(&rows, 0.05).expect_err("refused");
+            assert!(e.contains("b/D1 (elastic): statistical error"), "{e}");
+        }
     }
 
     #[test]

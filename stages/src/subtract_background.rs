@@ -42,13 +42,21 @@ impl SubtractBackgroundConfig {
     }
 }
 
+/// Standard uncertainty of zero observed counts: the one-sided 84.13 % (1σ) upper limit of
+/// a Poisson mean when none is seen, λ_u = −ln(1 − 0.8413) = 1.841 (N. Gehrels, Astrophys.
+/// J. 303 (1986) 336, Table 1, n = 0, S = 1). Zero counts do not mean a zero rate known
+/// exactly: √0 = 0 would give such a point infinite weight in every mean and χ².
+pub const ZERO_COUNTS_ERR: f64 = 1.841;
+
 /// Net counts and their standard uncertainty:
-///     Y = G - B,   u(Y)² = G + u(B)²
-/// G: gross counts in the peak window (Poisson, u(G)² = G), B: background under the peak
-/// with its standard uncertainty u(B) (for Poisson side-band counts u(B)² = B). Holds for
-/// independent G and B (JCGM 100:2008 Eq. 10; Poisson variance, common practice).
+///     Y = G − B,   u(Y)² = u(G)² + u(B)²,   u(G)² = G (Poisson) for G > 0,
+///     u(0) = 1.841 ([`ZERO_COUNTS_ERR`], the Poisson 1σ upper limit for none seen)
+/// G: gross counts in the peak window, B: background under the peak with its standard
+/// uncertainty u(B) (for Poisson side-band counts u(B)² = B). Holds for independent G and
+/// B (JCGM 100:2008 Eq. 10; Poisson variance, common practice; n = 0: Gehrels 1986).
 pub fn net_counts(gross: f64, background: f64, background_err: f64) -> (f64, f64) {
-    (gross - background, (gross + background_err * background_err).sqrt())
+    let gross_var = if gross > 0.0 { gross } else { ZERO_COUNTS_ERR * ZERO_COUNTS_ERR };
+    (gross - background, (gross_var + background_err * background_err).sqrt())
 }
 
 impl Stage for SubtractBackground {
@@ -79,5 +87,38 @@ impl Stage for SubtractBackground {
         let (net, err): (Vec<f64>, Vec<f64>) =
             gross.iter().zip(&background).zip(&background_err).map(|((g, b), u)| net_counts(*g, *b, *u)).unzip();
         with_f64_columns(table, vec![("counts_net", net), ("counts_net_err", err)])
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use approx::assert_relative_eq;
+
+    #[test]
+    fn net_counts_and_their_errors() {
+        // (gross, background, background_err, net, net_err); worked by hand.
+        let cases = [
+            (100.0, 0.0, 0.0, 100.0, 10.0),
+            (100.0, 36.0, 6.0, 64.0, 136f64.sqrt()),
+            (1.0, 0.0, 0.0, 1.0, 1.0),
+            // Issue 11, defect 4: zero counts were 0 ± 0.
+            (0.0, 0.0, 0.0, 0.0, ZERO_COUNTS_ERR),
+            (0.0, 4.0, 2.0, -4.0, (ZERO_COUNTS_ERR * ZERO_COUNTS_ERR + 4.0).sqrt()),
+        ];
+        for (g, b, ub, net, err) in cases {
+            let (y, u) = net_counts(g, b, ub);
+            assert_relative_eq!(y, net, max_relative = 1e-15);
+            assert_relative_eq!(u, err, max_relative = 1e-15);
+        }
+    }
+
+    #[test]
+    fn zero_counts_error_is_the_poisson_one_sigma_upper_limit() {
+        // P(0 | λ_u) = e^{−λ_u} = 1 − Φ(1) with Φ the standard normal distribution (statrs):
+        // Gehrels (1986) Eq. (1) with n = 0; his Table 1 gives 1.841 to four figures.
+        use statrs::distribution::{ContinuousCDF, Normal};
+        let phi1 = Normal::standard().cdf(1.0);
+        assert_relative_eq!(ZERO_COUNTS_ERR, -(1.0 - phi1).ln(), max_relative = 1e-3);
     }
 }
