@@ -122,7 +122,7 @@ pub fn provenance_json(loaded: &LoadedFit, data_files: &[PathBuf], base: &Path) 
 /// # Errors
 /// A table without one of the columns, or columns of different types.
 pub fn stack(tables: Vec<DataFrame>) -> Result<DataFrame, String> {
-    let mut names: Vec<&str> = vec!["run", "detector", "members"];
+    let mut names: Vec<&str> = vec!["run", "detector", "members", stages::fit::RUTHERFORD_CONVENTION];
     names.extend(stages::fit::FIT_COLUMNS);
     let mut out: Option<DataFrame> = None;
     for t in tables {
@@ -182,11 +182,16 @@ pub fn run(loaded: &LoadedFit, table: &DataFrame, state: &str) -> Result<FitOutp
     let (min, max) = loaded.fit.angle_range_deg();
     let (lo, hi) = ((first - 2.0).max(min), (last + 2.0).min(max));
     let angles: Vec<f64> = (0..).map(|i| lo + 0.5 * f64::from(i)).take_while(|a| *a <= hi).collect();
-    let rows = loaded.fit.curve(&values, nu, &angles)?;
+    let rows = loaded.fit.curve(&values, nu, &angles, data.rutherford_convention)?;
+    let has_ratio = rows.iter().any(|r| r.2.is_some());
     let curve = DataFrame::new_infer_height(vec![
         Column::new("theta_cm_deg".into(), rows.iter().map(|r| r.0).collect::<Vec<_>>()),
         Column::new("dsdo_cm_mb_sr".into(), rows.iter().map(|r| r.1).collect::<Vec<_>>()),
         Column::new("ratio_rutherford".into(), rows.iter().map(|r| r.2).collect::<Vec<Option<f64>>>()),
+        Column::new(
+            stages::fit::RUTHERFORD_CONVENTION.into(),
+            rows.iter().map(|_| has_ratio.then_some(data.rutherford_convention.name())).collect::<Vec<_>>(),
+        ),
     ])
     .map_err(|e| e.to_string())?;
     Ok(FitOutput { report, curve })

@@ -107,6 +107,7 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
         norm_rel_err: vec![0.0; 60],
         labels: (0..60).map(|i| format!("p{i}")).collect(),
         theta_cm_deg: theta,
+        rutherford_convention: Default::default(),
     };
     let config: FitModelConfig = serde_yaml::from_str(FIT)?;
     let fit = config.build(None).map_err(|p| format!("{p:?}"))?;

@@ -84,4 +84,8 @@ pub struct CrossSectionRow {
     pub dsdo_rutherford_cm_mb_sr: Option<f64>,
     /// dσ/dΩ_cm over Rutherford (elastic states; empty otherwise).
     pub ratio_rutherford: Option<f64>,
+    /// Which Rutherford cross section the two columns above use: `relativistic` or
+    /// `non_relativistic` (the `transform_to_cm` stage's `rutherford`); a fit's curve
+    /// divides by the same one.
+    pub rutherford_convention: Option<String>,
 }

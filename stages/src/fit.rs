@@ -21,13 +21,14 @@ use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 
 use crate::physics::coulomb::legendre;
+use crate::physics::kinematics::{Channel, Masses};
 use crate::physics::least_squares::qr_solve;
 use crate::physics::model_fit::{
     self, FitError, FitOptions, Measured, Minimum, Normalisation, Parameter, Profile, Shape,
 };
 use crate::physics::nuclide::Nuclide;
 use crate::physics::optical::{self, ElasticChannel, Numerics, OpticalPotential, WoodsSaxon};
-use crate::physics::rutherford;
+use crate::physics::rutherford::Convention;
 use crate::problem::Checks;
 use crate::table;
 use crate::theory::{NumericsConfig, PotentialConfig, RadiusConvention, TermConfig, TheoryReaction};
@@ -220,11 +221,49 @@ pub struct FitData {
     pub norm_rel_err: Vec<f64>,
     /// Row labels `run/detector`.
     pub labels: Vec<String>,
+    /// The Rutherford cross section the table's `ratio_rutherford` divides by (its
+    /// `rutherford_convention` column; relativistic, the default, when it has none): a
+    /// Rutherford model and every curve's ratio use the same one.
+    pub rutherford_convention: Convention,
 }
 
 /// Columns the fit reads from the reduced table.
 pub const FIT_COLUMNS: [&str; 6] =
     ["state", "theta_cm_deg", "dsdo_cm_mb_sr", "stat_err_mb_sr", "sys_err_mb_sr", "norm_rel_err"];
+
+/// The column naming the Rutherford convention of `ratio_rutherford`; read by the fit when
+/// present.
+pub const RUTHERFORD_CONVENTION: &str = "rutherford_convention";
+
+/// The Rutherford convention named in a reduced table's `rutherford_convention` column, or
+/// the default (relativistic) when it has none.
+///
+/// # Errors
+/// A name that is not a convention, or two conventions in one table (row numbers 1-based).
+fn table_convention(table: &DataFrame) -> Result<Convention, StageError> {
+    if table.column(RUTHERFORD_CONVENTION).is_err() {
+        return Ok(Convention::default());
+    }
+    let names = table::str_values(table, RUTHERFORD_CONVENTION)?;
+    let mut found: Option<Convention> = None;
+    for (i, name) in names.iter().enumerate() {
+        let bad = |expected: String| StageError::BadValue {
+            row: i + 1,
+            column: RUTHERFORD_CONVENTION.into(),
+            value: name.clone(),
+            expected,
+        };
+        let c = Convention::from_name(name).ok_or_else(|| bad(Convention::ALL.map(Convention::name).join(" or ")))?;
+        if let Some(first) = found.filter(|f| *f != c) {
+            return Err(bad(format!(
+                "{} as in the rows before (one `rutherford` setting for every run)",
+                first.name()
+            )));
+        }
+        found = Some(c);
+    }
+    Ok(found.unwrap_or_default())
+}
 
 impl FitData {
     /// The rows of `state` from a reduced table (several runs may be stacked).
@@ -302,6 +341,7 @@ impl FitData {
             err_mb_sr: rows.iter().map(|r| r.2).collect(),
             norm_rel_err: rows.iter().map(|r| r.3).collect(),
             labels: rows.into_iter().map(|r| r.4).collect(),
+            rutherford_convention: table_convention(table)?,
         })
     }
 }
@@ -434,6 +474,7 @@ pub struct NumericsReport {
 pub struct Fit {
     range_deg: Option<[f64; 2]>,
     model: Model,
+    coulomb: Option<PointCoulomb>,
     params: Vec<Parameter>,
     starts: Vec<Vec<f64>>,
     mode: NormalisationMode,
@@ -442,8 +483,31 @@ pub struct Fit {
     options: FitOptions,
 }
 
+/// The point-Coulomb scattering of a fitted reaction's entrance channel, which a curve's
+/// `ratio_rutherford` divides by, in the same convention as the reduced cross sections.
+#[derive(Debug, Clone, Copy)]
+struct PointCoulomb {
+    z1: u32,
+    z2: u32,
+    channel: Channel,
+}
+
+/// The entrance channel of a charged reaction, for its Rutherford cross section; `None` for
+/// a neutral beam or target.
+fn point_coulomb(reaction: &TheoryReaction) -> Result<Option<PointCoulomb>, Vec<Problem>> {
+    let (_, beam, target) = reaction.channel()?;
+    if beam.z == 0 || target.z == 0 {
+        return Ok(None);
+    }
+    let (ma, mt) = (beam.nuclear_mass_mev(), target.nuclear_mass_mev());
+    let masses = Masses { beam_mev: ma, target_mev: mt, ejectile_mev: ma, recoil_mev: mt };
+    let channel = Channel::new(masses, reaction.energy_mev, 0.0)
+        .map_err(|e| vec![Problem::new("reaction.energy_mev", reaction.energy_mev, e.to_string())])?;
+    Ok(Some(PointCoulomb { z1: beam.z, z2: target.z, channel }))
+}
+
 enum Model {
-    Rutherford { z1: u32, z2: u32, e_cm_mev: f64 },
+    Rutherford(PointCoulomb),
     Legendre { order: usize },
     Curve(CurveTable),
     Optical(Box<OpticalModel>),
@@ -454,7 +518,6 @@ struct OpticalModel {
     potential: PotentialConfig,
     channel: ElasticChannel,
     a13: f64,
-    z: (u32, u32),
     keys: Vec<usize>,
     numerics: Numerics,
 }
@@ -497,6 +560,8 @@ impl OpticalModel {
 /// A model at fixed data angles, as a [`Shape`].
 struct AtAngles<'a> {
     model: &'a Model,
+    /// The Rutherford convention of the data.
+    convention: Convention,
     theta_rad: Vec<f64>,
     /// Optical numerics override (held fixed during one minimisation).
     numerics: Option<Numerics>,
@@ -509,9 +574,9 @@ impl Shape for AtAngles<'_> {
     }
     fn values(&self, p: &[f64], out: &mut [f64]) -> Result<(), String> {
         match self.model {
-            Model::Rutherford { z1, z2, e_cm_mev } => {
+            Model::Rutherford(c) => {
                 for (o, t) in out.iter_mut().zip(&self.theta_rad) {
-                    *o = rutherford::cm_nonrel_mb_sr(*z1, *z2, *e_cm_mev, *t);
+                    *o = self.convention.cm_mb_sr(c.z1, c.z2, &c.channel, *t);
                 }
             }
             Model::Legendre { order } => {
@@ -573,14 +638,23 @@ impl FitModelConfig {
         if let Some(w) = s.normalisation_rel_err {
             c.require(w.is_finite() && w > 0.0, "fit.normalisation_rel_err", w, "a relative error > 0");
         }
-        let (model, params, starts, default_mode) = match self {
-            FitModelConfig::Rutherford { reaction, .. } => {
-                let (ch, b, t) = reaction.channel()?;
-                if b.z == 0 || t.z == 0 {
-                    c.require(false, "reaction", "a neutral particle", "charged beam and target for Rutherford");
-                }
-                (Model::Rutherford { z1: b.z, z2: t.z, e_cm_mev: ch.e_cm_mev }, vec![], vec![], NormalisationMode::Free)
+        let coulomb = match self {
+            FitModelConfig::Rutherford { reaction, .. } | FitModelConfig::Optical { reaction, .. } => {
+                point_coulomb(reaction)?
             }
+            FitModelConfig::Legendre { .. } | FitModelConfig::Curve { .. } => None,
+        };
+        let (model, params, starts, default_mode) = match self {
+            FitModelConfig::Rutherford { .. } => match coulomb {
+                Some(pc) => (Model::Rutherford(pc), vec![], vec![], NormalisationMode::Free),
+                None => {
+                    return Err(vec![Problem::new(
+                        "reaction",
+                        "a neutral particle",
+                        "charged beam and target for Rutherford",
+                    )])
+                }
+            },
             FitModelConfig::Legendre { order, .. } => {
                 c.require(*order <= 60, "order", order, "an order from 0 to 60");
                 let params = (0..=*order)
@@ -632,6 +706,7 @@ impl FitModelConfig {
         Ok(Fit {
             range_deg: s.theta_cm_range_deg,
             model,
+            coulomb,
             params,
             starts,
             mode,
@@ -737,11 +812,7 @@ fn optical_parts(
         RadiusConvention::Sum => f64::from(beam.a).cbrt() + f64::from(target.a).cbrt(),
     };
     let numerics = numerics.to_numerics();
-    Ok((
-        OpticalModel { potential: potential.clone(), channel, a13, z: (beam.z, target.z), keys, numerics },
-        params,
-        starts,
-    ))
+    Ok((OpticalModel { potential: potential.clone(), channel, a13, keys, numerics }, params, starts))
 }
 
 /// Why a fit gave no result.
@@ -825,6 +896,7 @@ impl Fit {
                     err_mb_sr: pick(&data.err_mb_sr),
                     norm_rel_err: pick(&data.norm_rel_err),
                     labels: keep.iter().map(|&i| data.labels[i].clone()).collect(),
+                    rutherford_convention: data.rutherford_convention,
                 };
                 &selected
             }
@@ -853,7 +925,12 @@ impl Fit {
         if let Model::Optical(om) = &self.model {
             numerics = Some(fixed_numerics(om, &params.iter().map(|p| p.start).collect::<Vec<_>>())?);
         }
-        let shape = AtAngles { model: &self.model, theta_rad: theta_rad.clone(), numerics };
+        let shape = AtAngles {
+            model: &self.model,
+            convention: data.rutherford_convention,
+            theta_rad: theta_rad.clone(),
+            numerics,
+        };
         let starts =
             if self.starts.is_empty() { vec![params.iter().map(|p| p.start).collect()] } else { self.starts.clone() };
         let mut minima = model_fit::fit_starts(&shape, &params, &starts, &measured, norm, &self.options)?;
@@ -958,26 +1035,28 @@ impl Fit {
     }
 
     /// The best curve (normalisation applied) at CM angles in degrees, for shape parameters
-    /// `values` and normalisation `nu`; with the ratio to Rutherford where the model knows
-    /// the reaction.
+    /// `values` and normalisation `nu`; with the ratio to the Rutherford cross section of
+    /// `convention` where the model knows a charged reaction (the convention of the reduced
+    /// table, so that data and curve have the same ratio).
     ///
     /// # Errors
     /// The model fails at these parameters.
-    pub fn curve(&self, values: &[f64], nu: f64, angles_deg: &[f64]) -> Result<Vec<(f64, f64, Option<f64>)>, String> {
+    pub fn curve(
+        &self,
+        values: &[f64],
+        nu: f64,
+        angles_deg: &[f64],
+        convention: Convention,
+    ) -> Result<Vec<(f64, f64, Option<f64>)>, String> {
         let shape = AtAngles {
             model: &self.model,
+            convention,
             theta_rad: angles_deg.iter().map(|d| d.to_radians()).collect(),
             numerics: None,
         };
         let mut out = vec![0.0; angles_deg.len()];
         shape.values(values, &mut out)?;
-        let ruth = |t: f64| match &self.model {
-            Model::Rutherford { z1, z2, e_cm_mev } => Some(rutherford::cm_nonrel_mb_sr(*z1, *z2, *e_cm_mev, t)),
-            Model::Optical(om) if om.z.0 > 0 && om.z.1 > 0 => {
-                Some(rutherford::cm_nonrel_mb_sr(om.z.0, om.z.1, om.channel.e_cm_mev, t))
-            }
-            _ => None,
-        };
+        let ruth = |t: f64| self.coulomb.map(|c| convention.cm_mb_sr(c.z1, c.z2, &c.channel, t));
         Ok(angles_deg.iter().zip(out).map(|(d, v)| (*d, nu * v, ruth(d.to_radians()).map(|r| nu * v / r))).collect())
     }
 }

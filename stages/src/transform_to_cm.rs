@@ -94,7 +94,14 @@ impl Stage for TransformToCm {
     }
     fn adds(&self) -> Vec<&'static str> {
         if self.rutherford.is_some() {
-            vec!["dsdo_cm_mb_sr", "stat_err_mb_sr", "sys_err_mb_sr", "dsdo_rutherford_cm_mb_sr", "ratio_rutherford"]
+            vec![
+                "dsdo_cm_mb_sr",
+                "stat_err_mb_sr",
+                "sys_err_mb_sr",
+                "dsdo_rutherford_cm_mb_sr",
+                "ratio_rutherford",
+                "rutherford_convention",
+            ]
         } else {
             vec!["dsdo_cm_mb_sr", "stat_err_mb_sr", "sys_err_mb_sr"]
         }
@@ -120,15 +127,17 @@ impl Stage for TransformToCm {
                     })
                     .collect();
                 let ratio: Vec<Option<f64>> = sigma.iter().zip(&dsdo).map(|(s, d)| s.map(|s| d / s)).collect();
-                Some((sigma, ratio))
+                Some((sigma, ratio, conv))
             }
             _ => None,
         };
         let mut table =
             with_f64_columns(table, vec![("dsdo_cm_mb_sr", dsdo), ("stat_err_mb_sr", stat), ("sys_err_mb_sr", sys)])?;
-        if let Some((sigma, ratio)) = rutherford {
+        if let Some((sigma, ratio, conv)) = rutherford {
+            let rows = table.height();
             table.with_column(Column::new("dsdo_rutherford_cm_mb_sr".into(), sigma))?;
             table.with_column(Column::new("ratio_rutherford".into(), ratio))?;
+            table.with_column(Column::new("rutherford_convention".into(), vec![conv.name(); rows]))?;
         }
         Ok(table)
     }

@@ -19,6 +19,22 @@ pub enum Convention {
 }
 
 impl Convention {
+    /// Every convention, for parsing and messages.
+    pub const ALL: [Convention; 2] = [Convention::Relativistic, Convention::NonRelativistic];
+
+    /// Its name in configs and in the `rutherford_convention` column.
+    pub fn name(self) -> &'static str {
+        match self {
+            Convention::Relativistic => "relativistic",
+            Convention::NonRelativistic => "non_relativistic",
+        }
+    }
+
+    /// The convention of that name.
+    pub fn from_name(name: &str) -> Option<Convention> {
+        Convention::ALL.into_iter().find(|c| c.name() == name)
+    }
+
     /// Rutherford dσ/dΩ_cm in mb/sr for the entrance channel of `channel` at the CM angle
     /// θ (rad), for charge numbers z1 (beam) and z2 (target).
     pub fn cm_mb_sr(self, z1: u32, z2: u32, channel: &Channel, theta_cm_rad: f64) -> f64 {
