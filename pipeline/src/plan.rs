@@ -308,7 +308,7 @@ enum FitProblem {
 fn plan_fit(
     config_dir: &Path,
     key: &str,
-    f: &stages::fit::FitStageConfig,
+    f: &stages::fit::FitEntryConfig,
     setup: Option<&Setup>,
 ) -> Result<PlannedFit, Vec<FitProblem>> {
     let mut problems = Vec::new();

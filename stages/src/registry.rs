@@ -10,7 +10,7 @@ use crate::compute_kinematics::ComputeKinematicsConfig;
 use crate::compute_lab_cross_section::ComputeLabCrossSectionConfig;
 use crate::compute_solid_angle::ComputeSolidAngleConfig;
 use crate::correct_dead_time::CorrectDeadTimeConfig;
-use crate::fit::FitStageConfig;
+use crate::fit::FitEntryConfig;
 use crate::normalise::NormaliseConfig;
 use crate::subtract_background::SubtractBackgroundConfig;
 use crate::transform_to_cm::TransformToCmConfig;
@@ -38,7 +38,7 @@ pub enum StageConfig {
     TransformToCm(TransformToCmConfig),
     /// A model fitted to the angular distribution of one state, once every run is reduced
     /// (after all per-run stages).
-    Fit(FitStageConfig),
+    Fit(FitEntryConfig),
 }
 
 /// The `type:` names, in the order a reduction usually runs them.
@@ -98,7 +98,7 @@ impl StageConfig {
     }
 
     /// The settings of a `fit` entry.
-    pub fn as_fit(&self) -> Option<&FitStageConfig> {
+    pub fn as_fit(&self) -> Option<&FitEntryConfig> {
         match self {
             StageConfig::Fit(f) => Some(f),
             _ => None,

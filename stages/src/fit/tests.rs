@@ -1,0 +1,148 @@
+//! Unit tests of the fit module: the optical keys, what `build` refuses, curve tables, the
+//! Rutherford convention read from a table, and a Rutherford fit to exact data.
+
+use approx::assert_relative_eq;
+use polars::prelude::{Column, DataFrame};
+
+use super::*;
+use crate::physics::kinematics::{Channel, Masses};
+use crate::physics::nuclide;
+
+#[test]
+fn optical_keys_round_trip_by_name() {
+    let all = OpticalKey::all();
+    assert_eq!(all.len(), 10);
+    for k in &all {
+        assert_eq!(OpticalKey::parse(&k.name()), Some(*k), "{}", k.name());
+    }
+    // (name, a length that must stay > 0)
+    let cases =
+        [("real.depth_mev", false), ("imag_surface.a_fm", true), ("imag_volume.r0_fm", true), ("coulomb.r0_fm", true)];
+    for (name, length) in cases {
+        assert_eq!(OpticalKey::parse(name).map(OpticalKey::is_length), Some(length), "{name}");
+    }
+    assert_eq!(OpticalKey::parse("real.depth"), None);
+}
+
+const OPTICAL: &str = "model: optical
+reaction: { beam: 4He, target: 58Ni, energy_mev: 24.0 }
+potential:
+  real:         { depth_mev: 150.0, r0_fm: 1.20, a_fm: 0.60 }
+  imag_volume:  { depth_mev: 20.0,  r0_fm: 1.40, a_fm: 0.50 }
+  imag_surface: { depth_mev: 0.0,   r0_fm: 1.40, a_fm: 0.50 }
+  coulomb:      { r0_fm: 1.30 }
+free:
+  real.depth_mev: { min: 20.0, max: 400.0 }
+";
+
+fn build(yaml: &str) -> Result<Fit, Vec<crate::Problem>> {
+    let config: FitModelConfig = serde_yaml::from_str(yaml).expect("the case parses");
+    config.build(None)
+}
+
+#[test]
+fn build_refuses_each_bad_setting_with_its_key() {
+    // (fit file, key of the problem)
+    let cases = [
+        ("model: legendre\norder: 61\n".to_string(), "order"),
+        ("model: legendre\norder: 2\nfit: { normalisation: free }\n".to_string(), "fit.normalisation"),
+        (
+            "model: legendre\norder: 2\nfit: { theta_cm_range_deg: [40.0, 35.0] }\n".to_string(),
+            "fit.theta_cm_range_deg",
+        ),
+        ("model: rutherford\nreaction: { beam: n, target: 58Ni, energy_mev: 10.0 }\n".to_string(), "reaction"),
+        (OPTICAL.replace("real.depth_mev: {", "real.depth: {"), "free.real.depth"),
+        (OPTICAL.replace("min: 20.0", "min: 160.0"), "free.real.depth_mev"),
+        (OPTICAL.replace("a_fm: 0.60", "a_fm: -0.60"), "potential.real.a_fm"),
+        (format!("{OPTICAL}fit: {{ profile: [real.a_fm] }}\n"), "fit.profile[0]"),
+        (format!("{OPTICAL}multi_start: {{ real.depth_mev: [100.0, 500.0] }}\n"), "multi_start.real.depth_mev[1]"),
+    ];
+    for (yaml, key) in cases {
+        let problems = build(&yaml).err().unwrap_or_else(|| panic!("accepted:\n{yaml}"));
+        assert!(problems.iter().any(|p| p.key == key), "{key} not among {problems:?}");
+    }
+    assert!(build(OPTICAL).is_ok());
+}
+
+#[test]
+fn curve_tables_are_checked_and_interpolated_in_log_sigma() {
+    // (angles, cross sections, accepted)
+    let cases: [(Vec<f64>, Vec<f64>, bool); 5] = [
+        (vec![10.0, 20.0], vec![1.0, 2.0], true),
+        (vec![10.0], vec![1.0], false),
+        (vec![20.0, 10.0], vec![1.0, 2.0], false),
+        (vec![10.0, 10.0], vec![1.0, 2.0], false),
+        (vec![10.0, 20.0], vec![1.0, 0.0], false),
+    ];
+    for (t, s, ok) in cases {
+        assert_eq!(CurveTable::new(t.clone(), s).is_ok(), ok, "{t:?}");
+    }
+    // ln σ linear in angle: σ = e^{−θ/10} is exact between the points.
+    let t: Vec<f64> = (0..5).map(|i| 10.0 * f64::from(i)).collect();
+    let c = CurveTable::new(t.clone(), t.iter().map(|x| (-x / 10.0).exp()).collect()).expect("table");
+    assert_relative_eq!(c.at(15.0).expect("inside"), (-1.5f64).exp(), max_relative = 1e-14);
+    assert!(c.at(41.0).is_none());
+}
+
+fn table(conventions: &[&str]) -> DataFrame {
+    let n = conventions.len();
+    DataFrame::new_infer_height(vec![
+        Column::new("state".into(), vec!["elastic"; n]),
+        Column::new("theta_cm_deg".into(), (0..n).map(|i| 30.0 + 10.0 * i as f64).collect::<Vec<_>>()),
+        Column::new("dsdo_cm_mb_sr".into(), vec![100.0; n]),
+        Column::new("stat_err_mb_sr".into(), vec![1.0; n]),
+        Column::new("sys_err_mb_sr".into(), vec![0.0; n]),
+        Column::new("norm_rel_err".into(), vec![0.02; n]),
+        Column::new(RUTHERFORD_CONVENTION.into(), conventions.to_vec()),
+    ])
+    .expect("table")
+}
+
+#[test]
+fn the_rutherford_convention_is_read_from_the_table() {
+    // (conventions of the rows, what the fit uses; None: refused)
+    let cases: [(&[&str], Option<Convention>); 4] = [
+        (&["relativistic", "relativistic"], Some(Convention::Relativistic)),
+        (&["non_relativistic"], Some(Convention::NonRelativistic)),
+        (&["relativistic", "non_relativistic"], None),
+        (&["galilean"], None),
+    ];
+    for (rows, want) in cases {
+        let got = FitData::from_table(&table(rows), "elastic").ok().map(|d| d.rutherford_convention);
+        assert_eq!(got, want, "{rows:?}");
+    }
+    let without = table(&["relativistic"]).drop(RUTHERFORD_CONVENTION).expect("drop");
+    let data = FitData::from_table(&without, "elastic").expect("data");
+    assert_eq!(data.rutherford_convention, Convention::Relativistic);
+}
+
+#[test]
+fn a_rutherford_fit_finds_the_scale_of_exact_data_in_either_convention() {
+    // Data = 1.1 × Rutherford in the data's own convention: the free normalisation is 1.1
+    // to the minimiser's tolerance, and the curve's ratio to Rutherford is 1.1 too.
+    let (ma, mt) = (nuclide::parse("4He").expect("4He"), nuclide::parse("58Ni").expect("58Ni"));
+    let masses = Masses {
+        beam_mev: ma.nuclear_mass_mev(),
+        target_mev: mt.nuclear_mass_mev(),
+        ejectile_mev: ma.nuclear_mass_mev(),
+        recoil_mev: mt.nuclear_mass_mev(),
+    };
+    let channel = Channel::new(masses, 24.0, 0.0).expect("channel");
+    let fit = build("model: rutherford\nreaction: { beam: 4He, target: 58Ni, energy_mev: 24.0 }\n").expect("fit");
+    for convention in Convention::ALL {
+        let theta: Vec<f64> = (2..12).map(|i| 10.0 * f64::from(i)).collect();
+        let y: Vec<f64> = theta.iter().map(|t| 1.1 * convention.cm_mb_sr(2, 28, &channel, t.to_radians())).collect();
+        let data = FitData {
+            err_mb_sr: y.iter().map(|v| 0.01 * v).collect(),
+            norm_rel_err: vec![0.0; y.len()],
+            labels: (0..y.len()).map(|i| format!("p{i}")).collect(),
+            dsdo_cm_mb_sr: y,
+            theta_cm_deg: theta,
+            rutherford_convention: convention,
+        };
+        let (report, values) = fit.run(&data, "elastic", "rutherford").expect("fit runs");
+        assert_relative_eq!(report.parameters[0].value, 1.1, max_relative = 1e-9);
+        let curve = fit.curve(&values, report.parameters[0].value, &[45.0], convention).expect("curve");
+        assert_relative_eq!(curve[0].2.expect("ratio"), 1.1, max_relative = 1e-9);
+    }
+}
