@@ -1,7 +1,7 @@
 //! Raw data to yields: the list-mode demo against its expected output, tallies that add up
-//! to the file's rows, a hand-counted synthetic event file, the peak-fit background, and
-//! bad input (missing or mistyped columns, corrupt files, empty files, bad gates and
-//! polygons).
+//! to the file's rows, a hand-counted synthetic event file, quoted CSV, the peak-fit
+//! background, and bad input (missing or mistyped columns, corrupt files, broken CSV
+//! records, empty files, bad gates and polygons).
 
 use std::path::Path;
 
@@ -138,6 +138,67 @@ fn hand_counted_events_give_the_expected_yields_and_tallies() {
         yields.lines().nth(1).expect("row").split(',').skip(2).map(|x| x.parse().expect("number")).collect();
     assert!((row[0] - 4.0).abs() < 1e-12, "gross {yields}");
     assert!((row[1] - 3.0).abs() < 1e-12 && (row[2] - 3f64.sqrt()).abs() < 1e-12, "background {yields}");
+}
+
+#[test]
+fn issue_11_csv_events_with_quoted_fields_read_as_the_same_events() {
+    // The hand-counted events with a text column, then the same events quoted as RFC 4180
+    // allows: a quoted header, quoted numbers and detector ids, a quoted empty energy, and
+    // notes holding commas and doubled quotes. The old reader split lines on every comma.
+    let plain = "det,adc,pu,note\nA,2000,0,x\nA,2050,0,x\nA,2099,0,x\nA,2050.5,0,x\nA,1900,0,x\nA,1949,0,x\n\
+                 A,2150,0,x\nA,100,0,x\nA,2050,1,x\nA,,0,x\nA,5000,0,x\nB,2050,0,x\n";
+    let quoted = "\"det\", adc ,\"pu\",\"note\"\n\"A\",\"2000\",0,\"beam on, tuned\"\nA,2050,\"0\",x\n\
+                  \"A\",2099,0,\"the \"\"best\"\" run\"\nA,\"2050.5\",0,\",\"\nA,1900,0,\nA,1949,0,\"a,b,c\"\n\
+                  A,2150,0,x\r\nA,100,0,x\n\n\"A\",\"2050\",\"1\",x\nA,\"\",0,\"\"\nA,5000,0,x\n\"B\",2050,0,\"B, unknown\"\n";
+    let reduced = |events: &str| {
+        let tmp = tempfile::tempdir().expect("scratch");
+        tiny(tmp.path(), "", events);
+        let check = xsflow(tmp.path(), &["check", "experiment.yaml"]);
+        assert_eq!(check.status.code(), Some(0), "{}", text(&check));
+        let out = reduce(tmp.path());
+        assert_eq!(out.status.code(), Some(0), "{}", text(&out));
+        let read = |f: &str| std::fs::read_to_string(tmp.path().join("out/t1").join(f)).expect("output");
+        (raw_json(tmp.path(), "t1")["tally"].clone(), read("yields.csv"), read("cross_sections.csv"))
+    };
+    let (plain, quoted) = (reduced(plain), reduced(quoted));
+    assert_eq!(plain, quoted);
+    let t = &quoted.0;
+    let want = [("events", 12), ("in_window", 4), ("pile_up", 1), ("invalid_value", 2), ("unknown_detector", 1)];
+    for (k, v) in want {
+        assert_eq!(t[k].as_u64(), Some(v), "{k}: {t}");
+    }
+}
+
+#[test]
+fn issue_11_a_broken_csv_record_is_an_error_naming_its_line() {
+    // Lines are counted in the file: the header is line 1, and blank lines and quoted
+    // values count as the lines they are.
+    let cases: [(&[u8], &str); 5] = [
+        (
+            b"det,adc,pu\n\"A\",2000,0\n\nA,2001,0,7\n",
+            "line 4: found 4 values, expected 3 as in the header (det, adc, pu)",
+        ),
+        (b"det,adc,pu\nA,2000,0\nA,2001\n", "line 3: found 2 values, expected 3 as in the header (det, adc, pu)"),
+        (
+            b"det,adc,pu\nA,2000,0\nA,\"2001,0\nA,2002,0\n",
+            "line 3, column `adc`: found the quote of `\"2001,0` not closed on its line",
+        ),
+        (b"det,adc,pu\nA,2000,\"0\nA,2002,0\n", "line 2, column `pu`: found the quote of `\"0` not closed on its line"),
+        (
+            b"det,adc,pu\nA,2000,0\n\xfe\xff,2001,0\n",
+            "line 3, column `det`: found `\u{fffd}\u{fffd}`, expected UTF-8 text",
+        ),
+    ];
+    for (events, want) in cases {
+        let tmp = tempfile::tempdir().expect("scratch");
+        tiny(tmp.path(), "", "");
+        std::fs::write(tmp.path().join("events.csv"), events).expect("events");
+        let out = reduce(tmp.path());
+        let msg = text(&out);
+        assert_eq!(out.status.code(), Some(1), "{msg}");
+        assert!(msg.contains("events.csv") && msg.contains(want), "{want}: {msg}");
+        assert!(!tmp.path().join("out/t1").exists(), "nothing for a failed run");
+    }
 }
 
 #[test]

@@ -282,16 +282,137 @@ fn read_ipc_columns(path: &Path, columns: Vec<String>) -> Result<DataFrame, Stri
     IpcReader::new(file).with_columns(Some(columns)).finish().map_err(|e| format!("cannot read it as Arrow IPC: {e}"))
 }
 
-/// A CSV file's header and its lines, streamed.
-fn csv_lines(path: &Path) -> Result<(Vec<String>, std::io::Lines<BufReader<File>>), String> {
-    let file = File::open(path).map_err(|e| format!("cannot open it: {e}"))?;
-    let mut lines = BufReader::new(file).lines();
-    let header = match lines.next() {
-        Some(Ok(h)) => h.split(',').map(|s| s.trim().to_string()).collect(),
-        Some(Err(e)) => return Err(format!("cannot read it: {e}")),
-        None => Vec::new(),
-    };
-    Ok((header, lines))
+/// A CSV file read one line at a time, each line parsed by `csv-core` (the `csv` crate's
+/// RFC 4180 parser: quoted values, doubled quotes) into one reused record, so memory does
+/// not grow with the file. An event is one line, so every error names its line of the file.
+struct CsvRecords {
+    /// The header's column names (line 1), trimmed; empty for an empty file.
+    header: Vec<String>,
+    input: BufReader<File>,
+    parser: csv_core::Reader,
+    /// The line last read, ending in `\n`, and its number in the file (1-based).
+    text: Vec<u8>,
+    line: u64,
+    /// The values of the line last read, unquoted, one after another, and where each ends.
+    values: Vec<u8>,
+    ends: Vec<usize>,
+    /// How many values the line last read holds.
+    len: usize,
+}
+
+impl CsvRecords {
+    /// Open a CSV file and read its header.
+    fn open(path: &Path) -> Result<Self, String> {
+        let file = File::open(path).map_err(|e| format!("cannot open it: {e}"))?;
+        let mut csv = CsvRecords {
+            header: Vec::new(),
+            input: BufReader::new(file),
+            parser: csv_core::ReaderBuilder::new().terminator(csv_core::Terminator::Any(b'\n')).build(),
+            text: Vec::new(),
+            line: 0,
+            values: vec![0; 1024],
+            ends: vec![0; 16],
+            len: 0,
+        };
+        if csv.read()? {
+            csv.header = (0..csv.len).map(|i| csv.text(i).map(|h| h.trim().to_string())).collect::<Result<_, _>>()?;
+        }
+        Ok(csv)
+    }
+
+    /// Read and parse the next line that is not blank; `false` at the end of the file.
+    fn read(&mut self) -> Result<bool, String> {
+        loop {
+            self.text.clear();
+            let n = self
+                .input
+                .read_until(b'\n', &mut self.text)
+                .map_err(|e| format!("line {}: cannot read it: {e}", self.line + 1))?;
+            if n == 0 {
+                return Ok(false);
+            }
+            self.line += 1;
+            if self.text.trim_ascii().is_empty() {
+                continue;
+            }
+            // One terminator, `\n`, also for the last line and for lines ending in `\r\n`.
+            if self.text.ends_with(b"\r\n") {
+                self.text.truncate(self.text.len() - 2);
+            } else if self.text.ends_with(b"\n") {
+                self.text.pop();
+            }
+            self.text.push(b'\n');
+            return self.parse().map(|()| true);
+        }
+    }
+
+    /// Parse the line last read into its values.
+    fn parse(&mut self) -> Result<(), String> {
+        use csv_core::ReadRecordResult;
+        let (mut nin, mut nout, mut nend) = (0, 0, 0);
+        loop {
+            let (result, i, o, e) =
+                self.parser.read_record(&self.text[nin..], &mut self.values[nout..], &mut self.ends[nend..]);
+            (nin, nout, nend) = (nin + i, nout + o, nend + e);
+            match result {
+                ReadRecordResult::Record => {
+                    self.len = nend;
+                    return Ok(());
+                }
+                ReadRecordResult::OutputFull => self.values.resize(2 * self.values.len(), 0),
+                ReadRecordResult::OutputEndsFull => self.ends.resize(2 * self.ends.len(), 0),
+                // The line ended inside a quoted value.
+                ReadRecordResult::InputEmpty | ReadRecordResult::End => {
+                    let start = if nend == 0 { 0 } else { self.ends[nend - 1] };
+                    let open = String::from_utf8_lossy(&self.values[start..nout]);
+                    return Err(format!(
+                        "line {}, column {}: found the quote of `\"{}` not closed on its line; expected one \
+                         event a line: add the closing `\"`",
+                        self.line,
+                        self.column(nend),
+                        open.trim_end()
+                    ));
+                }
+            }
+        }
+    }
+
+    /// Read the next event: a line with one value for each header column; `false` at the
+    /// end of the file.
+    fn next_event(&mut self) -> Result<bool, String> {
+        let more = self.read()?;
+        if more && self.len != self.header.len() {
+            return Err(format!(
+                "line {}: found {} values, expected {} as in the header ({}); quote a value that holds a \
+                 comma (\"a,b\")",
+                self.line,
+                self.len,
+                self.header.len(),
+                self.header.join(", ")
+            ));
+        }
+        Ok(more)
+    }
+
+    /// Column `i` for a message: its name, or its number where the header has none.
+    fn column(&self, i: usize) -> String {
+        self.header.get(i).map_or_else(|| (i + 1).to_string(), |h| format!("`{h}`"))
+    }
+
+    /// Value `i` of the line last read, as text.
+    fn text(&self, i: usize) -> Result<&str, String> {
+        let start = i.checked_sub(1).and_then(|j| self.ends.get(j)).copied().unwrap_or(0);
+        let end = if i < self.len { self.ends.get(i).copied().unwrap_or(start) } else { start };
+        let bytes = self.values.get(start..end).unwrap_or_default();
+        std::str::from_utf8(bytes).map_err(|_| {
+            format!(
+                "line {}, column {}: found `{}`, expected UTF-8 text",
+                self.line,
+                self.column(i),
+                String::from_utf8_lossy(bytes)
+            )
+        })
+    }
 }
 
 fn read_csv_events(
@@ -300,16 +421,16 @@ fn read_csv_events(
     map: &mut DetectorMap<'_>,
     roles: &Roles<'_>,
 ) -> Result<(), String> {
-    let (header, lines) = csv_lines(path)?;
-    if header.is_empty() {
+    let mut csv = CsvRecords::open(path)?;
+    if csv.header.is_empty() {
         return Ok(());
     }
-    check_columns(&header, roles)?;
-    let index = |name: &str| header.iter().position(|h| h == name).unwrap_or(0);
+    check_columns(&csv.header, roles)?;
+    let index = |name: &str| csv.header.iter().position(|h| h == name).unwrap_or(0);
     let (i_det, i_e) = (index(roles.detector), index(roles.value));
     let (i_de, i_pu) = (roles.delta_e.map(index), roles.pile_up.map(index));
     let (mut det, mut e, mut de, mut pu) = (Vec::new(), Vec::new(), Vec::new(), Vec::new());
-    let num = |s: Option<&str>| s.map_or(f64::NAN, |s| s.trim().parse::<f64>().unwrap_or(f64::NAN));
+    let num = |s: &str| s.trim().parse::<f64>().unwrap_or(f64::NAN);
     let flush =
         |det: &mut Vec<u16>, e: &mut Vec<f64>, de: &mut Vec<f64>, pu: &mut Vec<bool>, acc: &mut Accumulator<'_>| {
             acc.add_f64(det, e, i_pu.map(|_| pu.as_slice()), i_de.map(|_| de.as_slice()));
@@ -318,19 +439,14 @@ fn read_csv_events(
             de.clear();
             pu.clear();
         };
-    for (n, line) in lines.enumerate() {
-        let line = line.map_err(|err| format!("line {}: cannot read it: {err}", n + 2))?;
-        if line.trim().is_empty() {
-            continue;
-        }
-        let cells: Vec<&str> = line.split(',').collect();
-        det.push(cells.get(i_det).map_or(UNKNOWN_DETECTOR, |v| map.text(v.trim())));
-        e.push(num(cells.get(i_e).copied()));
+    while csv.next_event()? {
+        det.push(map.text(csv.text(i_det)?.trim()));
+        e.push(num(csv.text(i_e)?));
         if let Some(i) = i_de {
-            de.push(num(cells.get(i).copied()));
+            de.push(num(csv.text(i)?));
         }
         if let Some(i) = i_pu {
-            let v = cells.get(i).map_or("", |v| v.trim());
+            let v = csv.text(i)?.trim();
             pu.push(!(v.is_empty() || v == "0" || v.eq_ignore_ascii_case("false")));
         }
         if det.len() == CSV_BATCH {
@@ -355,7 +471,7 @@ pub fn check_file(path: &Path, plan: &RawPlan, spectra: bool) -> Result<(), Stri
             schema.iter_names().map(|n| n.to_string()).collect()
         }
         "arrow" | "ipc" | "feather" => ipc_columns(path)?,
-        "csv" => csv_lines(path)?.0,
+        "csv" => CsvRecords::open(path)?.header,
         ext => return Err(format!("unknown file format `.{ext}`; accepted: {ACCEPTED}")),
     };
     check_columns(&found, &roles)
