@@ -136,3 +136,51 @@ fn cross_section_schema_lists_the_output_columns_in_order() {
     let absent: Vec<&str> = listed.iter().copied().filter(|c| !header.contains(c)).collect();
     assert_eq!(absent, ["luminosity_monitor_over_absolute"]);
 }
+
+/// Issue 11: fits have their own section; the old form under `stages:` says where they went.
+#[test]
+fn issue_11_a_fit_entry_under_stages_says_where_fits_moved() {
+    let tmp = demo_copy();
+    let config = tmp.path().join("experiment.yaml");
+    edit(&config, "\nfits:", "");
+    edit(
+        &config,
+        "  - model_file: fits/elastic-optical.yaml",
+        "  - type: fit\n    model_file: fits/elastic-optical.yaml",
+    );
+    edit(
+        &config,
+        "  - model_file: fits/inelastic-legendre.yaml",
+        "  - type: fit\n    model_file: fits/inelastic-legendre.yaml",
+    );
+    let out = xsflow(tmp.path(), &["check", "experiment.yaml"]);
+    let msg = text(&out);
+    assert_eq!(out.status.code(), Some(2), "{msg}");
+    for i in [8, 9] {
+        assert!(msg.contains(&format!("stages[{i}].type: a fit is not a per-run stage")), "{msg}");
+    }
+    assert!(msg.contains("top-level `fits:` list") && !msg.contains("unknown variant"), "{msg}");
+}
+
+/// Issue 11: a fit file for another reaction or energy than the experiment it fits passed
+/// silently; each difference is now named with the experiment's value.
+#[test]
+fn issue_11_a_fit_file_for_another_reaction_is_refused() {
+    // (edit of the fit file, expected message)
+    let cases = [
+        (
+            "energy_mev: 24.0",
+            "energy_mev: 25.0",
+            "reaction.energy_mev: found 25, expected 24 MeV, the beam energy of the experiment it fits",
+        ),
+        ("target: 58Ni", "target: 60Ni", "reaction.target: found 60Ni, expected 58Ni as in the experiment it fits"),
+    ];
+    for (from, to, want) in cases {
+        let tmp = demo_copy();
+        edit(&tmp.path().join("fits/elastic-optical.yaml"), from, to);
+        let out = xsflow(tmp.path(), &["check", "experiment.yaml"]);
+        let msg = text(&out);
+        assert_eq!(out.status.code(), Some(2), "{msg}");
+        assert!(msg.contains("elastic-optical.yaml:") && msg.contains(want), "{want}:\n{msg}");
+    }
+}

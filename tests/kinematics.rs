@@ -319,7 +319,7 @@ fn inverse_kinematics_branches_come_from_the_yields_table() {
         .replace("    - { name: \"2+_1.454\", excitation_mev: 1.454 }\n", "");
     // The per-run stages only: the demo's fits are for its own states.
     let tail = text_yaml.split("runs:").nth(1).expect("tail");
-    let stages = tail.split("  - type: fit").next().expect("stages");
+    let stages = tail.split("\nfits:").next().expect("stages");
     let yaml = format!("{head}detectors:\n  - {{ id: F1, theta_lab_deg: 2.0, distance_mm: 500.0, aperture: {{ shape: circle, radius_mm: 2.0 }} }}\nruns:{stages}");
     std::fs::write(&config, yaml.replace("runs/*.run.yaml", "runs/run0101.run.yaml")).expect("write");
     std::fs::write(

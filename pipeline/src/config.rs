@@ -53,10 +53,14 @@ pub struct ExperimentConfig {
     /// How runs are combined into one angular distribution per state.
     #[serde(default)]
     pub combine: Option<stages::combine::CombineConfig>,
+    /// Models fitted to the combined angular distribution once every run is reduced: each a
+    /// fit file and the state it fits (optional).
+    #[serde(default)]
+    pub fits: Option<Vec<stages::fit::FitEntryConfig>>,
 }
 
-const SECTIONS: [&str; 9] =
-    ["experiment", "reaction", "target", "detectors", "arms", "runs", "stages", "raw", "combine"];
+const SECTIONS: [&str; 10] =
+    ["experiment", "reaction", "target", "detectors", "arms", "runs", "stages", "raw", "combine", "fits"];
 
 /// A YAML file read into text, its parsed value and its key locations.
 pub struct YamlFile {
@@ -171,6 +175,8 @@ pub struct PartialConfig {
     pub raw: Option<stages::raw::RawConfig>,
     /// `combine:`, when present and parsed.
     pub combine: Option<stages::combine::CombineConfig>,
+    /// `fits:`, when present and every item parsed.
+    pub fits: Option<Vec<stages::fit::FitEntryConfig>>,
 }
 
 /// Parse an experiment config section by section and list item by list item, so that every
@@ -220,11 +226,44 @@ pub fn parse_experiment(file: &YamlFile) -> (PartialConfig, Vec<Diagnostic>) {
         detectors: section("detectors", &mut diags).and_then(|v| parse_list(file, "detectors", &v, &mut diags)),
         arms: map.get("arms").and_then(|v| parse_list(file, "arms", v, &mut diags)),
         runs: section("runs", &mut diags).and_then(|v| keep(file.parse("runs", &v), &mut diags)),
-        stages: section("stages", &mut diags).and_then(|v| parse_list(file, "stages", &v, &mut diags)),
+        stages: section("stages", &mut diags).and_then(|v| {
+            let before = diags.len();
+            let parsed = parse_list(file, "stages", &v, &mut diags);
+            moved_fit_entries(file, &v, before, &mut diags);
+            parsed
+        }),
         raw: map.get("raw").and_then(|v| keep(file.parse("raw", v), &mut diags)),
         combine: map.get("combine").and_then(|v| keep(file.parse("combine", v), &mut diags)),
+        fits: map.get("fits").and_then(|v| parse_list(file, "fits", v, &mut diags)),
     };
     (config, diags)
+}
+
+/// A `type: fit` entry under `stages:` (the form before fits had their own section) is
+/// reported with where it moved, in place of the parser's messages about it (those from
+/// `first` on); its other keys are those of a `fits:` entry.
+fn moved_fit_entries(file: &YamlFile, stages: &Value, first: usize, diags: &mut Vec<Diagnostic>) {
+    for (i, item) in stages.as_sequence().into_iter().flatten().enumerate() {
+        if item.get("type").and_then(Value::as_str) == Some("fit") {
+            let at = format!("stages[{i}]");
+            let mut k = first;
+            while k < diags.len() {
+                if diags[k].key == at || diags[k].key.starts_with(&format!("{at}.")) {
+                    diags.remove(k);
+                } else {
+                    k += 1;
+                }
+            }
+            let key = format!("{at}.type");
+            diags.push(
+                Diagnostic::new(&file.path, key.clone(), "a fit is not a per-run stage; fits have their own section")
+                    .at(file.locations.find(&key))
+                    .with_help(
+                        "move the entry, without `type: fit`, to a top-level `fits:` list (README: Theory and fits)",
+                    ),
+            );
+        }
+    }
 }
 
 /// Parse a YAML list item by item; `None` if any item failed (its diagnostics are kept).

@@ -26,13 +26,18 @@ pub struct LoadedFit {
     pub fit: Fit,
 }
 
-/// Read a fit file and, for a `curve` model, its curve table (relative to the fit file).
+/// Read a fit file and, for a `curve` model, its curve table (relative to the fit file);
+/// with the `experiment` it fits, check that its reaction is that experiment's.
 ///
 /// # Errors
 /// Every problem of the file or of the curve, located.
-pub fn load(path: &Path) -> Result<LoadedFit, Vec<Diagnostic>> {
+pub fn load(path: &Path, experiment: Option<&stages::Setup>) -> Result<LoadedFit, Vec<Diagnostic>> {
     let file = YamlFile::read(path).map_err(|d| vec![d])?;
     let config: FitModelConfig = file.parse("", &file.value).map_err(|d| vec![d])?;
+    let mismatches = experiment.map(|s| config.check_against(s)).unwrap_or_default();
+    if !mismatches.is_empty() {
+        return Err(mismatches.iter().map(|p| file.problem(p)).collect());
+    }
     let curve = match &config {
         FitModelConfig::Curve { file: curve_file, .. } => {
             let curve_path = path.parent().unwrap_or(Path::new(".")).join(curve_file);

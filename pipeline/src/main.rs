@@ -219,7 +219,7 @@ fn theory_curve(model: &Path, angles: &str, format: TableFormat) -> u8 {
 }
 
 fn fit_command(data: &Path, model: &Path, state: Option<&str>, out: Option<&Path>, format: ReportFormat) -> u8 {
-    let loaded = match fit::load(model) {
+    let loaded = match fit::load(model, None) {
         Ok(l) => l,
         Err(diags) => {
             report(&diags);

@@ -215,27 +215,18 @@ pub fn plan_with(config_path: &Path, empty_patterns_warn: bool) -> Result<Plan, 
     };
     let mut stages = Vec::new();
     let mut fits = Vec::new();
+    for (i, f) in config.fits.iter().flatten().enumerate() {
+        match plan_fit(&config_dir, &format!("fits[{i}]"), f, setup.as_ref()) {
+            Ok(pf) => fits.push(pf),
+            Err(problems) => diags.extend(problems.into_iter().map(|p| match p {
+                FitProblem::Config(p) => file.problem(&p),
+                FitProblem::File(d) => d,
+            })),
+        }
+    }
     if let Some(configs) = &config.stages {
         for (i, sc) in configs.iter().enumerate() {
             let key = format!("stages[{i}]");
-            if let Some(f) = sc.as_fit() {
-                match plan_fit(&config_dir, &key, f, setup.as_ref()) {
-                    Ok(pf) => fits.push(pf),
-                    Err(problems) => diags.extend(problems.into_iter().map(|p| match p {
-                        FitProblem::Config(p) => file.problem(&p),
-                        FitProblem::File(d) => d,
-                    })),
-                }
-                continue;
-            }
-            if !fits.is_empty() {
-                diags.push(file.problem(&Problem::new(
-                    format!("{key}.type"),
-                    sc.type_name(),
-                    "per-run stages before every `fit` entry (fits run once all runs are reduced)",
-                )));
-                continue;
-            }
             match sc.build(setup.as_ref()) {
                 Ok(stage) => stages.push(PlannedStage { key, stage }),
                 Err(problems) => diags.extend(
@@ -246,15 +237,17 @@ pub fn plan_with(config_path: &Path, empty_patterns_warn: bool) -> Result<Plan, 
                 ),
             }
         }
-        if stages.len() + fits.len() == configs.len() {
+        if stages.len() == configs.len() {
             diags.extend(locate(trace_columns(&stages)));
             if let Some(f) = fits.first() {
                 let available: Vec<&str> = stages.iter().flat_map(|s| s.stage.adds()).chain(REQUIRED_COLUMNS).collect();
                 for need in stages::fit::FIT_COLUMNS.iter().filter(|n| !available.contains(n)) {
                     diags.push(file.problem(&Problem::new(
-                        format!("{}.type", f.key),
-                        "fit",
-                        format!("column `{need}` added by an earlier stage (a fit needs the CM cross sections: transform_to_cm)"),
+                        f.key.clone(),
+                        "a fit",
+                        format!(
+                            "column `{need}` added by a stage (a fit needs the CM cross sections: transform_to_cm)"
+                        ),
                     )));
                 }
             }
@@ -333,7 +326,7 @@ fn plan_fit(
     }
     let path = config_dir.join(&f.model_file);
     let loaded = if path.is_file() {
-        crate::fit::load(&path).map_err(|ds| problems.extend(ds.into_iter().map(FitProblem::File))).ok()
+        crate::fit::load(&path, setup).map_err(|ds| problems.extend(ds.into_iter().map(FitProblem::File))).ok()
     } else {
         problems.push(FitProblem::Config(Problem::new(
             format!("{key}.model_file"),

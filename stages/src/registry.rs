@@ -10,7 +10,6 @@ use crate::compute_kinematics::ComputeKinematicsConfig;
 use crate::compute_lab_cross_section::ComputeLabCrossSectionConfig;
 use crate::compute_solid_angle::ComputeSolidAngleConfig;
 use crate::correct_dead_time::CorrectDeadTimeConfig;
-use crate::fit::FitEntryConfig;
 use crate::normalise::NormaliseConfig;
 use crate::subtract_background::SubtractBackgroundConfig;
 use crate::transform_to_cm::TransformToCmConfig;
@@ -36,13 +35,10 @@ pub enum StageConfig {
     ComputeLabCrossSection(ComputeLabCrossSectionConfig),
     /// Cross section in the CM frame and the ratio to Rutherford.
     TransformToCm(TransformToCmConfig),
-    /// A model fitted to the angular distribution of one state, once every run is reduced
-    /// (after all per-run stages).
-    Fit(FitEntryConfig),
 }
 
 /// The `type:` names, in the order a reduction usually runs them.
-pub const STAGE_TYPES: [&str; 9] = [
+pub const STAGE_TYPES: [&str; 8] = [
     "subtract_background",
     "correct_dead_time",
     "compute_kinematics",
@@ -51,7 +47,6 @@ pub const STAGE_TYPES: [&str; 9] = [
     "normalise",
     "compute_lab_cross_section",
     "transform_to_cm",
-    "fit",
 ];
 
 impl StageConfig {
@@ -66,7 +61,6 @@ impl StageConfig {
             StageConfig::Normalise(_) => "normalise",
             StageConfig::ComputeLabCrossSection(_) => "compute_lab_cross_section",
             StageConfig::TransformToCm(_) => "transform_to_cm",
-            StageConfig::Fit(_) => "fit",
         }
     }
 
@@ -75,9 +69,6 @@ impl StageConfig {
     /// `setup` is `None` when the config's set-up sections did not parse: the settings are
     /// still checked so that every problem is reported at once, but the stage built then
     /// must not run.
-    ///
-    /// A `fit` entry is not a per-run stage: the pipeline reads its fit file and runs it
-    /// after every run ([`StageConfig::as_fit`]); building it here is a problem.
     ///
     /// # Errors
     /// Every problem of the settings, keys relative to the stage entry.
@@ -91,17 +82,6 @@ impl StageConfig {
             StageConfig::Normalise(c) => Box::new(c.build(setup)?),
             StageConfig::ComputeLabCrossSection(c) => Box::new(c.build()?),
             StageConfig::TransformToCm(c) => Box::new(c.build(setup)?),
-            StageConfig::Fit(_) => {
-                return Err(vec![Problem::new("type", "fit", "a per-run stage (fit entries run after every run)")])
-            }
         })
-    }
-
-    /// The settings of a `fit` entry.
-    pub fn as_fit(&self) -> Option<&FitEntryConfig> {
-        match self {
-            StageConfig::Fit(f) => Some(f),
-            _ => None,
-        }
     }
 }
