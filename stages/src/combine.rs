@@ -99,7 +99,7 @@ pub struct Point {
 ///
 /// # Errors
 /// A row with a non-finite value or error, or a statistical error that is not > 0 (every
-/// counted row has one, even with zero counts: see `subtract_background::net_counts`).
+/// counted row has one, even with zero counts: see `stage::subtract_background::net_counts`).
 pub fn combine(rows: &[Row], tolerance_deg: f64) -> Result<(Vec<Point>, Vec<f64>), String> {
     let mut order: Vec<usize> = (0..rows.len()).collect();
     order.sort_by(|&a, &b| {

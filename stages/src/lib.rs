@@ -3,29 +3,22 @@
 //! A run's yields table (one row per detector × state) enters the first stage; each stage
 //! adds columns (live fraction, efficiency, solid angle, normalisation, cross section) and
 //! hands the table on. Stages receive tables and numbers, never paths or command-line flags:
-//! the `xsflow` pipeline crate reads files, builds the stages from the config through
-//! [`registry`], and writes the outputs. Pure physics lives in [`physics`] as functions on
+//! the `xsflow` pipeline crate reads files, builds the stages (one module each, in
+//! [`stage`]) from the config through [`registry`], and writes the outputs. Pure physics lives in [`physics`] as functions on
 //! `f64`, each with its formula and published source.
 
-pub mod apply_efficiency;
 pub mod columns;
 pub mod combine;
-pub mod compute_kinematics;
-pub mod compute_lab_cross_section;
-pub mod compute_solid_angle;
-pub mod correct_dead_time;
 mod error;
 pub mod fit;
-pub mod normalise;
 pub mod physics;
 mod problem;
 pub mod raw;
 pub mod registry;
 pub mod setup;
-pub mod subtract_background;
+pub mod stage;
 pub mod table;
 pub mod theory;
-pub mod transform_to_cm;
 pub mod yields;
 
 pub use error::{Origin, StageError};

@@ -5,14 +5,14 @@
 use schemars::JsonSchema;
 use serde::Deserialize;
 
-use crate::apply_efficiency::ApplyEfficiencyConfig;
-use crate::compute_kinematics::ComputeKinematicsConfig;
-use crate::compute_lab_cross_section::ComputeLabCrossSectionConfig;
-use crate::compute_solid_angle::ComputeSolidAngleConfig;
-use crate::correct_dead_time::CorrectDeadTimeConfig;
-use crate::normalise::NormaliseConfig;
-use crate::subtract_background::SubtractBackgroundConfig;
-use crate::transform_to_cm::TransformToCmConfig;
+use crate::stage::apply_efficiency::ApplyEfficiencyConfig;
+use crate::stage::compute_kinematics::ComputeKinematicsConfig;
+use crate::stage::compute_lab_cross_section::ComputeLabCrossSectionConfig;
+use crate::stage::compute_solid_angle::ComputeSolidAngleConfig;
+use crate::stage::correct_dead_time::CorrectDeadTimeConfig;
+use crate::stage::normalise::NormaliseConfig;
+use crate::stage::subtract_background::SubtractBackgroundConfig;
+use crate::stage::transform_to_cm::TransformToCmConfig;
 use crate::{Problem, Setup, Stage};
 
 /// One entry of the config's `stages:` list; `type:` names the stage.
