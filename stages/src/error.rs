@@ -19,6 +19,7 @@ impl StageError {
     pub fn origin(&self) -> Origin {
         match self {
             StageError::MissingRunValue { .. } => Origin::RunRecord,
+            StageError::NoSetup { .. } => Origin::Config,
             StageError::Physics { origin, .. } => *origin,
             _ => Origin::Table,
         }
@@ -67,6 +68,16 @@ pub enum StageError {
         /// The stage and setting that need it.
         needed_by: String,
     },
+    /// A stage was built without part of the set-up it needs (the resolved reaction, a
+    /// state's channel). Planning refuses such a config, so this is an internal defect, not
+    /// a missing key of the user's run record.
+    #[error("{stage} was built without {what} from the config's set-up (a defect of xsflow: the config check should have refused it)")]
+    NoSetup {
+        /// The stage and setting.
+        stage: String,
+        /// What it lacks.
+        what: String,
+    },
     /// A physics formula outside its range of validity.
     #[error("{context}: {source}")]
     Physics {
@@ -80,4 +91,24 @@ pub enum StageError {
     /// The table library failed.
     #[error("table operation failed: {0}")]
     Table(#[from] PolarsError),
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn each_error_names_the_input_to_fix() {
+        // (error, the file its message is reported against)
+        let cases = [
+            (StageError::MissingColumn { column: "c".into(), found: "a, b".into() }, Origin::Table),
+            (StageError::MissingRunValue { key: "charge_c".into(), needed_by: "normalise".into() }, Origin::RunRecord),
+            // Issue 11: an internal lack of set-up was reported as a key missing from the run
+            // record, sending the user to the wrong file.
+            (StageError::NoSetup { stage: "compute_kinematics".into(), what: "the reaction".into() }, Origin::Config),
+        ];
+        for (e, origin) in cases {
+            assert_eq!(e.origin(), origin, "{e}");
+        }
+    }
 }

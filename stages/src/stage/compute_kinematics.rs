@@ -81,9 +81,9 @@ impl Stage for ComputeKinematics {
         vec!["theta_cm_deg", "theta_cm_err_deg", "domega_lab_per_domega_cm", "energy_lab_mev", "branch"]
     }
     fn run(&self, table: DataFrame, ctx: &RunContext<'_>) -> Result<DataFrame, StageError> {
-        let reaction = ctx.setup.resolved.as_ref().ok_or_else(|| StageError::MissingRunValue {
-            key: "reaction".into(),
-            needed_by: "compute_kinematics".into(),
+        let reaction = ctx.setup.resolved.as_ref().ok_or_else(|| StageError::NoSetup {
+            stage: "compute_kinematics".into(),
+            what: "the resolved reaction".into(),
         })?;
         let detectors = row_detectors(&table, ctx.setup)?;
         let states = str_values(&table, "state")?;

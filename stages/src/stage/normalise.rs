@@ -199,16 +199,16 @@ impl Normalise {
     }
 
     fn monitor_luminosity(m: &Monitor, table: &DataFrame) -> Result<(f64, f64), StageError> {
-        let reaction = m.reaction.as_ref().ok_or_else(|| StageError::MissingRunValue {
-            key: "reaction".into(),
-            needed_by: "normalise (monitor mode)".into(),
+        let reaction = m.reaction.as_ref().ok_or_else(|| StageError::NoSetup {
+            stage: "normalise (monitor mode)".into(),
+            what: "the resolved reaction".into(),
         })?;
         let detectors = str_values(table, "detector")?;
         let states = str_values(table, "state")?;
         let cols = MONITOR_INPUTS[2..].iter().map(|c| f64_values(table, c)).collect::<Result<Vec<_>, _>>()?;
-        let channel = reaction.channel(&m.state).ok_or_else(|| StageError::MissingRunValue {
-            key: m.state.clone(),
-            needed_by: "normalise (monitor_state)".into(),
+        let channel = reaction.channel(&m.state).ok_or_else(|| StageError::NoSetup {
+            stage: "normalise (monitor_state)".into(),
+            what: format!("a channel of state {}", m.state),
         })?;
         let mut points = Vec::new();
         for id in &m.detectors {
@@ -286,9 +286,9 @@ impl Stage for Normalise {
                 (beam * target, quadrature(&[beam_rel, target_rel, live_rel]))
             }
             (None, None) => {
-                return Err(StageError::MissingRunValue {
-                    key: "reaction".into(),
-                    needed_by: "normalise, which was built without a set-up".into(),
+                return Err(StageError::NoSetup {
+                    stage: "normalise".into(),
+                    what: "the absolute or monitor normalisation".into(),
                 })
             }
         };
