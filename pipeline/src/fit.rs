@@ -212,7 +212,8 @@ pub fn run(loaded: &LoadedFit, table: &DataFrame, state: &str) -> Result<FitOutp
     Ok(FitOutput { report, curve })
 }
 
-/// Write `fit.yaml`, `fit.json`, `curve.csv` and `curve.parquet` into `dir`, atomically.
+/// Write `fit.yaml`, `fit.json`, `curve.csv`, `curve.parquet` (with the provenance record
+/// in its metadata) and the record itself (`provenance.json`) into `dir`, atomically.
 ///
 /// # Errors
 /// A diagnostic naming the file that could not be written.
@@ -228,6 +229,7 @@ pub fn write(dir: &Path, out: &mut FitOutput, provenance_json: &str) -> Result<V
         (dir.join("fit.json"), json.into_bytes()),
         (dir.join("curve.csv"), csv),
         (dir.join("curve.parquet"), parquet),
+        (dir.join(crate::run::PROVENANCE_JSON), format!("{provenance_json}\n").into_bytes()),
     ];
     write_all_atomic(&files).map_err(|e| e.diagnostic())?;
     Ok(files.into_iter().map(|(path, _)| path).collect())
