@@ -148,7 +148,7 @@ fn issue_11_a_fit_data_file_that_cannot_be_read_is_an_error_naming_it_not_a_hash
     std::fs::create_dir_all(gone.parent().expect("parent")).expect("folder");
     std::os::unix::fs::symlink(tmp.path().join("removed.parquet"), &gone).expect("link");
     for (path, os_error) in [(&folder, "Is a directory"), (&gone, "No such file or directory")] {
-        let err = xsflow::fit::provenance_json(&loaded, &[path.clone()], tmp.path())
+        let err = xsflow::fit::provenance_json(&loaded, std::slice::from_ref(path), tmp.path())
             .expect_err("an unreadable data file is an error");
         let msg = err.to_string();
         assert!(msg.starts_with(&path.display().to_string()), "names the file: {msg}");

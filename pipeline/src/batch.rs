@@ -383,6 +383,9 @@ fn remove_stale_temporaries(out: &Path) {
     }
 }
 
+/// Reduced tables, each with its run and the hashes of its inputs.
+type RunTables = Vec<(DataFrame, RunInputs)>;
+
 /// The reduced tables (with their runs and inputs) of this plan's runs that are `ok` in the
 /// catalogue, in run order, read back from the output folder. A run whose table or
 /// provenance record cannot be read back fails: it is left out, returned as a failure
@@ -390,11 +393,7 @@ fn remove_stale_temporaries(out: &Path) {
 ///
 /// # Errors
 /// A catalogue that cannot be read or written.
-fn ok_tables(
-    plan: &Plan,
-    out: &Path,
-    catalogue: &mut Catalogue,
-) -> Result<(Vec<(DataFrame, RunInputs)>, Vec<RunFailure>), Diagnostic> {
+fn ok_tables(plan: &Plan, out: &Path, catalogue: &mut Catalogue) -> Result<(RunTables, Vec<RunFailure>), Diagnostic> {
     let (mut tables, mut failures) = (Vec::new(), Vec::new());
     for run in &plan.runs {
         let label = run.label();
