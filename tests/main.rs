@@ -9,6 +9,7 @@ mod config;
 mod fitting;
 mod kinematics;
 mod nist;
+mod provenance;
 mod raw;
 mod reference;
 mod regression;

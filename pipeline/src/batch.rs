@@ -22,7 +22,7 @@ use crate::catalogue::{Catalogue, RunEntry, RunStatus, CATALOGUE_FILE};
 use crate::config::YamlFile;
 use crate::error::{Diagnostic, RunFailure};
 use crate::plan::{Plan, PlannedRun};
-use crate::provenance::{record_time_s, rfc3339_utc, sha256_file, sha256_hex, InputFile};
+use crate::provenance::{record_time_s, rfc3339_utc, sha256_hex, RunInputs};
 use crate::run::{output_files, reduce_run, Summary, CROSS_SECTIONS_PARQUET, PROVENANCE_JSON};
 use crate::tables::write_all_atomic;
 
@@ -272,14 +272,16 @@ pub fn batch(plan: &Plan, opts: &BatchOptions) -> Result<(BatchSummary, Vec<RunF
     // runs' hashes, the whole config, the fit files) or an output is missing; the key is
     // recorded after they are written, so a batch killed before that redoes them.
     if opts.shard.is_none() {
-        let guard = catalogue.lock().map_err(|_| fail("catalogue lock poisoned".into()))?;
+        let mut guard = catalogue.lock().map_err(|_| fail("catalogue lock poisoned".into()))?;
         let key = combined_key(plan, &guard)?;
         let missing = !opts.out.join(crate::run::ANGULAR_DISTRIBUTION_PARQUET).is_file()
             || plan.fits.iter().any(|f| !opts.out.join(crate::run::FITS_DIR).join(&f.name).join("fit.json").is_file());
         if missing || guard.meta("combined_key").map_err(fail)?.as_deref() != Some(key.as_str()) {
-            let tables = ok_tables(plan, &opts.out, &guard)?;
-            let mut s = Summary::default();
             let before = failures.len();
+            let (tables, unreadable) = ok_tables(plan, &opts.out, &mut guard)?;
+            summary.failed += unreadable.len();
+            failures.extend(unreadable);
+            let mut s = Summary::default();
             crate::run::combine_then_fit(plan, &tables, &opts.out, &mut s, &mut failures);
             summary.fits_ok = s.fits_ok;
             summary.fits_failed = s.fits_failed;
@@ -344,7 +346,7 @@ fn probe_writable(out: &Path) -> std::io::Result<()> {
 /// What the combined distribution and the fits are made of: the ok runs and their hashes,
 /// the config file, the fit files.
 fn combined_key(plan: &Plan, catalogue: &Catalogue) -> Result<String, Diagnostic> {
-    let mut parts = vec![sha256_file(&plan.config_path).unwrap_or_default()];
+    let mut parts = vec![plan.config_sha256.clone()];
     for f in &plan.fits {
         parts.push(sha256_hex(&f.loaded.bytes));
     }
@@ -381,25 +383,42 @@ fn remove_stale_temporaries(out: &Path) {
     }
 }
 
-/// The reduced tables (and their inputs) of this plan's runs that are `ok` in the
-/// catalogue, in run order, read back from the output folder.
-fn ok_tables(plan: &Plan, out: &Path, catalogue: &Catalogue) -> Result<Vec<(DataFrame, Vec<InputFile>)>, Diagnostic> {
-    let mut tables = Vec::new();
+/// Reduced tables, each with its run and the hashes of its inputs.
+type RunTables = Vec<(DataFrame, RunInputs)>;
+
+/// The reduced tables (with their runs and inputs) of this plan's runs that are `ok` in the
+/// catalogue, in run order, read back from the output folder. A run whose table or
+/// provenance record cannot be read back fails: it is left out, returned as a failure
+/// and marked failed in the catalogue, so that the next batch reduces it again.
+///
+/// # Errors
+/// A catalogue that cannot be read or written.
+fn ok_tables(plan: &Plan, out: &Path, catalogue: &mut Catalogue) -> Result<(RunTables, Vec<RunFailure>), Diagnostic> {
+    let (mut tables, mut failures) = (Vec::new(), Vec::new());
     for run in &plan.runs {
         let label = run.label();
-        if catalogue.get(&label).map_err(|m| Diagnostic::new(out, "", m))?.is_some_and(|e| e.status.has_outputs()) {
-            let dir = out.join(&label);
-            let t = crate::tables::read_table(&dir.join(CROSS_SECTIONS_PARQUET))
-                .map_err(|m| Diagnostic::new(&dir, "", m))?;
-            let inputs = std::fs::read_to_string(dir.join(PROVENANCE_JSON))
-                .ok()
-                .and_then(|s| serde_json::from_str::<serde_json::Value>(&s).ok())
-                .and_then(|v| serde_json::from_value::<Vec<InputFile>>(v["inputs"].clone()).ok())
-                .unwrap_or_default();
-            tables.push((t, inputs));
+        let Some(mut entry) = catalogue.get(&label).map_err(|m| Diagnostic::new(out, "", m))? else { continue };
+        if !entry.status.has_outputs() {
+            continue;
+        }
+        let dir = out.join(&label);
+        let (table, record) = (dir.join(CROSS_SECTIONS_PARQUET), dir.join(PROVENANCE_JSON));
+        let read_back = crate::tables::read_table(&table)
+            .map_err(|m| Diagnostic::new(&table, "", m))
+            .and_then(|t| Ok((t, RunInputs::read(&record).map_err(|m| Diagnostic::new(&record, "", m))?)));
+        match read_back {
+            Ok(t) => tables.push(t),
+            Err(d) => {
+                let d =
+                    d.with_help("the run is left out of the combination and the fits; the next batch reduces it again");
+                entry.status = RunStatus::Failed;
+                entry.error = d.to_string();
+                catalogue.put(&entry).map_err(|m| Diagnostic::new(out, "", m))?;
+                failures.push(RunFailure { run: label, problems: vec![d] });
+            }
         }
     }
-    Ok(tables)
+    Ok((tables, failures))
 }
 
 /// Merge the output folders of the shards of one batch into `out`: the run folders copied,
@@ -471,8 +490,8 @@ pub fn merge(dirs: &[PathBuf], out: &Path) -> Result<(BatchSummary, Vec<RunFailu
     }
     let plan = crate::plan::plan(Path::new(&config))
         .map_err(|d| d.into_iter().next().unwrap_or_else(|| fail(out, "bad config".into())))?;
-    let tables = ok_tables(&plan, out, &merged)?;
-    let mut failures = Vec::new();
+    let (tables, mut failures) = ok_tables(&plan, out, &mut merged)?;
+    summary.failed += failures.len();
     let mut s = Summary::default();
     crate::run::combine_then_fit(&plan, &tables, out, &mut s, &mut failures);
     summary.fits_ok = s.fits_ok;

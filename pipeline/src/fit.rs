@@ -11,7 +11,7 @@ use stages::physics::model_fit::NORMALISATION;
 
 use crate::config::YamlFile;
 use crate::error::Diagnostic;
-use crate::provenance::{record_time_s, rfc3339_utc, sha256_hex, InputFile, Provenance};
+use crate::provenance::{record_time_s, rfc3339_utc, sha256_file, sha256_hex, InputFile, Provenance};
 use crate::tables::{csv_bytes, is_csv, parquet_bytes, read_table, write_all_atomic};
 
 /// A fit file, read, checked and built.
@@ -72,14 +72,20 @@ fn read_curve(path: &Path) -> Result<CurveTable, Diagnostic> {
 /// `*/cross_sections.parquet` in it, stacked in folder-name order).
 ///
 /// # Errors
-/// Unreadable files, a folder without reduced runs, tables that do not stack.
+/// Unreadable files or folders, a folder without reduced runs, tables that do not stack.
 pub fn read_data(path: &Path) -> Result<(DataFrame, Vec<PathBuf>), Diagnostic> {
     if !path.is_dir() {
         return read_table(path).map(|t| (t, vec![path.to_path_buf()])).map_err(|m| Diagnostic::new(path, "", m));
     }
     let pattern = path.join("*").join(crate::run::CROSS_SECTIONS_PARQUET);
-    let mut files: Vec<PathBuf> =
-        glob::glob(&pattern.to_string_lossy()).map(|g| g.filter_map(Result::ok).collect()).unwrap_or_default();
+    let matches = glob::glob(&pattern.to_string_lossy()).map_err(|e| {
+        Diagnostic::new(path, "", format!("cannot search the folder for reduced runs ({e})"))
+            .with_help("rename the folder without the glob characters * ? [ ]")
+    })?;
+    // A folder that cannot be read could hold a run: an error, never a run left out.
+    let mut files = matches
+        .map(|m| m.map_err(|e| Diagnostic::new(e.path(), "", format!("cannot read it: {}", e.error()))))
+        .collect::<Result<Vec<PathBuf>, _>>()?;
     files.sort();
     if files.is_empty() {
         return Err(Diagnostic::new(path, "", "no reduced runs found (looked for */cross_sections.parquet)")
@@ -109,17 +115,31 @@ pub struct FitProvenance {
     pub created_utc: String,
 }
 
-/// The provenance record of a fit, as JSON.
-pub fn provenance_json(loaded: &LoadedFit, data_files: &[PathBuf], base: &Path) -> String {
+/// The provenance record of a fit, as JSON: every data file is hashed (paths relative to
+/// `base`).
+///
+/// # Errors
+/// A data file that cannot be read (gone since it was fitted, say), named with the OS error.
+pub fn provenance_json(loaded: &LoadedFit, data_files: &[PathBuf], base: &Path) -> Result<String, Diagnostic> {
+    let inputs = data_files
+        .iter()
+        .map(|f| {
+            sha256_file(f).map(|sha| Provenance::input_hashed(base, f, sha)).map_err(|e| {
+                Diagnostic::new(f, "", format!("cannot read the data file to hash it for the fit's provenance: {e}"))
+                    .with_help("nothing was written; make the file readable (or restore it) and fit again")
+            })
+        })
+        .collect::<Result<Vec<_>, _>>()?;
     let record = FitProvenance {
         program: "xsflow",
         version: env!("CARGO_PKG_VERSION"),
         fit_file: loaded.path.to_string_lossy().into_owned(),
         fit_sha256: sha256_hex(&loaded.bytes),
-        inputs: data_files.iter().map(|f| Provenance::input(base, f, &std::fs::read(f).unwrap_or_default())).collect(),
+        inputs,
         created_utc: rfc3339_utc(record_time_s()),
     };
-    serde_json::to_string_pretty(&record).unwrap_or_default()
+    serde_json::to_string_pretty(&record)
+        .map_err(|e| Diagnostic::new(&loaded.path, "", format!("cannot encode the fit's provenance: {e}")))
 }
 
 /// Stack tables with the columns the fit reads (and `run`, `detector`) in that order.
@@ -202,7 +222,8 @@ pub fn run(loaded: &LoadedFit, table: &DataFrame, state: &str) -> Result<FitOutp
     Ok(FitOutput { report, curve })
 }
 
-/// Write `fit.yaml`, `fit.json`, `curve.csv` and `curve.parquet` into `dir`, atomically.
+/// Write `fit.yaml`, `fit.json`, `curve.csv`, `curve.parquet` (with the provenance record
+/// in its metadata) and the record itself (`provenance.json`) into `dir`, atomically.
 ///
 /// # Errors
 /// A diagnostic naming the file that could not be written.
@@ -218,6 +239,7 @@ pub fn write(dir: &Path, out: &mut FitOutput, provenance_json: &str) -> Result<V
         (dir.join("fit.json"), json.into_bytes()),
         (dir.join("curve.csv"), csv),
         (dir.join("curve.parquet"), parquet),
+        (dir.join(crate::run::PROVENANCE_JSON), format!("{provenance_json}\n").into_bytes()),
     ];
     write_all_atomic(&files).map_err(|e| e.diagnostic())?;
     Ok(files.into_iter().map(|(path, _)| path).collect())

@@ -248,7 +248,13 @@ fn fit_command(data: &Path, model: &Path, state: Option<&str>, out: Option<&Path
         }
     };
     let out_dir = out.map_or_else(|| model.parent().unwrap_or(Path::new(".")).join("fit"), Path::to_path_buf);
-    let record = fit::provenance_json(&loaded, &files, Path::new("."));
+    let record = match fit::provenance_json(&loaded, &files, Path::new(".")) {
+        Ok(r) => r,
+        Err(d) => {
+            report(&[d]);
+            return 2;
+        }
+    };
     if let Err(d) = fit::write(&out_dir, &mut output, &record) {
         report(&[d]);
         return 2;

@@ -22,9 +22,9 @@ pub struct InputFile {
     pub sha256: String,
 }
 
-/// The provenance record of one run's outputs.
+/// What every record of a config's outputs starts with: the program and the config.
 #[derive(Debug, Clone, Serialize)]
-pub struct Provenance {
+pub struct MadeWith {
     /// Always `xsflow`.
     pub program: &'static str,
     /// Program version.
@@ -33,6 +33,26 @@ pub struct Provenance {
     pub config_file: String,
     /// SHA-256 of the config file.
     pub config_sha256: String,
+}
+
+impl MadeWith {
+    /// This program and the config at `config_file` whose bytes hash to `config_sha256`.
+    pub fn new(config_file: &Path, config_sha256: String) -> MadeWith {
+        MadeWith {
+            program: "xsflow",
+            version: env!("CARGO_PKG_VERSION"),
+            config_file: config_file.to_string_lossy().into_owned(),
+            config_sha256,
+        }
+    }
+}
+
+/// The provenance record of one run's outputs.
+#[derive(Debug, Clone, Serialize)]
+pub struct Provenance {
+    /// Program and config.
+    #[serde(flatten)]
+    pub made_with: MadeWith,
     /// The run.
     pub run: String,
     /// The stages applied, in order.
@@ -43,7 +63,49 @@ pub struct Provenance {
     pub created_utc: String,
 }
 
+/// One run that went into an output made of several runs, with the hashes of its inputs.
+#[derive(Debug, Clone, Serialize, serde::Deserialize, PartialEq, Eq)]
+pub struct RunInputs {
+    /// The run id.
+    pub run: String,
+    /// Its record and data file with their hashes.
+    pub inputs: Vec<InputFile>,
+}
+
+impl RunInputs {
+    /// The run and its inputs as a run's provenance record (`provenance.json`) gives them.
+    ///
+    /// # Errors
+    /// The file cannot be read (the OS error) or holds no run and inputs.
+    pub fn read(path: &Path) -> Result<RunInputs, String> {
+        let text =
+            std::fs::read_to_string(path).map_err(|e| format!("cannot read the run's provenance record: {e}"))?;
+        serde_json::from_str(&text).map_err(|e| {
+            format!("found a file that is not a run's provenance record ({e}), expected JSON with `run` and `inputs`")
+        })
+    }
+}
+
+/// The provenance record of an output made of several runs (the combined distribution).
+#[derive(Debug, Clone, Serialize)]
+pub struct CombinedProvenance {
+    /// Program and config; the config file relative to its own folder, like the inputs.
+    #[serde(flatten)]
+    pub made_with: MadeWith,
+    /// The stages applied to every run, in order.
+    pub stages: Vec<String>,
+    /// Every run that went in, in run order, with the hashes of its inputs.
+    pub runs: Vec<RunInputs>,
+    /// When the record was made, UTC, RFC 3339.
+    pub created_utc: String,
+}
+
 impl Provenance {
+    /// The run and its inputs, for a record of several runs.
+    pub fn run_inputs(&self) -> RunInputs {
+        RunInputs { run: self.run.clone(), inputs: self.inputs.clone() }
+    }
+
     /// Hash an input file already read into memory; its path is written relative to `base`.
     pub fn input(base: &Path, path: &Path, bytes: &[u8]) -> InputFile {
         Provenance::input_hashed(base, path, sha256_hex(bytes))

@@ -10,7 +10,7 @@ use tracing::{debug, info, info_span, warn};
 
 use crate::error::{Diagnostic, RunFailure};
 use crate::plan::{LoadedRun, Plan};
-use crate::provenance::{record_time_s, rfc3339_utc, Provenance};
+use crate::provenance::{record_time_s, rfc3339_utc, CombinedProvenance, MadeWith, Provenance, RunInputs};
 use crate::tables::{csv_bytes, is_csv, parquet_bytes, read_table, write_all_atomic};
 
 /// File names of one run's outputs inside `<out>/<run>/`.
@@ -177,12 +177,9 @@ fn read_and_reduce(plan: &Plan, run: &LoadedRun) -> Result<Reduced, Vec<Diagnost
     }
     let base = &plan.config_dir;
     let provenance = Provenance {
-        program: "xsflow",
-        version: env!("CARGO_PKG_VERSION"),
-        config_file: plan.config_path.to_string_lossy().into_owned(),
-        config_sha256: plan.config_sha256.clone(),
+        made_with: MadeWith::new(&plan.config_path, plan.config_sha256.clone()),
         run: run.record.run.0.clone(),
-        stages: plan.stages.iter().map(|s| s.stage.name().to_string()).collect(),
+        stages: stage_names(plan),
         inputs: vec![
             Provenance::input(base, &run.record_path, &run.record_bytes),
             Provenance::input_hashed(base, yields, sha),
@@ -190,6 +187,11 @@ fn read_and_reduce(plan: &Plan, run: &LoadedRun) -> Result<Reduced, Vec<Diagnost
         created_utc: rfc3339_utc(record_time_s()),
     };
     Ok(Reduced { table, provenance, raw: raw_outputs })
+}
+
+/// The names of the stages applied to every run, in order.
+fn stage_names(plan: &Plan) -> Vec<String> {
+    plan.stages.iter().map(|s| s.stage.name().to_string()).collect()
 }
 
 /// A stage or table error as a diagnostic; a data row of a CSV file gets its line number.
@@ -307,7 +309,7 @@ pub fn reduce_all(plan: &Plan, out_dir: &Path) -> (Summary, Vec<RunFailure>) {
         let result = planned.loaded.as_ref().map_err(Clone::clone).and_then(|run| {
             let mut reduced = reduce_run(plan, run)?;
             let files = write_outputs(out_dir, &mut reduced).map_err(|d| vec![d])?;
-            tables.push((reduced.table, reduced.provenance.inputs));
+            tables.push((reduced.table, reduced.provenance.run_inputs()));
             Ok(files)
         });
         match result {
@@ -326,22 +328,20 @@ pub fn reduce_all(plan: &Plan, out_dir: &Path) -> (Summary, Vec<RunFailure>) {
     (summary, failures)
 }
 
-/// Combine the runs, write the distribution, and fit it.
+/// Combine the runs (each reduced table with its run and inputs), write the distribution,
+/// and fit it.
 pub fn combine_then_fit(
     plan: &Plan,
-    tables: &[(DataFrame, Vec<crate::provenance::InputFile>)],
+    tables: &[(DataFrame, RunInputs)],
     out_dir: &Path,
     summary: &mut Summary,
     failures: &mut Vec<RunFailure>,
 ) {
     let frames: Vec<DataFrame> = tables.iter().map(|(t, _)| t.clone()).collect();
-    match combine_and_write(plan, &frames, out_dir) {
-        Ok(Some(combined)) => {
-            let inputs: Vec<crate::provenance::InputFile> =
-                tables.iter().flat_map(|(_, i)| i.iter().cloned()).collect();
-            run_fits(plan, &[(combined, inputs)], out_dir, summary, failures);
-        }
-        Ok(None) => run_fits(plan, tables, out_dir, summary, failures),
+    let runs: Vec<RunInputs> = tables.iter().map(|(_, r)| r.clone()).collect();
+    match combine_and_write(plan, &frames, &runs, out_dir) {
+        Ok(Some(combined)) => run_fits(plan, &[combined], &runs, out_dir, summary, failures),
+        Ok(None) => run_fits(plan, &frames, &runs, out_dir, summary, failures),
         Err(d) => failures.push(RunFailure { run: "combination".into(), problems: vec![d] }),
     }
 }
@@ -352,14 +352,22 @@ pub const ANGULAR_DISTRIBUTION_PARQUET: &str = "angular_distribution.parquet";
 pub const ANGULAR_DISTRIBUTION_CSV: &str = "angular_distribution.csv";
 /// Its covariance matrix, long format (i, j, covariance).
 pub const COVARIANCE_CSV: &str = "angular_distribution_covariance.csv";
+/// The provenance record of both (also in the Parquet file's metadata).
+pub const ANGULAR_DISTRIBUTION_PROVENANCE_JSON: &str = "angular_distribution_provenance.json";
 
 /// Combine the reduced tables of the runs into one angular distribution per state
-/// ([`stages::combine`]), write it with its covariance matrix into `out_dir`, and return
-/// it (`None` when the tables lack the CM cross sections).
+/// ([`stages::combine`]), write it with its covariance matrix and its provenance record
+/// (`runs`: each run that went in with the hashes of its inputs) into `out_dir`, and
+/// return it (`None` when the tables lack the CM cross sections).
 ///
 /// # Errors
 /// A row that cannot be weighted, or an output that cannot be written.
-pub fn combine_and_write(plan: &Plan, tables: &[DataFrame], out_dir: &Path) -> Result<Option<DataFrame>, Diagnostic> {
+pub fn combine_and_write(
+    plan: &Plan,
+    tables: &[DataFrame],
+    runs: &[RunInputs],
+    out_dir: &Path,
+) -> Result<Option<DataFrame>, Diagnostic> {
     let fail = |m: String| Diagnostic::new(out_dir, "", m);
     let mut rows = Vec::new();
     for t in tables {
@@ -422,30 +430,43 @@ pub fn combine_and_write(plan: &Plan, tables: &[DataFrame], out_dir: &Path) -> R
             }
         }
     }
+    // The config by its name, relative to its folder like the inputs: the record does not
+    // depend on where xsflow was started, so merged shards give the bytes of one batch.
+    let config_name = Path::new(plan.config_path.file_name().unwrap_or_default());
+    let record = CombinedProvenance {
+        made_with: MadeWith::new(config_name, plan.config_sha256.clone()),
+        stages: stage_names(plan),
+        runs: runs.to_vec(),
+        created_utc: rfc3339_utc(record_time_s()),
+    };
+    let record = serde_json::to_string_pretty(&record).map_err(|e| fail(e.to_string()))?;
     let files = [
         (out_dir.join(ANGULAR_DISTRIBUTION_CSV), csv_bytes(&mut table).map_err(|e| fail(e.to_string()))?),
         (
             out_dir.join(ANGULAR_DISTRIBUTION_PARQUET),
-            parquet_bytes(&mut table, vec![]).map_err(|e| fail(e.to_string()))?,
+            parquet_bytes(&mut table, vec![(PROVENANCE_KEY.to_string(), record.clone())])
+                .map_err(|e| fail(e.to_string()))?,
         ),
         (out_dir.join(COVARIANCE_CSV), cov_csv.into_bytes()),
+        (out_dir.join(ANGULAR_DISTRIBUTION_PROVENANCE_JSON), format!("{record}\n").into_bytes()),
     ];
     write_all_atomic(&files).map_err(|e| e.diagnostic())?;
     Ok(Some(table))
 }
 
-/// Run the plan's fits on the reduced tables (with the inputs they came from), counting
-/// them in `summary` and their failures in `failures`.
+/// Run the plan's fits on the reduced tables (made from `runs`), counting them in `summary`
+/// and their failures in `failures`.
 pub fn run_fits(
     plan: &Plan,
-    tables: &[(DataFrame, Vec<crate::provenance::InputFile>)],
+    tables: &[DataFrame],
+    runs: &[RunInputs],
     out_dir: &Path,
     summary: &mut Summary,
     failures: &mut Vec<RunFailure>,
 ) {
     for f in &plan.fits {
         let _span = info_span!("fit", fit = %f.name).entered();
-        let result = without_panics(&f.loaded.path, || run_fit(plan, f, tables, out_dir)).and_then(|r| r);
+        let result = without_panics(&f.loaded.path, || run_fit(plan, f, tables, runs, out_dir)).and_then(|r| r);
         match result {
             Ok(true) => summary.fits_ok += 1,
             Ok(false) => {
@@ -472,14 +493,14 @@ pub fn run_fits(
 fn run_fit(
     plan: &Plan,
     f: &crate::plan::PlannedFit,
-    tables: &[(DataFrame, Vec<crate::provenance::InputFile>)],
+    tables: &[DataFrame],
+    runs: &[RunInputs],
     out_dir: &Path,
 ) -> Result<bool, Diagnostic> {
     if tables.is_empty() {
         return Err(Diagnostic::new(&plan.config_path, &f.key, "no run was reduced, so there is nothing to fit"));
     }
-    let stacked = crate::fit::stack(tables.iter().map(|(t, _)| t.clone()).collect())
-        .map_err(|m| Diagnostic::new(&plan.config_path, &f.key, m))?;
+    let stacked = crate::fit::stack(tables.to_vec()).map_err(|m| Diagnostic::new(&plan.config_path, &f.key, m))?;
     let mut output = crate::fit::run(&f.loaded, &stacked, &f.state)
         .map_err(|m| Diagnostic::new(&f.loaded.path, "", format!("fit of state {}: {m}", f.state)))?;
     let record = crate::fit::FitProvenance {
@@ -495,10 +516,11 @@ fn run_fit(
             .to_string_lossy()
             .replace('\\', "/"),
         fit_sha256: crate::provenance::sha256_hex(&f.loaded.bytes),
-        inputs: tables.iter().flat_map(|(_, inputs)| inputs.iter().cloned()).collect(),
+        inputs: runs.iter().flat_map(|r| r.inputs.iter().cloned()).collect(),
         created_utc: rfc3339_utc(record_time_s()),
     };
-    let json = serde_json::to_string_pretty(&record).unwrap_or_default();
+    let json = serde_json::to_string_pretty(&record)
+        .map_err(|e| Diagnostic::new(&f.loaded.path, "", format!("cannot encode the fit's provenance: {e}")))?;
     let dir = out_dir.join(FITS_DIR).join(&f.name);
     crate::fit::write(&dir, &mut output, &json)?;
     let r = &output.report;
