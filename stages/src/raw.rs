@@ -26,6 +26,7 @@ use serde::{Deserialize, Serialize};
 
 use crate::physics::kinematics::Mode;
 use crate::physics::peak_fit::{fit_peaks, Background, PeakModel};
+use crate::physics::polygon::{inside, polygon_problem};
 use crate::problem::Checks;
 use crate::{Problem, Setup};
 
@@ -290,50 +291,6 @@ pub const MAX_CHANNELS: u32 = 1 << 20;
 pub const UNKNOWN_DETECTOR: u16 = u16::MAX;
 /// Bins per axis of the 2-D (E, ΔE) histogram.
 pub const PID_BINS: usize = 128;
-
-/// Whether the segments p1–p2 and p3–p4 cross (proper or touching), by orientations
-/// (common practice; e.g. Cormen et al., Introduction to Algorithms, §33.1).
-fn segments_cross(p1: [f64; 2], p2: [f64; 2], p3: [f64; 2], p4: [f64; 2]) -> bool {
-    let orient = |a: [f64; 2], b: [f64; 2], c: [f64; 2]| (b[0] - a[0]) * (c[1] - a[1]) - (b[1] - a[1]) * (c[0] - a[0]);
-    let (d1, d2) = (orient(p3, p4, p1), orient(p3, p4, p2));
-    let (d3, d4) = (orient(p1, p2, p3), orient(p1, p2, p4));
-    (d1 * d2 < 0.0) && (d3 * d4 < 0.0)
-}
-
-/// A polygon's problem: fewer than 3 vertices, or two non-adjacent edges that cross.
-pub fn polygon_problem(poly: &[[f64; 2]]) -> Option<String> {
-    if poly.len() < 3 {
-        return Some(format!("{} vertices", poly.len()));
-    }
-    if poly.iter().flatten().any(|v| !v.is_finite()) {
-        return Some("a non-finite vertex".into());
-    }
-    let n = poly.len();
-    for i in 0..n {
-        for j in i + 1..n {
-            let adjacent = j == i + 1 || (i == 0 && j == n - 1);
-            if !adjacent && segments_cross(poly[i], poly[(i + 1) % n], poly[j], poly[(j + 1) % n]) {
-                return Some(format!("edges {i}–{} and {j}–{} cross (self-intersecting)", i + 1, (j + 1) % n));
-            }
-        }
-    }
-    None
-}
-
-/// Point in polygon by the even–odd crossing rule (W. R. Franklin, PNPOLY; common practice).
-pub fn inside(poly: &[[f64; 2]], x: f64, y: f64) -> bool {
-    let mut c = false;
-    let n = poly.len();
-    let mut j = n - 1;
-    for i in 0..n {
-        let (pi, pj) = (poly[i], poly[j]);
-        if (pi[1] > y) != (pj[1] > y) && x < (pj[0] - pi[0]) * (y - pi[1]) / (pj[1] - pi[1]) + pi[0] {
-            c = !c;
-        }
-        j = i;
-    }
-    c
-}
 
 impl RawConfig {
     /// Check the section against the set-up: every detector calibrated and rising, windows
@@ -967,19 +924,4 @@ fn fit_detector(
             })
             .collect(),
     })
-}
-
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn polygons_are_checked() {
-        assert!(polygon_problem(&[[0.0, 0.0], [1.0, 0.0]]).is_some());
-        // A bow tie crosses itself.
-        assert!(polygon_problem(&[[0.0, 0.0], [1.0, 1.0], [1.0, 0.0], [0.0, 1.0]]).is_some_and(|w| w.contains("cross")));
-        let square = [[0.0, 0.0], [2.0, 0.0], [2.0, 2.0], [0.0, 2.0]];
-        assert!(polygon_problem(&square).is_none());
-        assert!(inside(&square, 1.0, 1.0) && !inside(&square, 3.0, 1.0) && !inside(&square, 1.0, -0.5));
-    }
 }
