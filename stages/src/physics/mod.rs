@@ -16,6 +16,7 @@ pub mod nuclide;
 pub mod optical;
 pub mod partial_waves;
 pub mod peak_fit;
+pub mod polygon;
 pub mod rutherford;
 pub mod solid_angle;
 pub mod synthetic;

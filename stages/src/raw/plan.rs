@@ -1,0 +1,329 @@
+//! The checked `raw:` section for one set-up: [`RawConfig::build`] resolves every
+//! detector's calibration, places its gates (around the kinematic energy of each state, or
+//! where written), checks the PID polygons, and precomputes the gate category of every ADC
+//! channel. The resulting [`RawPlan`] is built once per set-up, before any run is read;
+//! `accumulate.rs` then sorts each run's events with it.
+
+use serde::Serialize;
+
+use crate::physics::kinematics::Mode;
+use crate::physics::polygon::polygon_problem;
+use crate::problem::Checks;
+use crate::{Problem, Setup};
+
+use super::{CalibrationConfig, RawConfig, WindowConfig};
+
+/// A [low, high) interval in MeV.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Interval {
+    /// Low edge.
+    pub low_mev: f64,
+    /// High edge.
+    pub high_mev: f64,
+}
+
+impl Interval {
+    fn new(a: [f64; 2]) -> Self {
+        Interval { low_mev: a[0], high_mev: a[1] }
+    }
+    pub(super) fn contains(&self, e: f64) -> bool {
+        self.low_mev <= e && e < self.high_mev
+    }
+    fn overlaps(&self, o: &Interval) -> bool {
+        self.low_mev < o.high_mev && o.low_mev < self.high_mev
+    }
+    pub(super) fn width(&self) -> f64 {
+        self.high_mev - self.low_mev
+    }
+}
+
+/// The gates of one detector and state, as used (recorded with the spectra).
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Gate {
+    /// Detector id.
+    pub detector: String,
+    /// State.
+    pub state: String,
+    /// Kinematic energy, MeV (automatic windows are centred on it).
+    pub energy_kinematic_mev: f64,
+    /// Peak window.
+    pub window: Interval,
+    /// Left side band.
+    pub left: Interval,
+    /// Right side band.
+    pub right: Interval,
+}
+
+/// One detector's plan.
+#[derive(Debug, Clone)]
+pub(super) struct DetectorPlan {
+    pub(super) id: String,
+    pub(super) cal: CalibrationConfig,
+    pub(super) gates: Vec<(usize, Gate)>,
+    pub(super) pid: Option<Vec<[f64; 2]>>,
+}
+
+/// A checked `raw:` section for one set-up.
+#[derive(Debug, Clone)]
+pub struct RawPlan {
+    /// The section.
+    pub config: RawConfig,
+    pub(super) detectors: Vec<DetectorPlan>,
+    pub(super) states: Vec<String>,
+    /// Per detector, per channel: the category index (see `category`).
+    pub(super) categories: Vec<u8>,
+    pub(super) n_channels: usize,
+}
+
+/// The largest `overflow_channel`: spectra are held as one histogram per detector, so the
+/// channel count bounds the memory (2^20 channels, 8 MB per detector).
+pub const MAX_CHANNELS: u32 = 1 << 20;
+
+/// Marks an event whose detector value is not a known detector.
+pub const UNKNOWN_DETECTOR: u16 = u16::MAX;
+
+impl WindowConfig {
+    /// One interval given in MeV or in channels (converted by `cal`), if given.
+    fn interval(mev: Option<[f64; 2]>, channels: Option<[f64; 2]>, cal: &CalibrationConfig) -> Option<Interval> {
+        mev.map(Interval::new).or_else(|| channels.map(|[a, b]| Interval::new([cal.energy_mev(a), cal.energy_mev(b)])))
+    }
+}
+
+impl RawConfig {
+    /// Check the section against the set-up: every detector calibrated and rising, windows
+    /// inside the spectrum, no two windows of a detector overlapping (unless allowed), no
+    /// side band overlapping a window, polygons valid.
+    ///
+    /// # Errors
+    /// Every problem, keys relative to `raw`.
+    pub fn build(&self, setup: &Setup) -> Result<RawPlan, Vec<Problem>> {
+        let mut c = Checks::default();
+        let g = &self.gates;
+        c.positive("gates.resolution_mev", g.resolution_mev);
+        c.positive("gates.window_resolutions", g.window_resolutions);
+        c.non_negative("gates.side_band_gap_resolutions", g.side_band_gap_resolutions);
+        c.positive("gates.side_band_width_resolutions", g.side_band_width_resolutions);
+        c.require(
+            (2..=MAX_CHANNELS).contains(&self.overflow_channel),
+            "overflow_channel",
+            self.overflow_channel,
+            &format!("a channel count from 2 to {MAX_CHANNELS}"),
+        );
+        let ids: Vec<&str> = setup.detectors.iter().map(|d| d.id.0.as_str()).collect();
+        for (k, id) in &self.detector_ids {
+            c.require(
+                ids.contains(&id.as_str()),
+                &format!("detector_ids.{k}"),
+                id,
+                &format!("a detector id ({})", ids.join(", ")),
+            );
+        }
+        for key in self.calibration.keys().chain(self.pid.keys()) {
+            c.require(
+                key == "all" || ids.contains(&key.as_str()),
+                key,
+                key,
+                &format!("a detector id ({}) or `all`", ids.join(", ")),
+            );
+        }
+        let states: Vec<String> = setup.reaction.states.iter().map(|s| s.name.clone()).collect();
+        for (i, w) in g.windows.iter().enumerate() {
+            let key = format!("gates.windows[{i}]");
+            c.require(ids.contains(&w.detector.as_str()), &format!("{key}.detector"), &w.detector, "a detector id");
+            c.require(
+                states.contains(&w.state),
+                &format!("{key}.state"),
+                &w.state,
+                &format!("a state ({})", states.join(", ")),
+            );
+            for (a, b) in [
+                ("window", (w.window_mev, w.window_channels)),
+                ("left", (w.left_mev, w.left_channels)),
+                ("right", (w.right_mev, w.right_channels)),
+            ] {
+                c.require(
+                    b.0.is_none() || b.1.is_none(),
+                    &format!("{key}.{a}_channels"),
+                    "both MeV and channels",
+                    &format!("{a}_mev or {a}_channels, not both"),
+                );
+            }
+            c.require(
+                w.window_mev.is_some() || w.window_channels.is_some(),
+                &format!("{key}.window_mev"),
+                "missing",
+                "window_mev or window_channels",
+            );
+            for (name, iv) in [
+                ("window_mev", w.window_mev),
+                ("window_channels", w.window_channels),
+                ("left_mev", w.left_mev),
+                ("left_channels", w.left_channels),
+                ("right_mev", w.right_mev),
+                ("right_channels", w.right_channels),
+            ] {
+                if let Some([a, b]) = iv {
+                    c.require(
+                        a.is_finite() && b.is_finite() && a < b,
+                        &format!("{key}.{name}"),
+                        format!("[{a}, {b}]"),
+                        "[low, high] with low < high",
+                    );
+                }
+            }
+        }
+        let n_ch = self.overflow_channel as usize;
+        let mut detectors = Vec::new();
+        for det in &setup.detectors {
+            let det_id = det.id.0.clone();
+            let Some(cal) = self.calibration.get(&det_id).or_else(|| self.calibration.get("all")).copied() else {
+                c.require(
+                    false,
+                    &format!("calibration.{det_id}"),
+                    "missing",
+                    "a calibration for every detector (or `all`)",
+                );
+                continue;
+            };
+            let key = if self.calibration.contains_key(&det_id) { det_id.clone() } else { "all".into() };
+            let top = n_ch.saturating_sub(1) as f64;
+            let rising = cal.gain_mev_per_channel > 0.0
+                && cal.gain_mev_per_channel + 2.0 * cal.quadratic_mev_per_channel2 * top > 0.0;
+            c.require(
+                rising,
+                &format!("calibration.{key}"),
+                format!("gain {} MeV/ch, quadratic {}", cal.gain_mev_per_channel, cal.quadratic_mev_per_channel2),
+                "a calibration that rises over every channel (gain > 0)",
+            );
+            c.non_negative(&format!("calibration.{key}.offset_err_mev"), cal.offset_err_mev);
+            c.non_negative(&format!("calibration.{key}.gain_err_mev_per_channel"), cal.gain_err_mev_per_channel);
+            let mut gates = Vec::new();
+            for (si, state) in states.iter().enumerate() {
+                let e_kin = setup.resolved.as_ref().and_then(|r| {
+                    r.channel(state)?
+                        .at_lab_angle(det.theta_lab_deg.to_radians(), r.detect, Mode::Relativistic)
+                        .first()
+                        .map(|s| s.energy_lab_mev)
+                });
+                let written = g.windows.iter().find(|w| w.detector == det_id && &w.state == state);
+                let (s, wr, gap, bw) = (
+                    g.resolution_mev,
+                    g.window_resolutions,
+                    g.side_band_gap_resolutions,
+                    g.side_band_width_resolutions,
+                );
+                let written_window =
+                    written.and_then(|w| WindowConfig::interval(w.window_mev, w.window_channels, &cal));
+                let window = match (written_window, e_kin) {
+                    (Some(w), _) => w,
+                    (None, Some(e)) => Interval { low_mev: e - wr * s, high_mev: e + wr * s },
+                    (None, None) => continue, // the state cannot reach this angle
+                };
+                let left = written.and_then(|w| WindowConfig::interval(w.left_mev, w.left_channels, &cal)).unwrap_or(
+                    Interval { low_mev: window.low_mev - (gap + bw) * s, high_mev: window.low_mev - gap * s },
+                );
+                let right =
+                    written.and_then(|w| WindowConfig::interval(w.right_mev, w.right_channels, &cal)).unwrap_or(
+                        Interval { low_mev: window.high_mev + gap * s, high_mev: window.high_mev + (gap + bw) * s },
+                    );
+                gates.push((
+                    si,
+                    Gate {
+                        detector: det_id.clone(),
+                        state: state.clone(),
+                        energy_kinematic_mev: e_kin.unwrap_or(f64::NAN),
+                        window,
+                        left,
+                        right,
+                    },
+                ));
+            }
+            for (a, (_, ga)) in gates.iter().enumerate() {
+                for (_, gb) in &gates[a + 1..] {
+                    c.require(
+                        g.allow_overlap || !ga.window.overlaps(&gb.window),
+                        "gates",
+                        format!(
+                            "{det_id}: windows of {} [{:.4}, {:.4}) and {} [{:.4}, {:.4}) MeV overlap",
+                            ga.state,
+                            ga.window.low_mev,
+                            ga.window.high_mev,
+                            gb.state,
+                            gb.window.low_mev,
+                            gb.window.high_mev
+                        ),
+                        "windows of one detector's states apart (or gates.allow_overlap: true)",
+                    );
+                }
+                for (_, gb) in &gates {
+                    for (side, iv) in [("left", ga.left), ("right", ga.right)] {
+                        c.require(
+                            !iv.overlaps(&gb.window),
+                            "gates",
+                            format!(
+                                "{det_id}: the {side} side band of {} [{:.4}, {:.4}) MeV overlaps the window of {}",
+                                ga.state, iv.low_mev, iv.high_mev, gb.state
+                            ),
+                            "side bands clear of every peak window (narrower side bands or a larger gap)",
+                        );
+                    }
+                }
+            }
+            let pid = self.pid.get(&det_id).or_else(|| self.pid.get("all")).cloned();
+            if let Some(poly) = &pid {
+                if let Some(why) = polygon_problem(poly) {
+                    c.require(false, &format!("pid.{det_id}"), why, "a simple polygon of at least 3 vertices");
+                }
+                c.require(self.columns.delta_e.is_some(), "columns.delta_e", "missing", "a ΔE column for PID polygons");
+            }
+            detectors.push(DetectorPlan { id: det_id, cal, gates, pid });
+        }
+        if !c.problems.is_empty() {
+            return Err(c.problems);
+        }
+        // Category per channel: 0 outside, 1 + 2k window of state k, 2 + 2k side band of k.
+        let mut categories = vec![0u8; detectors.len() * n_ch];
+        for (d, det) in detectors.iter().enumerate() {
+            for ch in 0..n_ch {
+                categories[d * n_ch + ch] = category(det, det.cal.energy_mev(ch as f64));
+            }
+        }
+        Ok(RawPlan { config: self.clone(), detectors, states, categories, n_channels: n_ch })
+    }
+}
+
+pub(super) fn category(det: &DetectorPlan, e: f64) -> u8 {
+    if let Some((si, _)) = det.gates.iter().find(|(_, g)| g.window.contains(e)) {
+        return (1 + 2 * si) as u8;
+    }
+    det.gates.iter().find(|(_, g)| g.left.contains(e) || g.right.contains(e)).map_or(0, |(si, _)| (2 + 2 * si) as u8)
+}
+
+impl RawPlan {
+    /// The detector ids, in config order (the index an event's detector maps to).
+    pub fn detector_ids(&self) -> Vec<&str> {
+        self.detectors.iter().map(|d| d.id.as_str()).collect()
+    }
+
+    /// Channels per spectrum (the overflow channel).
+    pub fn n_channels(&self) -> usize {
+        self.n_channels
+    }
+
+    /// The index of a detector value in the files (after `detector_ids`), or
+    /// [`UNKNOWN_DETECTOR`].
+    pub fn detector_index(&self, value: &str) -> u16 {
+        let id = self.config.detector_ids.get(value).map_or(value, String::as_str);
+        self.detectors.iter().position(|d| d.id == id).map_or(UNKNOWN_DETECTOR, |i| i as u16)
+    }
+
+    /// The energy of every channel of detector `d`, MeV.
+    pub fn channel_energies_mev(&self, d: usize) -> Vec<f64> {
+        (0..self.n_channels).map(|c| self.detectors[d].cal.energy_mev(c as f64)).collect()
+    }
+
+    /// The gates used, per detector and state.
+    pub fn gates(&self) -> Vec<Gate> {
+        self.detectors.iter().flat_map(|d| d.gates.iter().map(|(_, g)| g.clone())).collect()
+    }
+}
