@@ -60,11 +60,11 @@ pub struct Row {
     /// CM angle, degrees.
     pub theta_cm_deg: f64,
     /// dσ/dΩ_cm, mb/sr.
-    pub y: f64,
+    pub dsdo_cm_mb_sr: f64,
     /// Statistical error.
-    pub stat: f64,
+    pub stat_err_mb_sr: f64,
     /// Point-to-point error.
-    pub sys: f64,
+    pub sys_err_mb_sr: f64,
     /// Total relative normalisation error of the run.
     pub norm_rel_err: f64,
     /// Its part shared by every run.
@@ -81,11 +81,11 @@ pub struct Point {
     /// Weighted mean CM angle.
     pub theta_cm_deg: f64,
     /// Weighted mean dσ/dΩ_cm.
-    pub y: f64,
+    pub dsdo_cm_mb_sr: f64,
     /// Statistical error.
-    pub stat: f64,
+    pub stat_err_mb_sr: f64,
     /// Point-to-point error, independent normalisations included.
-    pub sys: f64,
+    pub sys_err_mb_sr: f64,
     /// Shared relative normalisation error.
     pub norm_rel_err: f64,
     /// The rows combined (`run/detector`, joined by `+`).
@@ -108,13 +108,13 @@ pub fn combine(rows: &[Row], tolerance_deg: f64) -> Result<(Vec<Point>, Vec<f64>
     let mut groups: Vec<Vec<usize>> = Vec::new();
     for i in order {
         let r = &rows[i];
-        if !(r.stat.is_finite() && r.sys.is_finite() && r.y.is_finite()) {
+        if !(r.stat_err_mb_sr.is_finite() && r.sys_err_mb_sr.is_finite() && r.dsdo_cm_mb_sr.is_finite()) {
             return Err(format!("{}/{} ({}): a non-finite value or error", r.run, r.detector, r.state));
         }
-        if r.stat <= 0.0 {
+        if r.stat_err_mb_sr <= 0.0 {
             return Err(format!(
                 "{}/{} ({}): statistical error {} mb/sr; a point needs one > 0 to be weighted",
-                r.run, r.detector, r.state, r.stat
+                r.run, r.detector, r.state, r.stat_err_mb_sr
             ));
         }
         match groups.last_mut() {
@@ -151,15 +151,15 @@ pub fn combine(rows: &[Row], tolerance_deg: f64) -> Result<(Vec<Point>, Vec<f64>
             let first = f(&rows[g[0]]);
             first + g.iter().zip(&c).map(|(&i, ci)| ci * (f(&rows[i]) - first)).sum::<f64>()
         };
-        let y = mean(&|r| r.y);
-        let stat = g.iter().zip(&c).map(|(&i, ci)| (ci * rows[i].stat).powi(2)).sum::<f64>().sqrt();
+        let y = mean(&|r| r.dsdo_cm_mb_sr);
+        let stat = g.iter().zip(&c).map(|(&i, ci)| (ci * rows[i].stat_err_mb_sr).powi(2)).sum::<f64>().sqrt();
         for (&i, ci) in g.iter().zip(&c) {
             let r = &rows[i];
             let ri = index(&runs, &r.run);
-            a[k][ri] += ci * r.y;
+            a[k][ri] += ci * r.dsdo_cm_mb_sr;
             nu[ri] = (r.norm_rel_err.powi(2) - r.shared_rel_err.powi(2)).max(0.0).sqrt();
-            b[k] += ci * r.y * r.shared_rel_err;
-            s[k][index(&detectors, &r.detector)] += ci * r.sys;
+            b[k] += ci * r.dsdo_cm_mb_sr * r.shared_rel_err;
+            s[k][index(&detectors, &r.detector)] += ci * r.sys_err_mb_sr;
         }
         let independent: f64 = a[k].iter().zip(&nu).map(|(a, nu)| (a * nu).powi(2)).sum();
         let p2p: f64 = s[k].iter().map(|x| x * x).sum();
@@ -167,9 +167,9 @@ pub fn combine(rows: &[Row], tolerance_deg: f64) -> Result<(Vec<Point>, Vec<f64>
             state: rows[g[0]].state.clone(),
             theta_lab_deg: mean(&|r| r.theta_lab_deg),
             theta_cm_deg: mean(&|r| r.theta_cm_deg),
-            y,
-            stat,
-            sys: (p2p + independent).sqrt(),
+            dsdo_cm_mb_sr: y,
+            stat_err_mb_sr: stat,
+            sys_err_mb_sr: (p2p + independent).sqrt(),
             norm_rel_err: if y == 0.0 { 0.0 } else { b[k] / y },
             members: g.iter().map(|&i| format!("{}/{}", rows[i].run, rows[i].detector)).collect::<Vec<_>>().join("+"),
             rows: g.len(),
@@ -180,7 +180,7 @@ pub fn combine(rows: &[Row], tolerance_deg: f64) -> Result<(Vec<Point>, Vec<f64>
         for l in 0..n {
             let ind: f64 = (0..runs.len()).map(|r| a[k][r] * a[l][r] * nu[r] * nu[r]).sum();
             let p2p: f64 = s[k].iter().zip(&s[l]).map(|(x, y)| x * y).sum();
-            let diag = if k == l { points[k].stat.powi(2) } else { 0.0 };
+            let diag = if k == l { points[k].stat_err_mb_sr.powi(2) } else { 0.0 };
             cov[k * n + l] = diag + p2p + ind + b[k] * b[l];
         }
     }
@@ -198,13 +198,15 @@ fn row_coefficients(rows: &[Row], group: &[usize]) -> Vec<f64> {
     let mut per_detector = Vec::with_capacity(detectors.len());
     for det in &detectors {
         let members: Vec<usize> = (0..group.len()).filter(|&j| rows[group[j]].detector == *det).collect();
-        let u = inverse_variance_weights(&members.iter().map(|&j| rows[group[j]].stat.powi(2)).collect::<Vec<_>>());
+        let u = inverse_variance_weights(
+            &members.iter().map(|&j| rows[group[j]].stat_err_mb_sr.powi(2)).collect::<Vec<_>>(),
+        );
         let total: f64 = u.iter().sum();
         let (mut stat2, mut p2p) = (0.0, 0.0);
         for (&j, uj) in members.iter().zip(&u) {
             within[j] = uj / total;
-            stat2 += (within[j] * rows[group[j]].stat).powi(2);
-            p2p += within[j] * rows[group[j]].sys;
+            stat2 += (within[j] * rows[group[j]].stat_err_mb_sr).powi(2);
+            p2p += within[j] * rows[group[j]].sys_err_mb_sr;
         }
         per_detector.push((members, stat2 + p2p * p2p));
     }
@@ -237,16 +239,16 @@ mod tests {
             state: "elastic".into(),
             theta_lab_deg: theta,
             theta_cm_deg: theta + 1.0,
-            y,
-            stat,
-            sys: 0.0,
+            dsdo_cm_mb_sr: y,
+            stat_err_mb_sr: stat,
+            sys_err_mb_sr: 0.0,
             norm_rel_err: 0.05,
             shared_rel_err: 0.03,
         }
     }
 
     fn at(detector: &str, sys: f64, r: Row) -> Row {
-        Row { detector: detector.into(), sys, ..r }
+        Row { detector: detector.into(), sys_err_mb_sr: sys, ..r }
     }
 
     /// `at`, with the normalisation errors left out (set to zero).
@@ -273,12 +275,16 @@ mod tests {
         let rows = [row("a", 30.0, 10.0, 1.0), row("b", 30.01, 12.0, 2.0), row("a", 50.0, 5.0, 0.5)];
         let (p, cov) = combine(&rows, 0.05).expect("combines");
         assert_eq!(p.len(), 2);
-        assert_relative_eq!(p[0].y, 10.4, max_relative = 1e-12);
-        assert_relative_eq!(p[0].stat, 1.0 / 1.25f64.sqrt(), max_relative = 1e-12);
+        assert_relative_eq!(p[0].dsdo_cm_mb_sr, 10.4, max_relative = 1e-12);
+        assert_relative_eq!(p[0].stat_err_mb_sr, 1.0 / 1.25f64.sqrt(), max_relative = 1e-12);
         assert_relative_eq!(p[0].norm_rel_err, 0.03, max_relative = 1e-12);
         // a_{0,a} = 10/1.25 = 8, a_{0,b} = 3/1.25 = 2.4; ν = 0.04.
         let ind0 = (8.0f64 * 0.04).powi(2) + (2.4f64 * 0.04).powi(2);
-        assert_relative_eq!(cov[0], p[0].stat.powi(2) + ind0 + (10.4f64 * 0.03).powi(2), max_relative = 1e-12);
+        assert_relative_eq!(
+            cov[0],
+            p[0].stat_err_mb_sr.powi(2) + ind0 + (10.4f64 * 0.03).powi(2),
+            max_relative = 1e-12
+        );
         // Points 0 and 1 share run a's independent normalisation and the shared one.
         assert_relative_eq!(cov[1], 8.0 * 5.0 * 0.04 * 0.04 + 10.4 * 0.03 * 5.0 * 0.03, max_relative = 1e-12);
         assert_relative_eq!(cov[1], cov[2], max_relative = 1e-15);
@@ -299,18 +305,18 @@ mod tests {
         let mut v: Vec<f64> = (0..9)
             .map(|ij| {
                 let (ri, rj) = (&rows[ij / 3], &rows[ij % 3]);
-                let stat = if ij / 3 == ij % 3 { ri.stat.powi(2) } else { 0.0 };
-                stat + if ri.detector == rj.detector { ri.sys * rj.sys } else { 0.0 }
+                let stat = if ij / 3 == ij % 3 { ri.stat_err_mb_sr.powi(2) } else { 0.0 };
+                stat + if ri.detector == rj.detector { ri.sys_err_mb_sr * rj.sys_err_mb_sr } else { 0.0 }
             })
             .collect();
         let v_inv_one = qr_solve(&mut v, 3, 3, &mut [1.0; 3]).expect("V is positive definite");
         let norm: f64 = v_inv_one.iter().sum();
-        let gls_mean = v_inv_one.iter().zip(&rows).map(|(w, r)| w * r.y).sum::<f64>() / norm;
+        let gls_mean = v_inv_one.iter().zip(&rows).map(|(w, r)| w * r.dsdo_cm_mb_sr).sum::<f64>() / norm;
         let (p, cov) = combine(&rows, 0.05).expect("combines");
         assert_eq!(p.len(), 1);
-        assert_relative_eq!(p[0].y, gls_mean, max_relative = 1e-12);
+        assert_relative_eq!(p[0].dsdo_cm_mb_sr, gls_mean, max_relative = 1e-12);
         assert_relative_eq!(cov[0], 1.0 / norm, max_relative = 1e-12);
-        assert_relative_eq!(p[0].stat.powi(2) + p[0].sys.powi(2), 1.0 / norm, max_relative = 1e-12);
+        assert_relative_eq!(p[0].stat_err_mb_sr.powi(2) + p[0].sys_err_mb_sr.powi(2), 1.0 / norm, max_relative = 1e-12);
     }
 
     #[test]
