@@ -101,6 +101,26 @@ fn issue_11_a_panic_in_one_run_fails_that_run_and_the_others_finish() {
     assert!(text(&reduce).contains("3 run(s) reduced, 1 failed"), "{}", text(&reduce));
 }
 
+/// Issue 11: `runs --format csv` had its own writer, which turned quotes into apostrophes
+/// and joined lines; through the one CSV writer the error reads back whole.
+#[test]
+fn issue_11_the_csv_run_list_keeps_errors_with_quotes_and_lines_whole() {
+    let tmp = demo_copy();
+    let yields = tmp.path().join("runs/run0103.yields.csv");
+    edit(&yields, "D01,elastic,", "D01,elastic,-");
+    edit(&yields, "D02,elastic,", "\"D9\"\"9\",elastic,");
+    assert_eq!(batch(tmp.path(), &[]).status.code(), Some(1));
+    let json = xsflow(tmp.path(), &["runs", "out", "--failed", "--format", "json"]);
+    let failed: serde_json::Value = serde_json::from_slice(&json.stdout).expect("json");
+    let error = failed[0]["error"].as_str().expect("an error");
+    assert!(error.contains('"') && error.contains('\n'), "the case needs a quote and a line break: {error}");
+    let csv = xsflow(tmp.path(), &["runs", "out", "--failed", "--format", "csv"]);
+    std::fs::write(tmp.path().join("runs.csv"), &csv.stdout).expect("write");
+    let table = xsflow::tables::read_table(&tmp.path().join("runs.csv")).expect("the CSV list parses");
+    let errors = stages::table::str_values(&table, "error").expect("error column");
+    assert_eq!(errors, [error], "{}", text(&csv));
+}
+
 #[test]
 fn shards_split_the_runs_disjointly_and_the_same_way_every_time() {
     let tmp = demo_copy();

@@ -268,3 +268,24 @@ fn entry(r: &rusqlite::Row<'_>) -> rusqlite::Result<RunEntry> {
         warnings: r.get(12)?,
     })
 }
+
+/// The run list as a table (`xsflow runs --format csv`): run, status, seconds, events,
+/// charge_c, live_fraction, processed_utc, error, written by the one CSV writer
+/// ([`crate::tables::csv_bytes`]), which quotes errors that hold commas, quotes or lines.
+///
+/// # Errors
+/// The table library's error.
+pub fn entries_table(entries: &[RunEntry]) -> polars::prelude::PolarsResult<polars::prelude::DataFrame> {
+    use polars::prelude::{Column, DataFrame};
+    let text = |f: &dyn Fn(&RunEntry) -> String| entries.iter().map(f).collect::<Vec<_>>();
+    DataFrame::new_infer_height(vec![
+        Column::new("run".into(), text(&|e| e.run.clone())),
+        Column::new("status".into(), text(&|e| e.status.as_str().to_string())),
+        Column::new("seconds".into(), entries.iter().map(|e| e.seconds).collect::<Vec<_>>()),
+        Column::new("events".into(), entries.iter().map(|e| e.events).collect::<Vec<_>>()),
+        Column::new("charge_c".into(), entries.iter().map(|e| e.charge_c).collect::<Vec<_>>()),
+        Column::new("live_fraction".into(), entries.iter().map(|e| e.live_fraction).collect::<Vec<_>>()),
+        Column::new("processed_utc".into(), text(&|e| e.processed_utc.clone())),
+        Column::new("error".into(), text(&|e| e.error.clone())),
+    ])
+}

@@ -359,20 +359,12 @@ fn runs(out: &Path, failed: bool, format: TableFormat) -> u8 {
     match format {
         TableFormat::Json => println!("{}", serde_json::to_string_pretty(&entries).unwrap_or_default()),
         TableFormat::Csv => {
-            println!("run,status,seconds,events,charge_c,live_fraction,processed_utc,error");
-            for e in &entries {
-                let opt = |v: Option<f64>| v.map(|x| x.to_string()).unwrap_or_default();
-                println!(
-                    "{},{},{},{},{},{},{},\"{}\"",
-                    e.run,
-                    e.status,
-                    e.seconds,
-                    e.events.map(|x| x.to_string()).unwrap_or_default(),
-                    opt(e.charge_c),
-                    opt(e.live_fraction),
-                    e.processed_utc,
-                    e.error.replace('"', "'").replace('\n', " | ")
-                );
+            match xsflow::catalogue::entries_table(&entries).and_then(|mut t| xsflow::tables::csv_bytes(&mut t)) {
+                Ok(bytes) => print!("{}", String::from_utf8_lossy(&bytes)),
+                Err(e) => {
+                    eprintln!("cannot write the run list as CSV: {e}");
+                    return 1;
+                }
             }
         }
         TableFormat::Table => {
