@@ -421,15 +421,20 @@ pub fn combine_and_write(
         Column::new("members".into(), points.iter().map(|p| p.members.clone()).collect::<Vec<_>>()),
     ])
     .map_err(|e| fail(e.to_string()))?;
+    // Long format, non-zero elements only (i, j index the points in table order).
     let n = points.len();
-    let mut cov_csv = String::from("i,j,covariance_mb2_sr2\n");
-    for i in 0..n {
-        for j in 0..n {
-            if cov[i * n + j] != 0.0 {
-                cov_csv.push_str(&format!("{i},{j},{}\n", cov[i * n + j]));
-            }
-        }
-    }
+    let nonzero: Vec<(u32, u32, f64)> = (0..n)
+        .flat_map(|i| (0..n).map(move |j| (i, j)))
+        .filter(|(i, j)| cov[i * n + j] != 0.0)
+        .map(|(i, j)| (i as u32, j as u32, cov[i * n + j]))
+        .collect();
+    let mut cov_table = DataFrame::new_infer_height(vec![
+        Column::new("i".into(), nonzero.iter().map(|e| e.0).collect::<Vec<_>>()),
+        Column::new("j".into(), nonzero.iter().map(|e| e.1).collect::<Vec<_>>()),
+        Column::new("covariance_mb2_sr2".into(), nonzero.iter().map(|e| e.2).collect::<Vec<_>>()),
+    ])
+    .map_err(|e| fail(e.to_string()))?;
+    let cov_csv = csv_bytes(&mut cov_table).map_err(|e| fail(e.to_string()))?;
     // The config by its name, relative to its folder like the inputs: the record does not
     // depend on where xsflow was started, so merged shards give the bytes of one batch.
     let config_name = Path::new(plan.config_path.file_name().unwrap_or_default());
@@ -447,7 +452,7 @@ pub fn combine_and_write(
             parquet_bytes(&mut table, vec![(PROVENANCE_KEY.to_string(), record.clone())])
                 .map_err(|e| fail(e.to_string()))?,
         ),
-        (out_dir.join(COVARIANCE_CSV), cov_csv.into_bytes()),
+        (out_dir.join(COVARIANCE_CSV), cov_csv),
         (out_dir.join(ANGULAR_DISTRIBUTION_PROVENANCE_JSON), format!("{record}\n").into_bytes()),
     ];
     write_all_atomic(&files).map_err(|e| e.diagnostic())?;
