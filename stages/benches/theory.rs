@@ -4,6 +4,15 @@
 //! alpha particles on 58Ni at 170 angles with automatic numerics ≤ 1 ms, and a fit of six
 //! potential parameters to 60 points ≤ 0.5 s. The data of the fit are synthetic (invented
 //! parameters, 3 % invented errors, fixed seed).
+//!
+//! Issue 11 (Levenberg–Marquardt as an argmin `Solver` under argmin's `Executor`), medians
+//! on an AMD EPYC, 2 logical cores, shared with other builds (load average 3.5–6, so the
+//! spread between runs is some 15 %); before and after run back to back at load 3.5:
+//!     optical model, accuracy 1e-4:  before 0.495 ms,  after 0.494 ms
+//!     optical model, accuracy 1e-6:  before 1.777 ms,  after 1.826 ms (unchanged code)
+//!     fit of 6 parameters:           before 213.2 ms,  after 182.4 ms and 191.5 ms
+//! (a first "before" at load 5.5 gave 632.6 ms); the same 23 iterations, 128 model
+//! evaluations and parameters, so the argmin machinery costs nothing measurable here.
 
 use std::time::Instant;
 

@@ -11,6 +11,17 @@
 //! good step, μ ← μ·ν, ν ← 2ν after a bad one (K. Madsen, H. B. Nielsen, O. Tingleff,
 //! "Methods for non-linear least squares problems", 2nd ed., IMM DTU 2004, Algorithm 3.16).
 //! Termination tests as in MINPACK (relative reduction, relative step, gradient cosine).
+//!
+//! The method is an argmin [`Solver`] over argmin's problem traits ([`Operator`] for the
+//! residuals, [`Jacobian`]), run by argmin's [`Executor`] with an observer that logs each
+//! iteration; [`Residuals`] stays the project's model interface.
+
+use argmin::core::observers::{Observe, ObserverMode};
+use argmin::core::{
+    Error, Executor, IterState, Jacobian, KvValue, Operator, Problem, Solver, State, TerminationReason,
+    TerminationStatus, KV,
+};
+use argmin::kv;
 
 /// Why the minimiser stopped.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -168,115 +179,299 @@ fn householder(a: &mut [f64], rows: usize, n: usize, mut b: Option<&mut [f64]>) 
     Some(r_diag)
 }
 
-/// Minimise ‖r(p)‖² from `p0`.
-pub fn levenberg_marquardt<M: Residuals>(model: &M, p0: &[f64], opts: &LmOptions) -> LmResult {
-    let (m, n) = (model.len(), p0.len());
-    let mut p = p0.to_vec();
-    let mut r = vec![0.0; m];
-    let mut jac = vec![0.0; m * n];
-    let mut evaluations = 1;
-    let finish = |p: Vec<f64>, r: &[f64], jac: Vec<f64>, iterations, evaluations, termination| LmResult {
-        ssr: r.iter().map(|x| x * x).sum(),
-        params: p,
-        iterations,
-        evaluations,
-        termination,
-        jacobian: jac,
-    };
-    if !model.eval(&p, &mut r, &mut jac) || r.iter().chain(&jac).any(|x| !x.is_finite()) {
-        return finish(p, &r, jac, 0, evaluations, Termination::ModelFailed);
+/// The state argmin keeps of the minimiser: the parameters and the sum of squares. The
+/// residuals and the Jacobian stay in [`LevenbergMarquardt`], so no iteration copies them.
+type LmState = IterState<Vec<f64>, (), (), (), (), f64>;
+
+/// What `init` and `next_iter` return: the new state and the values for the observer.
+type Step = Result<(LmState, Option<KV>), Error>;
+
+/// A [`Residuals`] model as an argmin problem: its [`Operator`] gives the residuals at p,
+/// its [`Jacobian`] the Jacobian at a point whose residuals are known. Either is `None`
+/// where the model cannot be evaluated; the solver checks that the values are finite.
+struct LeastSquares<'a, M> {
+    model: &'a M,
+}
+
+/// Parameters with their residuals: where an accepted step wants the Jacobian.
+struct Point {
+    params: Vec<f64>,
+    residuals: Vec<f64>,
+}
+
+impl<M: Residuals> Operator for LeastSquares<'_, M> {
+    type Param = Vec<f64>;
+    type Output = Option<Vec<f64>>;
+
+    /// The m residuals at `p` ([`Residuals::residuals`]).
+    fn apply(&self, p: &Vec<f64>) -> Result<Option<Vec<f64>>, Error> {
+        let mut r = vec![0.0; self.model.len()];
+        Ok(self.model.residuals(p, &mut r).then_some(r))
     }
-    let column_norms =
-        |jac: &[f64]| (0..n).map(|j| norm(&(0..m).map(|i| jac[i * n + j]).collect::<Vec<_>>())).collect::<Vec<f64>>();
-    let mut d: Vec<f64> = column_norms(&jac).iter().map(|c| if *c > 0.0 { *c } else { 1.0 }).collect();
-    let mut mu: f64 = 1e-3;
-    let mut nu = 2.0;
-    let scaled_norm = |p: &[f64], d: &[f64]| norm(&p.iter().zip(d).map(|(p, d)| p * d).collect::<Vec<_>>());
-    let bounded = opts.initial_step_bound.is_some();
-    let mut bound = opts.initial_step_bound.map_or(f64::INFINITY, |f| {
-        let n0 = scaled_norm(&p, &d);
-        f * if n0 > 0.0 { n0 } else { 1.0 }
-    });
-    let (mut r_new, mut jac_new) = (vec![0.0; m], vec![0.0; m * n]);
-    for iteration in 1..=opts.max_iterations {
-        let rnorm = norm(&r);
-        if rnorm == 0.0 {
-            return finish(p, &r, jac, iteration - 1, evaluations, Termination::ZeroResiduals);
+}
+
+impl<M: Residuals> Jacobian for LeastSquares<'_, M> {
+    type Param = Point;
+    type Jacobian = Option<Vec<f64>>;
+
+    /// The m × n Jacobian (row-major) at `at` ([`Residuals::jacobian`]).
+    fn jacobian(&self, at: &Point) -> Result<Option<Vec<f64>>, Error> {
+        let mut jac = vec![0.0; at.residuals.len() * at.params.len()];
+        Ok(self.model.jacobian(&at.params, &at.residuals, &mut jac).then_some(jac))
+    }
+}
+
+/// The Levenberg–Marquardt method of this module's documentation as an argmin [`Solver`]:
+/// `init` evaluates the start and sets the scaling, `next_iter` takes one damped step
+/// (accepted or rejected), `terminate` holds the tests made before each step (zero
+/// residuals, gradient). The working vectors live here, not in the argmin state.
+struct LevenbergMarquardt {
+    /// Tolerances and the trust-region setting.
+    opts: LmOptions,
+    /// Current parameters p.
+    p: Vec<f64>,
+    /// Residuals at p.
+    r: Vec<f64>,
+    /// Jacobian at p, row-major m × n.
+    jac: Vec<f64>,
+    /// Marquardt's scaling D: the running maximum of the column norms of J.
+    d: Vec<f64>,
+    /// Damping μ.
+    mu: f64,
+    /// Factor ν that raises μ after a rejected step.
+    nu: f64,
+    /// Bound on the scaled step ‖D h‖ (infinite without a trust region).
+    bound: f64,
+    /// Residual evaluations so far.
+    evaluations: usize,
+    /// Why it stopped, once it has.
+    termination: Option<Termination>,
+}
+
+impl LevenbergMarquardt {
+    fn new(p0: &[f64], m: usize, opts: &LmOptions) -> Self {
+        LevenbergMarquardt {
+            opts: *opts,
+            p: p0.to_vec(),
+            r: vec![0.0; m],
+            jac: vec![0.0; m * p0.len()],
+            d: Vec::new(),
+            mu: 1e-3,
+            nu: 2.0,
+            bound: f64::INFINITY,
+            evaluations: 0,
+            termination: None,
         }
-        // Gradient test: cosine between each column and the residual vector.
-        let cols = column_norms(&jac);
+    }
+
+    /// The tests made before a step, in order: residuals zero, then every column of J
+    /// orthogonal to the residuals within `gtol` (the cosine test of MINPACK).
+    fn stationary(&self) -> Option<Termination> {
+        let (m, n) = (self.r.len(), self.p.len());
+        let rnorm = norm(&self.r);
+        if rnorm == 0.0 {
+            return Some(Termination::ZeroResiduals);
+        }
+        let cols = column_norms(&self.jac, m, n);
         let gmax = (0..n)
             .filter(|&j| cols[j] > 0.0)
-            .map(|j| ((0..m).map(|i| jac[i * n + j] * r[i]).sum::<f64>() / (cols[j] * rnorm)).abs())
+            .map(|j| ((0..m).map(|i| self.jac[i * n + j] * self.r[i]).sum::<f64>() / (cols[j] * rnorm)).abs())
             .fold(0.0, f64::max);
-        if gmax <= opts.gtol {
-            return finish(p, &r, jac, iteration - 1, evaluations, Termination::SmallGradient);
+        (gmax <= self.opts.gtol).then_some(Termination::SmallGradient)
+    }
+
+    /// The argmin state after a step: parameters, sum of squares and the damping for the
+    /// observer; stopped with `termination` if given.
+    fn report(&mut self, state: LmState, termination: Option<Termination>) -> (LmState, Option<KV>) {
+        let state = state.param(self.p.clone()).cost(sum_of_squares(&self.r));
+        let kv = kv!("damping" => self.mu;);
+        self.termination = termination;
+        match termination {
+            Some(t) => (state.terminate_with(reason(t)), Some(kv)),
+            None => (state, Some(kv)),
         }
-        // Damped step from [J D⁻¹; √μ I] u = [−r; 0], h = D⁻¹ u, with μ raised until the
-        // step is inside the trust region.
+    }
+}
+
+/// Σ r_i², summed in order.
+fn sum_of_squares(r: &[f64]) -> f64 {
+    r.iter().map(|x| x * x).sum()
+}
+
+/// The Euclidean norm of each column of a row-major m × n matrix.
+fn column_norms(jac: &[f64], m: usize, n: usize) -> Vec<f64> {
+    (0..n).map(|j| norm(&(0..m).map(|i| jac[i * n + j]).collect::<Vec<_>>())).collect()
+}
+
+/// ‖D p‖.
+fn scaled_norm(p: &[f64], d: &[f64]) -> f64 {
+    norm(&p.iter().zip(d).map(|(p, d)| p * d).collect::<Vec<_>>())
+}
+
+/// argmin's name for a stop: converged for the convergence tests, else the variant's name.
+fn reason(termination: Termination) -> TerminationReason {
+    if termination.converged() {
+        TerminationReason::SolverConverged
+    } else {
+        TerminationReason::SolverExit(format!("{termination:?}"))
+    }
+}
+
+impl<M: Residuals> Solver<LeastSquares<'_, M>, LmState> for LevenbergMarquardt {
+    fn name(&self) -> &str {
+        "Levenberg-Marquardt"
+    }
+
+    /// Residuals and Jacobian at p₀; the scaling D from the Jacobian's column norms (1 for
+    /// a zero column); the first trust-region bound from ‖D p₀‖.
+    fn init(&mut self, problem: &mut Problem<LeastSquares<'_, M>>, state: LmState) -> Step {
+        let (m, n) = (self.r.len(), self.p.len());
+        self.evaluations += 1;
+        let start = match problem.apply(&self.p)? {
+            Some(r) if r.iter().all(|x| x.is_finite()) => {
+                let at = Point { params: self.p.clone(), residuals: r };
+                let jac = problem.jacobian(&at)?;
+                self.r = at.residuals;
+                jac.filter(|j| j.iter().all(|x| x.is_finite()))
+            }
+            Some(r) => {
+                self.r = r;
+                None
+            }
+            None => {
+                self.r = vec![f64::NAN; m];
+                None
+            }
+        };
+        let Some(jac) = start else {
+            return Ok(self.report(state, Some(Termination::ModelFailed)));
+        };
+        self.jac = jac;
+        self.d = column_norms(&self.jac, m, n).iter().map(|c| if *c > 0.0 { *c } else { 1.0 }).collect();
+        if let Some(f) = self.opts.initial_step_bound {
+            let n0 = scaled_norm(&self.p, &self.d);
+            self.bound = f * if n0 > 0.0 { n0 } else { 1.0 };
+        }
+        Ok(self.report(state, None))
+    }
+
+    /// One step: the damped step u from [J D⁻¹; √μ I] u = [−r; 0], h = D⁻¹ u, with μ raised
+    /// until it is inside the trust region; the trial p + h, the gain ratio ρ, and then
+    /// either the step taken (μ lowered, D and the bound updated) or μ raised.
+    fn next_iter(&mut self, problem: &mut Problem<LeastSquares<'_, M>>, state: LmState) -> Step {
+        let (m, n) = (self.r.len(), self.p.len());
+        let rnorm = norm(&self.r);
         let mut u = None;
         for _ in 0..64 {
-            match damped_step(&jac, &r, &d, mu, m, n) {
-                Some(step) if norm(&step) <= bound => {
+            match damped_step(&self.jac, &self.r, &self.d, self.mu, m, n) {
+                Some(step) if norm(&step) <= self.bound => {
                     u = Some(step);
                     break;
                 }
-                Some(_) | None => mu = (mu * 4.0).max(1e-12),
+                Some(_) | None => self.mu = (self.mu * 4.0).max(1e-12),
             }
         }
         let Some(u) = u else {
-            return finish(p, &r, jac, iteration, evaluations, Termination::SmallStep);
+            return Ok(self.report(state, Some(Termination::SmallStep)));
         };
-        let h: Vec<f64> = u.iter().zip(&d).map(|(u, d)| u / d).collect();
+        let h: Vec<f64> = u.iter().zip(&self.d).map(|(u, d)| u / d).collect();
         let dp = norm(&u);
-        let dx = scaled_norm(&p, &d);
-        let trial: Vec<f64> = p.iter().zip(&h).map(|(p, h)| p + h).collect();
+        let dx = scaled_norm(&self.p, &self.d);
+        let trial: Vec<f64> = self.p.iter().zip(&h).map(|(p, h)| p + h).collect();
         // Predicted reduction ‖r‖² − ‖r + J h‖² = ‖J h‖² + 2μ‖D h‖², the second form free of
         // cancellation (it uses (JᵀJ + μ DᵀD) h = −Jᵀr; Moré 1978, section 4).
-        let jh: Vec<f64> = (0..m).map(|i| (0..n).map(|j| jac[i * n + j] * h[j]).sum::<f64>()).collect();
+        let jh: Vec<f64> = (0..m).map(|i| (0..n).map(|j| self.jac[i * n + j] * h[j]).sum::<f64>()).collect();
         let ssr = rnorm * rnorm;
-        let predicted = norm(&jh).powi(2) + 2.0 * mu * dp * dp;
-        evaluations += 1;
-        let ok = model.residuals(&trial, &mut r_new) && r_new.iter().all(|x| x.is_finite());
-        let actual = if ok { ssr - norm(&r_new).powi(2) } else { f64::NEG_INFINITY };
+        let predicted = norm(&jh).powi(2) + 2.0 * self.mu * dp * dp;
+        self.evaluations += 1;
+        let r_new = problem.apply(&trial)?.filter(|r| r.iter().all(|x| x.is_finite()));
+        let actual = r_new.as_ref().map_or(f64::NEG_INFINITY, |r| ssr - norm(r).powi(2));
         let rho = if predicted > 0.0 { actual / predicted } else { -1.0 };
         // Near the minimum both reductions fall below the rounding of ‖r‖²; the ratio is then
         // noise, and a step the linear model predicts to be that small is taken.
-        let at_rounding = ok && predicted <= 16.0 * f64::EPSILON * ssr && actual >= -16.0 * f64::EPSILON * ssr;
+        let at_rounding =
+            r_new.is_some() && predicted <= 16.0 * f64::EPSILON * ssr && actual >= -16.0 * f64::EPSILON * ssr;
         // The Jacobian is needed only where the step is taken; a model that cannot give it
         // there rejects the step.
-        let take = (rho > 0.0 || at_rounding)
-            && model.jacobian(&trial, &r_new, &mut jac_new)
-            && jac_new.iter().all(|x| x.is_finite());
-        if take {
-            p = trial;
-            std::mem::swap(&mut r, &mut r_new);
-            std::mem::swap(&mut jac, &mut jac_new);
-            for (dj, c) in d.iter_mut().zip(column_norms(&jac)) {
+        let mut taken = None;
+        if let Some(residuals) = r_new.filter(|_| rho > 0.0 || at_rounding) {
+            let at = Point { params: trial, residuals };
+            if let Some(jac) = problem.jacobian(&at)?.filter(|j| j.iter().all(|x| x.is_finite())) {
+                taken = Some((at, jac));
+            }
+        }
+        let bounded = self.opts.initial_step_bound.is_some();
+        if let Some((at, jac)) = taken {
+            self.p = at.params;
+            self.r = at.residuals;
+            self.jac = jac;
+            for (dj, c) in self.d.iter_mut().zip(column_norms(&self.jac, m, n)) {
                 *dj = dj.max(c);
             }
-            mu *= if rho > 0.0 { (1.0 - (2.0 * rho - 1.0).powi(3)).max(1.0 / 3.0) } else { 1.0 / 3.0 };
-            nu = 2.0;
+            self.mu *= if rho > 0.0 { (1.0 - (2.0 * rho - 1.0).powi(3)).max(1.0 / 3.0) } else { 1.0 / 3.0 };
+            self.nu = 2.0;
             if bounded && (rho > 0.75 || at_rounding) {
-                bound = bound.max(3.0 * dp);
+                self.bound = self.bound.max(3.0 * dp);
             } else if bounded && rho < 0.25 {
-                bound = 0.5 * bound.min(dp).max(f64::MIN_POSITIVE);
+                self.bound = 0.5 * self.bound.min(dp).max(f64::MIN_POSITIVE);
             }
-            if opts.ftol > 0.0 && actual.abs() <= opts.ftol * ssr && predicted <= opts.ftol * ssr && rho <= 2.0 {
-                return finish(p, &r, jac, iteration, evaluations, Termination::SmallReduction);
+            let ftol = self.opts.ftol;
+            if ftol > 0.0 && actual.abs() <= ftol * ssr && predicted <= ftol * ssr && rho <= 2.0 {
+                return Ok(self.report(state, Some(Termination::SmallReduction)));
             }
         } else {
-            mu *= nu;
-            nu *= 2.0;
+            self.mu *= self.nu;
+            self.nu *= 2.0;
             if bounded {
-                bound = 0.5 * dp;
+                self.bound = 0.5 * dp;
             }
         }
-        if dp <= opts.xtol * dx {
-            return finish(p, &r, jac, iteration, evaluations, Termination::SmallStep);
-        }
+        let small_step = dp <= self.opts.xtol * dx;
+        Ok(self.report(state, small_step.then_some(Termination::SmallStep)))
     }
-    finish(p, &r, jac, opts.max_iterations, evaluations, Termination::IterationLimit)
+
+    /// Stops where `init` or the last step did, else on the tests made before a step;
+    /// never after the last iteration, which argmin reports as the iteration limit.
+    fn terminate(&mut self, state: &LmState) -> TerminationStatus {
+        if self.termination.is_none() && state.get_iter() < state.get_max_iters() {
+            self.termination = self.stationary();
+        }
+        self.termination.map_or(TerminationStatus::NotTerminated, |t| TerminationStatus::Terminated(reason(t)))
+    }
+}
+
+/// Logs each iteration at trace level: its number, the sum of squares and the damping μ.
+struct TraceIterations;
+
+impl Observe<LmState> for TraceIterations {
+    fn observe_iter(&mut self, state: &LmState, kv: &KV) -> Result<(), Error> {
+        tracing::trace!(
+            iteration = state.get_iter() + 1,
+            cost = state.get_cost(),
+            damping = kv.get("damping").and_then(KvValue::get_float).unwrap_or(f64::NAN),
+            "least squares: iteration"
+        );
+        Ok(())
+    }
+}
+
+/// Minimise ‖r(p)‖² from `p0`: the Levenberg–Marquardt solver of this module run by
+/// argmin's [`Executor`] for at most `opts.max_iterations` iterations. Logs each iteration
+/// (sum of squares, damping) at trace level, and why it stopped, the iterations and the
+/// final sum of squares at debug level.
+pub fn levenberg_marquardt<M: Residuals>(model: &M, p0: &[f64], opts: &LmOptions) -> LmResult {
+    let solver = LevenbergMarquardt::new(p0, model.len(), opts);
+    let run = Executor::new(LeastSquares { model }, solver)
+        .configure(|state| state.max_iters(u64::try_from(opts.max_iterations).unwrap_or(u64::MAX)))
+        .add_observer(TraceIterations, ObserverMode::Always)
+        .run()
+        .expect("neither the solver nor its observer returns an error: a model that fails rejects the step");
+    let iterations = usize::try_from(run.state.get_iter()).unwrap_or(usize::MAX);
+    let lm = run.solver;
+    let termination = lm.termination.unwrap_or(Termination::IterationLimit);
+    let ssr = sum_of_squares(&lm.r);
+    tracing::debug!(?termination, iterations, evaluations = lm.evaluations, cost = ssr, "least squares: stopped");
+    LmResult { params: lm.p, ssr, iterations, evaluations: lm.evaluations, termination, jacobian: lm.jac }
 }
 
 /// Whether a result sits on a plateau of the model: some parameter no longer changes the
@@ -284,10 +479,8 @@ pub fn levenberg_marquardt<M: Residuals>(model: &M, p0: &[f64], opts: &LmOptions
 pub fn is_degenerate(result: &LmResult, m: usize) -> bool {
     let n = result.params.len();
     let rnorm = result.ssr.sqrt();
-    (0..n).any(|j| {
-        let col = norm(&(0..m).map(|i| result.jacobian[i * n + j]).collect::<Vec<_>>());
-        col * result.params[j].abs().max(f64::MIN_POSITIVE) <= 1e-10 * rnorm
-    })
+    let cols = column_norms(&result.jacobian, m, n);
+    (0..n).any(|j| cols[j] * result.params[j].abs().max(f64::MIN_POSITIVE) <= 1e-10 * rnorm)
 }
 
 /// Minimise ‖r(p)‖² robustly: first with the damping alone; if that does not converge or
@@ -334,7 +527,7 @@ fn damped_step(jac: &[f64], r: &[f64], d: &[f64], mu: f64, m: usize, n: usize) -
 /// parameter covariance of a least-squares fit (linearised; e.g. NIST/SEMATECH e-Handbook of
 /// Statistical Methods, section 4.4.4). `None` when J is rank deficient.
 pub fn inverse_normal_matrix(jac: &[f64], m: usize, n: usize) -> Option<Vec<f64>> {
-    let scale: Vec<f64> = (0..n).map(|j| norm(&(0..m).map(|i| jac[i * n + j]).collect::<Vec<_>>())).collect();
+    let scale = column_norms(jac, m, n);
     if scale.contains(&0.0) {
         return None;
     }

@@ -1,6 +1,7 @@
 //! χ² fits of a model curve to a measured angular distribution, with bounded parameters,
 //! the common normalisation as a nuisance parameter, parameter errors and correlations from
-//! the curvature matrix, χ²/ν and its p-value, profile-likelihood intervals, and several
+//! the curvature matrix, χ²/ν and its p-value, profile-likelihood intervals (crossings by
+//! argmin's Brent root finder), and several
 //! starts with every distinct minimum kept.
 //!
 //! The χ² (common practice; the normalisation treatment follows G. D'Agostini, Nucl.
@@ -26,6 +27,8 @@
 
 use std::cell::{Cell, RefCell};
 
+use argmin::core::{CostFunction, Error, Executor, State, TerminationReason};
+use argmin::solver::brent::BrentRoot;
 use statrs::distribution::{ChiSquared, ContinuousCDF};
 
 use super::least_squares::{inverse_normal_matrix, minimise, LmOptions, Residuals, Termination};
@@ -545,9 +548,59 @@ impl<S: Shape> Shape for Held<'_, S> {
     }
 }
 
+/// The crossing of the profile χ² with χ²_min + 1 inside a bracket: the root of
+///     f(x) = χ²_profile(x) − (χ²_min + 1)
+/// between an end where f < 0 and one where f ≥ 0, by Brent's method (inverse quadratic
+/// interpolation and secant steps, falling back on bisection so that it is never much
+/// slower; R. P. Brent, Algorithms for Minimization without Derivatives, Prentice-Hall
+/// 1973, ch. 4), argmin's [`BrentRoot`]. Each evaluation of f is a refit; the two ends are
+/// already known, so `known` answers for them.
+struct Crossing<F> {
+    /// The profile χ² at x: a refit with the parameter held at x.
+    chi2_at: F,
+    /// χ²_min + 1.
+    target: f64,
+    /// (x, χ²_profile(x)) at the ends of the bracket: inside, then outside the interval.
+    known: [(f64, f64); 2],
+}
+
+impl<F: Fn(f64) -> Result<f64, FitError>> CostFunction for Crossing<F> {
+    type Param = f64;
+    type Output = f64;
+
+    /// f(x); a refit that cannot start is an error carrying its [`FitError`].
+    fn cost(&self, x: &f64) -> Result<f64, Error> {
+        let chi2 = match self.known.iter().find(|(k, _)| k.to_bits() == x.to_bits()) {
+            Some((_, chi2)) => *chi2,
+            None => (self.chi2_at)(*x)?,
+        };
+        Ok(chi2 - self.target)
+    }
+}
+
+impl<F: Fn(f64) -> Result<f64, FitError>> Crossing<F> {
+    /// The root, found when the bracket is narrower than `tol` (Brent's test: half the
+    /// bracket below 2ε|x| + tol/2), run by argmin's [`Executor`]; `None` if 100 iterations
+    /// do not find it.
+    ///
+    /// # Errors
+    /// A refit that cannot start. (BrentRoot's own errors, ends of the same sign or a
+    /// negative tolerance, cannot occur: the ends have f < 0 ≤ f, and `tol` > 0.)
+    fn root(self, tol: f64) -> Result<Option<f64>, FitError> {
+        let solver = BrentRoot::new(self.known[0].0, self.known[1].0, tol);
+        match Executor::new(self, solver).configure(|state| state.max_iters(100)).run() {
+            Ok(run) => {
+                let converged = matches!(run.state.get_termination_reason(), Some(TerminationReason::SolverConverged));
+                Ok(run.state.get_param().copied().filter(|_| converged))
+            }
+            Err(e) => e.downcast::<FitError>().map_or(Ok(None), Err),
+        }
+    }
+}
+
 /// Profile interval of shape parameter `index` around `best` (its error sets the first
 /// step): on each side, the profile χ² is bracketed by doubling steps and the crossing
-/// of χ²_min + 1 found by bisection to 1e-3 of the error.
+/// of χ²_min + 1 found by Brent's method to 1e-3 of the error (see `Crossing`).
 ///
 /// # Errors
 /// As [`fit`].
@@ -579,7 +632,8 @@ pub fn profile<S: Shape>(
     };
     let side = |dir: f64| -> Result<Option<f64>, FitError> {
         let bound = if dir > 0.0 { params[index].max } else { params[index].min };
-        let (mut inside, mut step) = (centre, step0);
+        // The profile χ² at the centre is χ²_min.
+        let (mut inside, mut step) = ((centre, best.chi2), step0);
         for _ in 0..20 {
             let mut x = centre + dir * step;
             if let Some(b) = bound {
@@ -587,22 +641,15 @@ pub fn profile<S: Shape>(
                     x = b;
                 }
             }
-            if chi2_at(x)? >= target {
-                let (mut lo, mut hi) = (inside, x);
-                while (hi - lo).abs() > 1e-3 * step0 {
-                    let mid = 0.5 * (lo + hi);
-                    if chi2_at(mid)? >= target {
-                        hi = mid;
-                    } else {
-                        lo = mid;
-                    }
-                }
-                return Ok(Some(0.5 * (lo + hi)));
+            let chi2 = chi2_at(x)?;
+            if chi2 >= target {
+                let crossing = Crossing { chi2_at: &chi2_at, target, known: [inside, (x, chi2)] };
+                return crossing.root(1e-3 * step0);
             }
             if bound.is_some_and(|b| (x - b).abs() <= 0.0) {
                 return Ok(None);
             }
-            inside = x;
+            inside = (x, chi2);
             step *= 2.0;
         }
         Ok(None)
