@@ -125,3 +125,37 @@ impl Stage for ComputeLabCrossSection {
         )
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use approx::assert_relative_eq;
+
+    #[test]
+    fn lab_cross_sections_and_their_error_parts() {
+        // L = 1e30 /cm² and ΔΩ = 1 msr give 1e27 mb / (1e30 · 1e-3) = 1 mb/sr per count
+        // when ε = f_live = 1 (worked by hand). Columns: counts (Y, u), efficiency (ε, u),
+        // solid angle (msr, u), live fraction, then dσ/dΩ, stat, sys expected.
+        let cases = [
+            ((100.0, 10.0), (1.0, 0.0), (1.0, 0.0), 1.0, (100.0, 10.0, 0.0)),
+            // 1 % on ε and on ΔΩ: sys = 100 · √2 · 1 %; k = 1e27 / (0.5 · 1e30 · 2e-3) = 1.
+            ((100.0, 10.0), (0.5, 0.005), (2.0, 0.02), 1.0, (100.0, 10.0, 2f64.sqrt())),
+            // Half live: twice the cross section and its counting error.
+            ((50.0, 7.0), (1.0, 0.0), (1.0, 0.0), 0.5, (100.0, 14.0, 0.0)),
+            // No net counts keep their counting error (k · u(Y), not |σ| u(Y)/Y).
+            ((0.0, 1.841), (1.0, 0.01), (1.0, 0.0), 1.0, (0.0, 1.841, 0.0)),
+        ];
+        for (counts_net, efficiency, solid_angle_msr, live_fraction, (dsdo, stat, sys)) in cases {
+            let got = lab_cross_section(&LabPoint {
+                counts_net,
+                efficiency,
+                solid_angle_msr,
+                live_fraction,
+                luminosity_per_cm2: 1e30,
+            });
+            assert_relative_eq!(got.dsdo_mb_sr, dsdo, max_relative = 1e-12);
+            assert_relative_eq!(got.stat_err_mb_sr, stat, max_relative = 1e-12);
+            assert_relative_eq!(got.sys_err_mb_sr, sys, max_relative = 1e-12, epsilon = 1e-15);
+        }
+    }
+}

@@ -68,3 +68,64 @@ impl Stage for ComputeSolidAngle {
         with_f64_columns(table, vec![("solid_angle_msr", omega), ("solid_angle_err_msr", err)])
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use approx::assert_relative_eq;
+
+    fn detector(aperture: &str, distance: &str) -> DetectorConfig {
+        serde_yaml::from_str(&format!("{{ id: A, theta_lab_deg: 30.0, {distance} aperture: {aperture} }}"))
+            .expect("detector parses")
+    }
+
+    /// The solid angle with every length moved by its tolerance times `k` (one at a time),
+    /// for a finite-difference check of the propagated error.
+    fn moved(aperture: &str, d: f64, sizes: [f64; 2], which: usize, h: f64) -> f64 {
+        let mut v = [d, sizes[0], sizes[1]];
+        v[which] += h;
+        let a = aperture.replace("R0", &v[1].to_string()).replace("R1", &v[2].to_string());
+        detector_solid_angle_msr(&detector(&a, &format!("distance_mm: {},", v[0]))).0
+    }
+
+    #[test]
+    fn solid_angles_in_msr_with_errors_from_the_tolerances() {
+        // (aperture with sizes R0, R1, the sizes, their tolerances and the distance's)
+        let cases = [
+            ("{ shape: circle, radius_mm: R0, radius_err_mm: 0.01 }", [2.5, 0.0], [0.5, 0.01, 0.0]),
+            (
+                "{ shape: rectangle, half_width_mm: R0, half_height_mm: R1, half_width_err_mm: 0.02, half_height_err_mm: 0.03 }",
+                [2.2, 3.0],
+                [0.5, 0.02, 0.03],
+            ),
+        ];
+        let d = 250.0;
+        for (aperture, sizes, tolerances) in cases {
+            let a = aperture.replace("R0", &sizes[0].to_string()).replace("R1", &sizes[1].to_string());
+            let (omega, err) =
+                detector_solid_angle_msr(&detector(&a, &format!("distance_mm: {d}, distance_err_mm: 0.5,")));
+            // GUM Eq. 10 with central differences (step 1e-4 mm) in place of the analytic
+            // derivatives: they agree to the differences' truncation, 1e-6 relative.
+            let h = 1e-4;
+            let fd: f64 = (0..3)
+                .map(|k| {
+                    let slope = (moved(aperture, d, sizes, k, h) - moved(aperture, d, sizes, k, -h)) / (2.0 * h);
+                    (slope * tolerances[k]).powi(2)
+                })
+                .sum::<f64>()
+                .sqrt();
+            assert_relative_eq!(err, fd, max_relative = 1e-6);
+            assert!(omega > 0.0 && err > 0.0);
+        }
+        // The circle against its closed form, 2π(1 − d/√(d² + r²)) sr (common practice).
+        let (omega, _) =
+            detector_solid_angle_msr(&detector("{ shape: circle, radius_mm: 2.5 }", "distance_mm: 250.0,"));
+        let exact = 2.0 * std::f64::consts::PI * (1.0 - 250.0 / (250.0f64.powi(2) + 2.5f64.powi(2)).sqrt()) * 1e3;
+        assert_relative_eq!(omega, exact, max_relative = 1e-9);
+        // A given solid angle passes through unchanged.
+        let given = detector("{ shape: given, solid_angle_msr: 1.962, solid_angle_err_msr: 0.012 }", "");
+        let (omega, err) = detector_solid_angle_msr(&given);
+        assert_relative_eq!(omega, 1.962, max_relative = 1e-15);
+        assert_relative_eq!(err, 0.012, max_relative = 1e-15);
+    }
+}

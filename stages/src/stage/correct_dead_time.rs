@@ -174,3 +174,56 @@ impl Stage for CorrectDeadTime {
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use approx::assert_relative_eq;
+
+    fn stage(yaml: &str) -> CorrectDeadTime {
+        serde_yaml::from_str::<CorrectDeadTimeConfig>(yaml).expect("settings parse").build().expect("builds")
+    }
+
+    fn record(extra: &str) -> RunRecord {
+        serde_yaml::from_str(&format!("{{ run: r1, yields_file: y.csv, charge_c: 1.0e-6, {extra} }}")).expect("record")
+    }
+
+    #[test]
+    fn live_fraction_by_each_method() {
+        // (settings, run record, live fraction, its error); worked by hand:
+        // pulser 9000/10000: f = 0.9, u = √(0.9 · 0.1 / 10⁴) = 0.003;
+        // non-paralyzable, m = 1e4 /s, τ = 10 µs: f = 1 − m τ = 0.9, u = m u(τ) = 1e4 · 1e-6;
+        // clock ratio with a 1 % method error: u = 0.8 · 0.01.
+        let cases = [
+            ("{ method: clock_ratio }", "live_time_s: 90.0, real_time_s: 100.0", 0.9, 0.0),
+            ("{ method: clock_ratio, method_rel_err: 0.01 }", "live_time_s: 80.0, real_time_s: 100.0", 0.8, 0.008),
+            ("{ method: pulser_ratio }", "pulser_sent: 10000, pulser_recorded: 9000", 0.9, 0.003),
+            ("{ method: trigger_ratio }", "triggers_raw: 10000, triggers_accepted: 9000", 0.9, 0.003),
+            (
+                "{ method: non_paralyzable, resolving_time_us: 10.0, resolving_time_err_us: 1.0 }",
+                "recorded_rate_per_s: 10000.0",
+                0.9,
+                0.01,
+            ),
+        ];
+        for (settings, run, value, err) in cases {
+            let f = stage(settings).live_fraction(&record(run)).expect("a live fraction");
+            assert_relative_eq!(f.value, value, max_relative = 1e-12);
+            assert_relative_eq!(f.err, err, max_relative = 1e-12, epsilon = 1e-15);
+        }
+    }
+
+    #[test]
+    fn a_missing_scaler_names_the_key_the_method_reads() {
+        // (settings, run record, key named)
+        let cases = [
+            ("{ method: clock_ratio }", "live_time_s: 90.0", "real_time_s"),
+            ("{ method: pulser_ratio }", "pulser_sent: 100", "pulser_recorded"),
+            ("{ method: paralyzable, resolving_time_us: 5.0 }", "live_time_s: 1.0", "recorded_rate_per_s"),
+        ];
+        for (settings, run, key) in cases {
+            let problems = stage(settings).check_run(&record(run));
+            assert!(problems.iter().any(|p| p.key.starts_with(key)), "{key}: {problems:?}");
+        }
+    }
+}
