@@ -96,3 +96,25 @@ pub struct RunContext<'a> {
     /// The run being reduced (validated).
     pub run: &'a RunRecord,
 }
+
+/// Set-ups and run records from YAML for unit tests of the stages.
+#[cfg(test)]
+pub(crate) mod testing {
+    use super::{DetectorConfig, RunRecord, Setup};
+
+    /// 24 MeV ⁴He on ⁵⁸Ni (100 µg/cm²) with the detectors of `detectors_yaml` (a YAML list);
+    /// panics on a problem, which is a mistake in the test.
+    pub fn setup(detectors_yaml: &str) -> Setup {
+        let detectors: Vec<DetectorConfig> = serde_yaml::from_str(detectors_yaml).expect("detectors parse");
+        let reaction = serde_yaml::from_str("{ beam: 4He, target: 58Ni, energy_mev: 24.0 }").expect("reaction");
+        let target = serde_yaml::from_str("{ areal_density_ug_cm2: 100.0, molar_mass_g_mol: 58.0 }").expect("target");
+        let (setup, problems) = Setup::new(reaction, target, detectors);
+        assert!(problems.is_empty(), "{problems:?}");
+        setup
+    }
+
+    /// A run record with 1 µC of charge and the fields of `extra` (YAML mapping entries).
+    pub fn record(extra: &str) -> RunRecord {
+        serde_yaml::from_str(&format!("{{ run: r1, yields_file: y.csv, charge_c: 1.0e-6, {extra} }}")).expect("record")
+    }
+}

@@ -76,3 +76,47 @@ impl Stage for ApplyEfficiency {
         with_f64_columns(table, vec![("efficiency", value), ("efficiency_err", err)])
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::setup::testing::{record, setup};
+    use approx::assert_relative_eq;
+    use polars::prelude::Column;
+
+    #[test]
+    fn constant_and_tabulated_efficiencies_by_row() {
+        // A: constant 0.98 ± 0.005; B: a table, linear between its points, so at 22.5 MeV
+        // ε = 0.977 + 0.5 · (0.981 − 0.977) = 0.979 and u = 0.004 (worked by hand).
+        let setup = setup(
+            "[{ id: A, theta_lab_deg: 30.0, aperture: { shape: given, solid_angle_msr: 1.0 }, efficiency: 0.98, efficiency_err: 0.005 },
+              { id: B, theta_lab_deg: 90.0, aperture: { shape: given, solid_angle_msr: 1.0 },
+                efficiency_table: { energy_lab_mev: [18.0, 21.0, 24.0], efficiency: [0.972, 0.977, 0.981], efficiency_err: [0.004, 0.004, 0.004] } }]",
+        );
+        let run = record("");
+        let stage = ApplyEfficiencyConfig {}.build(Some(&setup)).expect("builds");
+        assert!(stage.needs().contains(&"energy_lab_mev"));
+        // (detector, energy, efficiency, error; None: refused outside the table)
+        let cases = [("A", 20.0, Some((0.98, 0.005))), ("B", 22.5, Some((0.979, 0.004))), ("B", 25.0, None)];
+        for (det, energy, want) in cases {
+            let table = DataFrame::new_infer_height(vec![
+                Column::new("detector".into(), [det]),
+                Column::new("energy_lab_mev".into(), [energy]),
+            ])
+            .expect("table");
+            let out = stage.run(table, &RunContext { setup: &setup, run: &run });
+            match (out, want) {
+                (Ok(t), Some((eff, err))) => {
+                    assert_relative_eq!(f64_values(&t, "efficiency").expect("column")[0], eff, max_relative = 1e-12);
+                    assert_relative_eq!(
+                        f64_values(&t, "efficiency_err").expect("column")[0],
+                        err,
+                        max_relative = 1e-12
+                    );
+                }
+                (Err(e), None) => assert!(e.to_string().contains("efficiency_table"), "{e}"),
+                (got, want) => panic!("{det} at {energy} MeV: {got:?}, expected {want:?}"),
+            }
+        }
+    }
+}

@@ -178,14 +178,11 @@ impl Stage for CorrectDeadTime {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::setup::testing::record;
     use approx::assert_relative_eq;
 
     fn stage(yaml: &str) -> CorrectDeadTime {
         serde_yaml::from_str::<CorrectDeadTimeConfig>(yaml).expect("settings parse").build().expect("builds")
-    }
-
-    fn record(extra: &str) -> RunRecord {
-        serde_yaml::from_str(&format!("{{ run: r1, yields_file: y.csv, charge_c: 1.0e-6, {extra} }}")).expect("record")
     }
 
     #[test]
