@@ -172,3 +172,48 @@ impl Stage for ComputeKinematics {
         Ok(table)
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::setup::testing::{record, setup};
+    use approx::assert_relative_eq;
+    use polars::prelude::Column;
+
+    #[test]
+    fn galilean_elastic_kinematics_match_the_closed_forms() {
+        // Non-relativistic elastic scattering of a on A, x = m_a/m_A (any mechanics text;
+        // common practice):
+        //     θ_cm = θ_lab + asin(x sin θ_lab),
+        //     dΩ_lab/dΩ_cm = |1 + x cos θ_cm| / (1 + x² + 2x cos θ_cm)^{3/2},
+        //     E' = E [(m_a cos θ_lab + √(m_A² − m_a² sin² θ_lab)) / (m_a + m_A)]².
+        // Tolerance 1e-10: the stage solves the same kinematics in another way.
+        let setup = setup(
+            "[{ id: A, theta_lab_deg: 20.0, aperture: { shape: given, solid_angle_msr: 1.0 } },
+              { id: B, theta_lab_deg: 90.0, aperture: { shape: given, solid_angle_msr: 1.0 } },
+              { id: C, theta_lab_deg: 160.0, aperture: { shape: given, solid_angle_msr: 1.0 } }]",
+        );
+        let reaction = setup.resolved.as_ref().expect("resolved");
+        let (ma, mt) = (reaction.beam.mass_mev, reaction.target.mass_mev);
+        let x = ma / mt;
+        let config: ComputeKinematicsConfig = serde_yaml::from_str("{ mode: non_relativistic }").expect("parses");
+        let stage = config.build(Some(&setup)).expect("builds");
+        let table = DataFrame::new_infer_height(vec![
+            Column::new("detector".into(), ["A", "B", "C"]),
+            Column::new("state".into(), ["elastic"; 3]),
+        ])
+        .expect("table");
+        let out = stage.run(table, &RunContext { setup: &setup, run: &record("") }).expect("runs");
+        let col = |c: &str| f64_values(&out, c).expect("column");
+        let (cm, jacobian, energy) = (col("theta_cm_deg"), col("domega_lab_per_domega_cm"), col("energy_lab_mev"));
+        for (i, lab_deg) in [20.0f64, 90.0, 160.0].iter().enumerate() {
+            let lab = lab_deg.to_radians();
+            let theta_cm = lab + (x * lab.sin()).asin();
+            let j = (1.0 + x * theta_cm.cos()).abs() / (1.0 + x * x + 2.0 * x * theta_cm.cos()).powf(1.5);
+            let e = 24.0 * ((ma * lab.cos() + (mt * mt - ma * ma * lab.sin().powi(2)).sqrt()) / (ma + mt)).powi(2);
+            assert_relative_eq!(cm[i], theta_cm.to_degrees(), max_relative = 1e-10);
+            assert_relative_eq!(jacobian[i], j, max_relative = 1e-10);
+            assert_relative_eq!(energy[i], e, max_relative = 1e-10);
+        }
+    }
+}
