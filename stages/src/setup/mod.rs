@@ -102,12 +102,16 @@ pub struct RunContext<'a> {
 pub(crate) mod testing {
     use super::{DetectorConfig, RunRecord, Setup};
 
-    /// 24 MeV ⁴He on ⁵⁸Ni (100 µg/cm²) with the detectors of `detectors_yaml` (a YAML list);
-    /// panics on a problem, which is a mistake in the test.
+    /// 24 MeV ⁴He²⁺ on ⁵⁸Ni (100 ± 3 µg/cm², 58 g/mol) with the detectors of
+    /// `detectors_yaml` (a YAML list); panics on a problem, which is a mistake in the test.
     pub fn setup(detectors_yaml: &str) -> Setup {
         let detectors: Vec<DetectorConfig> = serde_yaml::from_str(detectors_yaml).expect("detectors parse");
-        let reaction = serde_yaml::from_str("{ beam: 4He, target: 58Ni, energy_mev: 24.0 }").expect("reaction");
-        let target = serde_yaml::from_str("{ areal_density_ug_cm2: 100.0, molar_mass_g_mol: 58.0 }").expect("target");
+        let reaction = serde_yaml::from_str("{ beam: 4He, target: 58Ni, energy_mev: 24.0, beam_charge_state: 2 }")
+            .expect("reaction");
+        let target = serde_yaml::from_str(
+            "{ areal_density_ug_cm2: 100.0, areal_density_rel_err: 0.03, molar_mass_g_mol: 58.0 }",
+        )
+        .expect("target");
         let (setup, problems) = Setup::new(reaction, target, detectors);
         assert!(problems.is_empty(), "{problems:?}");
         setup

@@ -310,3 +310,46 @@ impl Stage for Normalise {
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::setup::testing::{record, setup};
+    use approx::assert_relative_eq;
+    use polars::prelude::Column;
+
+    #[test]
+    fn absolute_luminosity_from_charge_and_areal_density() {
+        // Worked by hand with CODATA 2018 e and N_A: 1 µC of ⁴He²⁺ is
+        // N = 1e-6 / (2 · 1.602176634e-19) = 3.120754e12 ions; 100 µg/cm² of 58 g/mol is
+        // n = 1e-4 / 58 · 6.02214076e23 = 1.038300e18 atoms/cm². The normalisation error
+        // adds charge (1 %), target (3 %) and live fraction (0.9 ± 0.009, 1 %) in quadrature.
+        let setup = setup("[{ id: A, theta_lab_deg: 30.0, aperture: { shape: given, solid_angle_msr: 1.0 } }]");
+        let config: NormaliseConfig = serde_yaml::from_str("{ mode: absolute, charge_rel_err: 0.01 }").expect("parses");
+        let stage = config.build(Some(&setup)).expect("builds");
+        let table = DataFrame::new_infer_height(vec![
+            Column::new("detector".into(), ["A"]),
+            Column::new("live_fraction".into(), [0.9]),
+            Column::new("live_fraction_err".into(), [0.009]),
+        ])
+        .expect("table");
+        let out = stage.run(table, &RunContext { setup: &setup, run: &record("") }).expect("runs");
+        let at = |c: &str| f64_values(&out, c).expect("column")[0];
+        let (beam, target) = (1e-6 / (2.0 * 1.602_176_634e-19), 1e-4 / 58.0 * 6.022_140_76e23);
+        // (column, expected); 1e-12: the same arithmetic in another order.
+        let cases = [
+            ("beam_particles", beam),
+            ("target_atoms_per_cm2", target),
+            ("luminosity_per_cm2", beam * target),
+            ("norm_rel_err", (0.01f64.powi(2) + 0.03f64.powi(2) + 0.01f64.powi(2)).sqrt()),
+        ];
+        for (column, want) in cases {
+            assert_relative_eq!(at(column), want, max_relative = 1e-12);
+        }
+        // Absolute normalisation without a charge state is refused when built.
+        let mut neutral = setup.clone();
+        neutral.reaction.beam_charge_state = None;
+        let problems = config.build(Some(&neutral)).expect_err("refused");
+        assert!(problems.iter().any(|p| p.expected.contains("beam_charge_state")), "{problems:?}");
+    }
+}
