@@ -246,14 +246,9 @@ fn moved_fit_entries(file: &YamlFile, stages: &Value, first: usize, diags: &mut 
     for (i, item) in stages.as_sequence().into_iter().flatten().enumerate() {
         if item.get("type").and_then(Value::as_str) == Some("fit") {
             let at = format!("stages[{i}]");
-            let mut k = first;
-            while k < diags.len() {
-                if diags[k].key == at || diags[k].key.starts_with(&format!("{at}.")) {
-                    diags.remove(k);
-                } else {
-                    k += 1;
-                }
-            }
+            let about_item = |d: &Diagnostic| d.key == at || d.key.starts_with(&format!("{at}."));
+            let parser_messages = diags.split_off(first);
+            diags.extend(parser_messages.into_iter().filter(|d| !about_item(d)));
             let key = format!("{at}.type");
             diags.push(
                 Diagnostic::new(&file.path, key.clone(), "a fit is not a per-run stage; fits have their own section")
