@@ -52,6 +52,8 @@ fn yields_frame(rows: &[stages::raw::YieldRow]) -> PolarsResult<DataFrame> {
         Column::new("counts_gross".into(), rows.iter().map(|r| r.counts_gross).collect::<Vec<_>>()),
         Column::new("counts_background".into(), rows.iter().map(|r| r.counts_background).collect::<Vec<_>>()),
         Column::new("counts_background_err".into(), rows.iter().map(|r| r.counts_background_err).collect::<Vec<_>>()),
+        Column::new("window_acceptance".into(), rows.iter().map(|r| r.window_acceptance).collect::<Vec<_>>()),
+        Column::new("window_acceptance_err".into(), rows.iter().map(|r| r.window_acceptance_err).collect::<Vec<_>>()),
     ])
 }
 

@@ -25,6 +25,11 @@ pub struct CrossSectionRow {
     pub counts_background: Option<f64>,
     /// Standard uncertainty of the background (present when the yields table has it).
     pub counts_background_err: Option<f64>,
+    /// Fraction of the peak's counts the window and side-band subtraction keep (present
+    /// when the yields table has it; xsflow writes it for yields from events or spectra).
+    pub window_acceptance: Option<f64>,
+    /// Standard uncertainty of `window_acceptance` (a point-to-point systematic).
+    pub window_acceptance_err: Option<f64>,
     /// Measured peak energy in MeV (present when the yields table has it).
     pub peak_energy_lab_mev: Option<f64>,
     /// Net counts, gross minus background.

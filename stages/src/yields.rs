@@ -29,6 +29,13 @@ pub struct YieldsRow {
     /// Standard uncertainty of the background counts, >= 0. Optional, default sqrt of the
     /// background (Poisson).
     pub counts_background_err: Option<f64>,
+    /// The fraction of the peak's counts that the window and background subtraction keep,
+    /// in (0, 1]; the net counts are divided by it. Optional, default 1 (xsflow writes it
+    /// for yields it derives from events or spectra).
+    pub window_acceptance: Option<f64>,
+    /// Standard uncertainty of `window_acceptance`, >= 0 (a point-to-point systematic).
+    /// Optional, default 0.
+    pub window_acceptance_err: Option<f64>,
     /// Measured lab energy of the peak in MeV, > 0; picks the kinematic solution where a
     /// lab angle is double valued. Optional.
     pub peak_energy_lab_mev: Option<f64>,
@@ -40,7 +47,14 @@ pub struct YieldsRow {
 /// Columns every yields table must have.
 pub const REQUIRED_COLUMNS: [&str; 3] = ["detector", "state", "counts_gross"];
 /// Columns a yields table may have.
-pub const OPTIONAL_COLUMNS: [&str; 4] = ["counts_background", "counts_background_err", "peak_energy_lab_mev", "branch"];
+pub const OPTIONAL_COLUMNS: [&str; 6] = [
+    "counts_background",
+    "counts_background_err",
+    "window_acceptance",
+    "window_acceptance_err",
+    "peak_energy_lab_mev",
+    "branch",
+];
 /// Columns [`prepare`] adds in front.
 pub const ADDED_COLUMNS: [&str; 3] = ["run", "theta_lab_deg", "theta_lab_err_deg"];
 
@@ -53,6 +67,8 @@ fn value_problem(column: &str, x: f64) -> Option<&'static str> {
     match column {
         "peak_energy_lab_mev" => (x <= 0.0).then_some("an energy > 0 MeV"),
         "branch" => (![1.0, 2.0].contains(&x)).then_some("branch 1 (the higher-energy solution) or 2"),
+        "window_acceptance" => (!(x > 0.0 && x <= 1.0)).then_some("a fraction in (0, 1]"),
+        "window_acceptance_err" => (x < 0.0).then_some("an uncertainty >= 0"),
         _ => (x < 0.0).then_some("a count >= 0"),
     }
 }
@@ -201,6 +217,12 @@ mod tests {
             ("branch", 7.0, false),
             ("branch", 1.5, false),
             ("branch", -1.0, false),
+            ("window_acceptance", 0.997, true),
+            ("window_acceptance", 1.0, true),
+            ("window_acceptance", 0.0, false),
+            ("window_acceptance", 1.2, false),
+            ("window_acceptance_err", 0.0, true),
+            ("window_acceptance_err", -1e-3, false),
         ];
         for (column, x, accepted) in cases {
             assert_eq!(value_problem(column, x).is_none(), accepted, "{column} = {x}");

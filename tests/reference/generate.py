@@ -21,6 +21,8 @@ Files written:
 * ``solid_angle.csv``                     -- aperture solid angles by 2-D quadrature
 * ``lab_cross_section_uncertainties.csv`` -- lab-frame dsigma/dOmega with
   statistical / systematic / normalisation uncertainty groups
+* ``window_acceptance.csv``               -- acceptance of a peak window with side
+  bands for a Gaussian peak
 """
 
 import math
@@ -415,6 +417,57 @@ def write_cross_section(out_dir):
 
 
 # --------------------------------------------------------------------------
+# (d) Window acceptance of a Gaussian peak with side-band background
+# --------------------------------------------------------------------------
+
+# Layouts in units of the peak's sigma about its centroid (centroid offset,
+# window half width k, gap, side-band width): k = 1..5 with the default gap
+# and width, then other side-band layouts and off-centre peaks.
+WINDOW_LAYOUTS = (
+    [(0.0, k, 1.0, 3.0) for k in (1.0, 2.0, 3.0, 4.0, 5.0)]
+    + [(0.0, 3.0, 0.0, 3.0), (0.0, 2.0, 0.5, 1.0), (0.0, 2.5, 2.0, 6.0),
+       (0.5, 3.0, 1.0, 3.0), (-1.5, 3.0, 1.0, 2.0), (0.0, 1.0, 0.0, 10.0)]
+)
+
+
+def window_acceptance_rows():
+    """A = F_w - (F_L + F_R) W_w / (W_L + W_R), F by scipy.stats.norm.cdf/sf."""
+    from scipy.stats import norm
+
+    def fraction(lo, hi, mu):
+        # sf for intervals above the centroid keeps the far tails precise.
+        if lo >= mu:
+            return norm.sf(lo - mu) - norm.sf(hi - mu)
+        return norm.cdf(hi - mu) - norm.cdf(lo - mu)
+
+    rows = []
+    for mu, k, gap, width in WINDOW_LAYOUTS:
+        f_w = fraction(-k, k, mu)
+        f_l = fraction(-k - gap - width, -k - gap, mu)
+        f_r = fraction(k + gap, k + gap + width, mu)
+        acceptance = f_w - (f_l + f_r) * (2 * k) / (2 * width)
+        rows.append([mu, k, gap, width, f_w, acceptance])
+    return rows
+
+
+def write_window_acceptance(out_dir):
+    return write_csv(
+        out_dir / "window_acceptance.csv",
+        [
+            "Window acceptance of a unit Gaussian peak (sigma = 1) centred at centroid_sigma:"
+            " window [-k, k), side bands [-k-gap-width, -k-gap) and [k+gap, k+gap+width).",
+            "window_fraction = Phi(k - mu) - Phi(-k - mu); acceptance = window_fraction"
+            " - (F_left + F_right) * 2k / (2 width), Phi = scipy.stats.norm.cdf (sf above mu).",
+        ],
+        ["centroid_sigma", "half_width_sigma", "gap_sigma", "side_band_width_sigma", "window_fraction",
+         "acceptance"],
+        window_acceptance_rows(),
+        generator=GENERATOR,
+        modules=[scipy],
+    )
+
+
+# --------------------------------------------------------------------------
 
 def main(argv=None):
     out = output_dir(__doc__.splitlines()[0], FIXTURES_DIR, argv)
@@ -422,6 +475,7 @@ def main(argv=None):
         ("dead_time_paralyzable.csv", write_dead_time),
         ("solid_angle.csv", write_solid_angle),
         ("lab_cross_section_uncertainties.csv", write_cross_section),
+        ("window_acceptance.csv", write_window_acceptance),
     ]:
         n = writer(out)
         print(f"wrote {out / name} ({n} rows)")

@@ -15,6 +15,7 @@ pub mod normalisation;
 pub mod nuclide;
 pub mod optical;
 pub mod partial_waves;
+pub mod peak_acceptance;
 pub mod peak_fit;
 pub mod polygon;
 pub mod rutherford;

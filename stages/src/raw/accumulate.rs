@@ -75,6 +75,11 @@ pub struct YieldRow {
     pub counts_background: f64,
     /// Its standard uncertainty.
     pub counts_background_err: f64,
+    /// The fraction of the peak the counting keeps: the window acceptance for side bands
+    /// (see [`Gate`](super::Gate)), 1 for a fitted peak area.
+    pub window_acceptance: f64,
+    /// Its standard uncertainty.
+    pub window_acceptance_err: f64,
 }
 
 /// What one run's raw data gave.
@@ -274,7 +279,7 @@ impl Accumulator<'_> {
             for (si, g) in &det.gates {
                 let gross = counts[d * ncat + 1 + 2 * si] as f64;
                 let side = counts[d * ncat + 2 + 2 * si] as f64;
-                let (gross, bg, bg_err) = match &fitted {
+                let (gross, bg, bg_err, acceptance) = match &fitted {
                     Some(f) => {
                         // The fitted area N ± σ_N becomes gross = N, background 0 ± √(σ_N² − N),
                         // so that the later net-count error √(gross + σ_bg²) is σ_N (or √N
@@ -282,11 +287,12 @@ impl Accumulator<'_> {
                         // peak-fit record.
                         let (n, e) =
                             f.peaks.iter().find(|p| p.state == g.state).map_or((0.0, 0.0), |p| (p.area, p.area_err));
-                        (n, 0.0, (e * e - n).max(0.0).sqrt())
+                        // The fitted Gaussian's whole area: nothing is outside a window.
+                        (n, 0.0, (e * e - n).max(0.0).sqrt(), (1.0, 0.0))
                     }
                     None => {
                         let scale = g.window.width() / (g.left.width() + g.right.width());
-                        (gross, side * scale, side.sqrt() * scale)
+                        (gross, side * scale, side.sqrt() * scale, (g.window_acceptance, g.window_acceptance_err))
                     }
                 };
                 yields.push(YieldRow {
@@ -295,6 +301,8 @@ impl Accumulator<'_> {
                     counts_gross: gross,
                     counts_background: bg,
                     counts_background_err: bg_err,
+                    window_acceptance: acceptance.0,
+                    window_acceptance_err: acceptance.1,
                 });
             }
             if let Some(f) = fitted {

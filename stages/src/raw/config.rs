@@ -114,6 +114,10 @@ pub struct WindowConfig {
     /// Right side band in channels.
     #[serde(default)]
     pub right_channels: Option<[f64; 2]>,
+    /// Where the peak sits, MeV, when not in the middle of the window: the window's
+    /// acceptance is computed for a Gaussian centred here (default: the window's middle).
+    #[serde(default)]
+    pub peak_centroid_mev: Option<f64>,
 }
 
 /// Gates: automatic windows around the kinematic energies, and written ones.
@@ -122,6 +126,10 @@ pub struct WindowConfig {
 pub struct GatesConfig {
     /// Peak resolution σ in MeV (standard deviation); > 0.
     pub resolution_mev: f64,
+    /// Standard uncertainty of the resolution σ in MeV (default 0); it gives the
+    /// uncertainty of each window's acceptance (`window_acceptance_err`).
+    #[serde(default)]
+    pub resolution_err_mev: f64,
     /// Half width of the peak window in units of σ (default 3).
     #[serde(default = "three")]
     pub window_resolutions: f64,

@@ -7,6 +7,7 @@
 use serde::Serialize;
 
 use crate::physics::kinematics::Mode;
+use crate::physics::peak_acceptance::{window_acceptance, EnergyInterval, GaussianPeak, WindowLayout};
 use crate::physics::polygon::polygon_problem;
 use crate::problem::Checks;
 use crate::{Problem, Setup};
@@ -35,6 +36,9 @@ impl Interval {
     pub(super) fn width(&self) -> f64 {
         self.high_mev - self.low_mev
     }
+    fn energies(&self) -> EnergyInterval {
+        EnergyInterval { low_mev: self.low_mev, high_mev: self.high_mev }
+    }
 }
 
 /// The gates of one detector and state, as used (recorded with the spectra).
@@ -52,6 +56,13 @@ pub struct Gate {
     pub left: Interval,
     /// Right side band.
     pub right: Interval,
+    /// The fraction of a Gaussian peak of the configured resolution, centred on the
+    /// window's middle (or a written window's `peak_centroid_mev`), that survives the
+    /// window and the side-band subtraction
+    /// ([`window_acceptance`](crate::physics::peak_acceptance::window_acceptance)).
+    pub window_acceptance: f64,
+    /// Its standard uncertainty, from `resolution_err_mev`.
+    pub window_acceptance_err: f64,
 }
 
 /// One detector's plan.
@@ -100,6 +111,7 @@ impl RawConfig {
         let mut c = Checks::default();
         let g = &self.gates;
         c.positive("gates.resolution_mev", g.resolution_mev);
+        c.non_negative("gates.resolution_err_mev", g.resolution_err_mev);
         c.positive("gates.window_resolutions", g.window_resolutions);
         c.non_negative("gates.side_band_gap_resolutions", g.side_band_gap_resolutions);
         c.positive("gates.side_band_width_resolutions", g.side_band_width_resolutions);
@@ -147,6 +159,9 @@ impl RawConfig {
                     "both MeV and channels",
                     &format!("{a}_mev or {a}_channels, not both"),
                 );
+            }
+            if let Some(e) = w.peak_centroid_mev {
+                c.require(e.is_finite(), &format!("{key}.peak_centroid_mev"), e, "a finite energy in MeV");
             }
             c.require(
                 w.window_mev.is_some() || w.window_channels.is_some(),
@@ -226,6 +241,24 @@ impl RawConfig {
                     written.and_then(|w| WindowConfig::interval(w.right_mev, w.right_channels, &cal)).unwrap_or(
                         Interval { low_mev: window.high_mev + gap * s, high_mev: window.high_mev + (gap + bw) * s },
                     );
+                let peak = GaussianPeak {
+                    centroid_mev: written
+                        .and_then(|w| w.peak_centroid_mev)
+                        .unwrap_or(0.5 * (window.low_mev + window.high_mev)),
+                    sigma_mev: s,
+                    sigma_err_mev: g.resolution_err_mev,
+                };
+                let layout = WindowLayout { window: window.energies(), left: left.energies(), right: right.energies() };
+                let acceptance = window_acceptance(&layout, &peak);
+                c.require(
+                    acceptance.value > 0.0,
+                    "gates",
+                    format!(
+                        "{det_id}, {state}: window acceptance {:.4} (the side bands hold more of the peak than the window)",
+                        acceptance.value
+                    ),
+                    "a window around the peak with side bands clear of it",
+                );
                 gates.push((
                     si,
                     Gate {
@@ -235,6 +268,8 @@ impl RawConfig {
                         window,
                         left,
                         right,
+                        window_acceptance: acceptance.value,
+                        window_acceptance_err: acceptance.err,
                     },
                 ));
             }

@@ -2,8 +2,8 @@
 //! each peak, with its uncertainty in three separate parts:
 //!
 //! - `stat_err_lab_mb_sr`: counting statistics of the peak and its background;
-//! - `sys_err_lab_mb_sr`: point-to-point systematic (efficiency, solid angle), which differs
-//!   between detectors;
+//! - `sys_err_lab_mb_sr`: point-to-point systematic (efficiency, solid angle, window
+//!   acceptance), which differs between detectors;
 //! - the common normalisation (charge, target, live fraction, or the monitor), the same
 //!   relative error for every point of a run, is `norm_rel_err`, added by `normalise` and
 //!   kept apart so that fits can treat it as one scale factor.
@@ -42,6 +42,9 @@ impl ComputeLabCrossSectionConfig {
 pub struct LabPoint {
     /// Net counts Y and u(Y).
     pub counts_net: (f64, f64),
+    /// Window acceptance A (the fraction of the peak the window and side bands keep) and
+    /// u(A); (1, 0) for yields without it.
+    pub window_acceptance: (f64, f64),
     /// Efficiency ε and u(ε).
     pub efficiency: (f64, f64),
     /// Solid angle in msr and its uncertainty.
@@ -63,20 +66,27 @@ pub struct LabCrossSection {
     pub sys_err_mb_sr: f64,
 }
 
-/// dσ/dΩ_lab = Y / (ε f_live L ΔΩ) (see [`lab_mb_sr_per_count`]) and its uncertainty. For a
-/// product of powers of independent inputs the relative uncertainties add in quadrature
-/// (JCGM 100:2008, section 5.1.6), grouped as
-///     u_stat = k u(Y),   u_sys = |σ| sqrt((u(ε)/ε)² + (u(ΔΩ)/ΔΩ)²),   k = σ / Y
+/// dσ/dΩ_lab = Y / (A ε f_live L ΔΩ) (see [`lab_mb_sr_per_count`]; A, the window
+/// acceptance, divides the counts like an efficiency:
+/// [`window_acceptance`](crate::physics::peak_acceptance::window_acceptance)) and its
+/// uncertainty. For a product of powers of independent inputs the relative uncertainties add
+/// in quadrature (JCGM 100:2008, section 5.1.6), grouped as
+///     u_stat = k u(Y),   u_sys = |σ| sqrt((u(A)/A)² + (u(ε)/ε)² + (u(ΔΩ)/ΔΩ)²),   k = σ / Y
 /// The statistical part is k·u(Y) rather than |σ|·u(Y)/Y, so that a peak with zero net
 /// counts keeps its honest error.
 pub fn lab_cross_section(p: &LabPoint) -> LabCrossSection {
-    let k = lab_mb_sr_per_count(p.efficiency.0, p.live_fraction, p.luminosity_per_cm2, p.solid_angle_msr.0);
+    let k = lab_mb_sr_per_count(p.efficiency.0, p.live_fraction, p.luminosity_per_cm2, p.solid_angle_msr.0)
+        / p.window_acceptance.0;
     let dsdo = k * p.counts_net.0;
     LabCrossSection {
         dsdo_mb_sr: dsdo,
         stat_err_mb_sr: k * p.counts_net.1,
         sys_err_mb_sr: dsdo.abs()
-            * quadrature(&[p.efficiency.1 / p.efficiency.0, p.solid_angle_msr.1 / p.solid_angle_msr.0]),
+            * quadrature(&[
+                p.window_acceptance.1 / p.window_acceptance.0,
+                p.efficiency.1 / p.efficiency.0,
+                p.solid_angle_msr.1 / p.solid_angle_msr.0,
+            ]),
     }
 }
 
@@ -104,10 +114,20 @@ impl Stage for ComputeLabCrossSection {
     fn run(&self, table: DataFrame, _ctx: &RunContext<'_>) -> Result<DataFrame, StageError> {
         let cols = INPUTS.iter().map(|name| f64_values(&table, name)).collect::<Result<Vec<_>, _>>()?;
         let pair = |i: usize, row: usize| (cols[i][row], cols[i + 1][row]);
+        let optional = |name: &str, default: f64| {
+            if table.column(name).is_ok() {
+                f64_values(&table, name)
+            } else {
+                Ok(vec![default; table.height()])
+            }
+        };
+        let acceptance = optional("window_acceptance", 1.0)?;
+        let acceptance_err = optional("window_acceptance_err", 0.0)?;
         let points: Vec<LabCrossSection> = (0..table.height())
             .map(|r| {
                 lab_cross_section(&LabPoint {
                     counts_net: pair(0, r),
+                    window_acceptance: (acceptance[r], acceptance_err[r]),
                     efficiency: pair(2, r),
                     solid_angle_msr: pair(4, r),
                     live_fraction: cols[6][r],
@@ -135,19 +155,24 @@ mod tests {
     fn lab_cross_sections_and_their_error_parts() {
         // L = 1e30 /cm² and ΔΩ = 1 msr give 1e27 mb / (1e30 · 1e-3) = 1 mb/sr per count
         // when ε = f_live = 1 (worked by hand). Columns: counts (Y, u), efficiency (ε, u),
-        // solid angle (msr, u), live fraction, then dσ/dΩ, stat, sys expected.
+        // solid angle (msr, u), live fraction, window acceptance (A, u), then dσ/dΩ, stat,
+        // sys expected.
         let cases = [
-            ((100.0, 10.0), (1.0, 0.0), (1.0, 0.0), 1.0, (100.0, 10.0, 0.0)),
+            ((100.0, 10.0), (1.0, 0.0), (1.0, 0.0), 1.0, (1.0, 0.0), (100.0, 10.0, 0.0)),
             // 1 % on ε and on ΔΩ: sys = 100 · √2 · 1 %; k = 1e27 / (0.5 · 1e30 · 2e-3) = 1.
-            ((100.0, 10.0), (0.5, 0.005), (2.0, 0.02), 1.0, (100.0, 10.0, 2f64.sqrt())),
+            ((100.0, 10.0), (0.5, 0.005), (2.0, 0.02), 1.0, (1.0, 0.0), (100.0, 10.0, 2f64.sqrt())),
             // Half live: twice the cross section and its counting error.
-            ((50.0, 7.0), (1.0, 0.0), (1.0, 0.0), 0.5, (100.0, 14.0, 0.0)),
+            ((50.0, 7.0), (1.0, 0.0), (1.0, 0.0), 0.5, (1.0, 0.0), (100.0, 14.0, 0.0)),
             // No net counts keep their counting error (k · u(Y), not |σ| u(Y)/Y).
-            ((0.0, 1.841), (1.0, 0.01), (1.0, 0.0), 1.0, (0.0, 1.841, 0.0)),
+            ((0.0, 1.841), (1.0, 0.01), (1.0, 0.0), 1.0, (1.0, 0.0), (0.0, 1.841, 0.0)),
+            // A window keeping 80 % ± 1 % of the peak: 100/0.8 = 125, stat 10/0.8 = 12.5,
+            // sys 125 · 1.25 % = 1.5625.
+            ((100.0, 10.0), (1.0, 0.0), (1.0, 0.0), 1.0, (0.8, 0.01), (125.0, 12.5, 1.5625)),
         ];
-        for (counts_net, efficiency, solid_angle_msr, live_fraction, (dsdo, stat, sys)) in cases {
+        for (counts_net, efficiency, solid_angle_msr, live_fraction, window_acceptance, (dsdo, stat, sys)) in cases {
             let got = lab_cross_section(&LabPoint {
                 counts_net,
+                window_acceptance,
                 efficiency,
                 solid_angle_msr,
                 live_fraction,
