@@ -135,9 +135,12 @@ fn hand_counted_events_give_the_expected_yields_and_tallies() {
     }
     let yields = std::fs::read_to_string(tmp.path().join("out/t1/yields.csv")).expect("yields");
     let row: Vec<f64> =
-        yields.lines().nth(1).expect("row").split(',').skip(2).map(|x| x.parse().expect("number")).collect();
+        yields.lines().nth(1).expect("row").split(',').skip(3).map(|x| x.parse().expect("number")).collect();
     assert!((row[0] - 4.0).abs() < 1e-12, "gross {yields}");
     assert!((row[1] - 3.0).abs() < 1e-12 && (row[2] - 3f64.sqrt()).abs() < 1e-12, "background {yields}");
+    // The window is ±5σ here (its acceptance erf(5/√2) = 0.99999943, Abramowitz & Stegun
+    // 26.2.2, less 3e-12 in the side bands); 1e-9: statrs's erfc to ~5e-11.
+    assert!((row[3] - 0.999_999_426_7).abs() < 1e-9, "acceptance {yields}");
 }
 
 #[test]
@@ -427,4 +430,122 @@ fn an_overflow_channel_out_of_range_is_a_config_error() {
             "{msg}"
         );
     }
+}
+
+/// A heavy beam on a lighter target (28Si on 12C at 60 MeV, invented): below the maximum
+/// lab angle of 25.4° every detector sees the elastic peak twice. Issue 17, finding 2.
+fn heavy_on_light(dir: &Path, windows: &str, events_csv: &str) {
+    std::fs::write(
+        dir.join("experiment.yaml"),
+        format!(
+            "experiment: {{ name: heavy on light }}
+reaction: {{ beam: 28Si, target: 12C, energy_mev: 60.0, beam_charge_state: 8, states: [{{ name: elastic, excitation_mev: 0.0 }}] }}
+target: {{ areal_density_ug_cm2: 50.0, molar_mass_g_mol: 12.0 }}
+detectors:
+  - {{ id: F10, theta_lab_deg: 10.0, distance_mm: 300.0, aperture: {{ shape: circle, radius_mm: 2.0 }} }}
+  - {{ id: F15, theta_lab_deg: 15.0, distance_mm: 300.0, aperture: {{ shape: circle, radius_mm: 2.0 }} }}
+runs: [run.run.yaml]
+stages:
+  - type: subtract_background
+  - type: compute_kinematics
+raw:
+  columns: {{ detector: det, energy: adc }}
+  overflow_channel: 4096
+  calibration:
+    all: {{ offset_mev: 0.0, gain_mev_per_channel: 0.02 }}
+  gates:
+    resolution_mev: 0.1
+{windows}"
+        ),
+    )
+    .expect("config");
+    std::fs::write(dir.join("run.run.yaml"), "run: h1\nevents_file: events.csv\ncharge_c: 1.0e-6\n").expect("record");
+    std::fs::write(dir.join("events.csv"), events_csv).expect("events");
+}
+
+/// The kinematic energies (branch 1, branch 2) of 28Si on 12C at `theta_lab_deg`, from
+/// `xsflow kinematics`.
+fn heavy_on_light_energies_mev(dir: &Path, theta_lab_deg: f64) -> Vec<f64> {
+    let angles = format!("{theta_lab_deg}:{theta_lab_deg}:1");
+    let args = ["kinematics", "--beam", "28Si", "--target", "12C", "--energy-mev", "60", "--angles", &angles];
+    let out = xsflow(dir, &[&args[..], &["--format", "json"]].concat());
+    let rows: serde_json::Value = serde_json::from_slice(&out.stdout).expect("kinematics json");
+    rows.as_array().expect("rows").iter().map(|r| r["energy_lab_mev"].as_f64().expect("energy")).collect()
+}
+
+#[test]
+fn issue_17_both_branches_of_a_double_valued_angle_reduce_from_list_mode() {
+    // Events at the kinematic energy of each branch (channel = E / 0.02 MeV, rounded):
+    // F10 40 and 25, F15 30 and 20; automatic windows ±0.3 MeV catch them all.
+    let tmp = tempfile::tempdir().expect("scratch");
+    let mut events = String::from("det,adc\n");
+    let counts = [("F10", 10.0, [40, 25]), ("F15", 15.0, [30, 20])];
+    for (det, theta, n) in counts {
+        let energies = heavy_on_light_energies_mev(tmp.path(), theta);
+        assert_eq!(energies.len(), 2, "two solutions at {theta}°: {energies:?}");
+        for (e, n) in energies.iter().zip(n) {
+            events.push_str(&format!("{det},{}\n", (e / 0.02).round()).repeat(n));
+        }
+    }
+    heavy_on_light(tmp.path(), "", &events);
+    let out = reduce(tmp.path());
+    assert_eq!(out.status.code(), Some(0), "{}", text(&out));
+    let csv = std::fs::read_to_string(tmp.path().join("out/h1/cross_sections.csv")).expect("csv");
+    let header: Vec<&str> = csv.lines().next().expect("header").split(',').collect();
+    let col = |name: &str| header.iter().position(|h| *h == name).expect("column");
+    let rows: Vec<(String, i64, f64, f64)> = csv
+        .lines()
+        .skip(1)
+        .map(|l| {
+            let f: Vec<&str> = l.split(',').collect();
+            let num = |name: &str| f[col(name)].parse::<f64>().expect("number");
+            (f[col("detector")].to_string(), num("branch") as i64, num("counts_gross"), num("theta_cm_deg"))
+        })
+        .collect();
+    // Both solutions of each detector, with their own counts and CM angles (33.9° and
+    // 166.1° at 10°; 52.1° and 157.9° at 15°, from `xsflow kinematics` above).
+    let want = [("F10", 1, 40.0, 33.9), ("F10", 2, 25.0, 166.1), ("F15", 1, 30.0, 52.1), ("F15", 2, 20.0, 157.9)];
+    assert_eq!(rows.len(), want.len(), "{csv}");
+    for ((det, branch, gross, cm), (w_det, w_branch, w_gross, w_cm)) in rows.iter().zip(want) {
+        // 0.05°: the CM angles above are quoted to 0.1°.
+        assert!(
+            det == w_det && *branch == w_branch && (gross - w_gross).abs() < 0.5 && (cm - w_cm).abs() < 0.05,
+            "{csv}"
+        );
+    }
+}
+
+#[test]
+fn issue_17_written_windows_of_a_double_valued_angle_name_their_branch() {
+    let tmp = tempfile::tempdir().expect("scratch");
+    // (written windows, what `check` says)
+    let cases = [
+        (
+            "{ detector: F10, state: elastic, window_mev: [55.0, 56.5] }",
+            "raw.gates.windows[0].branch: found missing, expected branch 1 or 2: detector F10 sees state elastic at 55.7149 MeV (branch 1) and 10.3098 MeV (branch 2)",
+        ),
+        (
+            "{ detector: F10, state: elastic, branch: 3, window_mev: [55.0, 56.5] }",
+            "raw.gates.windows[0].branch: found 3, expected 1 or 2",
+        ),
+        (
+            "{ detector: F10, state: elastic, branch: 2, window_mev: [10.0, 10.6] }, { detector: F10, state: elastic, branch: 2, window_mev: [10.0, 10.7] }",
+            "raw.gates.windows[1]: found detector F10, state elastic, branch 2 again (first at gates.windows[0])",
+        ),
+    ];
+    for (windows, message) in cases {
+        heavy_on_light(tmp.path(), &format!("    windows: [{windows}]\n"), "det,adc\n");
+        let msg = text(&xsflow(tmp.path(), &["check", "experiment.yaml"]));
+        assert!(msg.contains(message), "{windows}:\n{msg}");
+    }
+    // A written window for branch 2 alone: branch 1 keeps its automatic window.
+    heavy_on_light(
+        tmp.path(),
+        "    windows: [{ detector: F10, state: elastic, branch: 2, window_mev: [10.0, 10.6] }]\n",
+        "det,adc\nF10,515\nF10,2786\n",
+    );
+    let out = reduce(tmp.path());
+    assert_eq!(out.status.code(), Some(0), "{}", text(&out));
+    let yields = std::fs::read_to_string(tmp.path().join("out/h1/yields.csv")).expect("yields");
+    assert!(yields.contains("F10,elastic,1,1.0,") && yields.contains("F10,elastic,2,1.0,"), "{yields}");
 }

@@ -49,6 +49,7 @@ fn yields_frame(rows: &[stages::raw::YieldRow]) -> PolarsResult<DataFrame> {
     DataFrame::new_infer_height(vec![
         Column::new("detector".into(), rows.iter().map(|r| r.detector.clone()).collect::<Vec<_>>()),
         Column::new("state".into(), rows.iter().map(|r| r.state.clone()).collect::<Vec<_>>()),
+        Column::new("branch".into(), rows.iter().map(|r| i32::from(r.branch)).collect::<Vec<_>>()),
         Column::new("counts_gross".into(), rows.iter().map(|r| r.counts_gross).collect::<Vec<_>>()),
         Column::new("counts_background".into(), rows.iter().map(|r| r.counts_background).collect::<Vec<_>>()),
         Column::new("counts_background_err".into(), rows.iter().map(|r| r.counts_background_err).collect::<Vec<_>>()),

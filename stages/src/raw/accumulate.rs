@@ -69,6 +69,8 @@ pub struct YieldRow {
     pub detector: String,
     /// State.
     pub state: String,
+    /// Kinematic branch (1, or 2 for the lower-energy peak of a double-valued angle).
+    pub branch: u8,
     /// Counts in the peak window.
     pub counts_gross: f64,
     /// Background under the peak.
@@ -85,7 +87,8 @@ pub struct YieldRow {
 /// What one run's raw data gave.
 #[derive(Debug, Clone, PartialEq)]
 pub struct RawResult {
-    /// The yields table rows, detectors in config order, states in config order.
+    /// The yields table rows, detectors in config order, states in config order, then
+    /// branch.
     pub yields: Vec<YieldRow>,
     /// Where the events went.
     pub tally: Tally,
@@ -103,7 +106,7 @@ impl RawPlan {
     /// A new, empty accumulator.
     pub fn accumulator(&self) -> Accumulator<'_> {
         let n = self.detectors.len();
-        let ncat = 1 + 2 * self.states.len();
+        let ncat = self.n_categories;
         Accumulator {
             plan: self,
             hist_exact: vec![0; n * self.n_channels],
@@ -219,7 +222,7 @@ impl Accumulator<'_> {
             self.hist_exact[d * n_ch + ch as usize] += 1;
             return;
         }
-        let ncat = 1 + 2 * plan.states.len();
+        let ncat = plan.n_categories;
         self.direct[d * ncat + category(dp, e) as usize] += 1;
         self.hist_direct[d * n_ch + ch as usize] += 1;
     }
@@ -227,8 +230,7 @@ impl Accumulator<'_> {
     /// The yields, tallies and spectra.
     pub fn finish(mut self) -> RawResult {
         let plan = self.plan;
-        let (n_ch, ns) = (plan.n_channels, plan.states.len());
-        let ncat = 1 + 2 * ns;
+        let (n_ch, ncat) = (plan.n_channels, plan.n_categories);
         let mut counts = self.direct.clone();
         for d in 0..plan.detectors.len() {
             for ch in 0..n_ch {
@@ -240,7 +242,7 @@ impl Accumulator<'_> {
         }
         for d in 0..plan.detectors.len() {
             self.tally.outside_gates += counts[d * ncat];
-            for k in 0..ns {
+            for k in 0..(ncat - 1) / 2 {
                 self.tally.in_window += counts[d * ncat + 1 + 2 * k];
                 self.tally.in_side_band += counts[d * ncat + 2 + 2 * k];
             }
@@ -276,17 +278,16 @@ impl Accumulator<'_> {
                     }
                 },
             };
-            for (si, g) in &det.gates {
-                let gross = counts[d * ncat + 1 + 2 * si] as f64;
-                let side = counts[d * ncat + 2 + 2 * si] as f64;
+            for (k, (_, g)) in det.gates.iter().enumerate() {
+                let gross = counts[d * ncat + 1 + 2 * k] as f64;
+                let side = counts[d * ncat + 2 + 2 * k] as f64;
                 let (gross, bg, bg_err, acceptance) = match &fitted {
                     Some(f) => {
                         // The fitted area N ± σ_N becomes gross = N, background 0 ± √(σ_N² − N),
                         // so that the later net-count error √(gross + σ_bg²) is σ_N (or √N
                         // when the fit's error is below Poisson's). The window sum is in the
                         // peak-fit record.
-                        let (n, e) =
-                            f.peaks.iter().find(|p| p.state == g.state).map_or((0.0, 0.0), |p| (p.area, p.area_err));
+                        let (n, e) = f.peaks.get(k).map_or((0.0, 0.0), |p| (p.area, p.area_err));
                         // The fitted Gaussian's whole area: nothing is outside a window.
                         (n, 0.0, (e * e - n).max(0.0).sqrt(), (1.0, 0.0))
                     }
@@ -298,6 +299,7 @@ impl Accumulator<'_> {
                 yields.push(YieldRow {
                     detector: det.id.clone(),
                     state: g.state.clone(),
+                    branch: g.branch,
                     counts_gross: gross,
                     counts_background: bg,
                     counts_background_err: bg_err,

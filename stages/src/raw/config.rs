@@ -96,6 +96,11 @@ pub struct WindowConfig {
     pub detector: String,
     /// State name.
     pub state: String,
+    /// Kinematic branch where the detector sees the state at two energies (a heavy beam on
+    /// a lighter target): 1 for the higher-energy peak, 2 for the lower. Needed there;
+    /// default 1 elsewhere.
+    #[serde(default)]
+    pub branch: Option<u8>,
     /// Peak window [low, high) in MeV (or give `window_channels`).
     #[serde(default)]
     pub window_mev: Option<[f64; 2]>,

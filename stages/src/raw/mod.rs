@@ -16,8 +16,10 @@
 //! E_kin ± w σ_res, side bands of width b σ_res at a gap of d σ_res on both sides; the
 //! linear background under the peak is (N_left + N_right) · W_peak/(W_left + W_right), its
 //! variance (N_left + N_right) (W_peak/(W_left + W_right))² (common practice). E_kin is the
-//! relativistic two-body energy of the detected particle at the detector's angle (first
-//! branch), without energy loss in the target or a dead layer (put that in the calibration).
+//! relativistic two-body energy of the detected particle at the detector's angle, without
+//! energy loss in the target or a dead layer (put that in the calibration). Where the angle
+//! is double valued (a heavy beam on a lighter target), each state gets one gate per
+//! kinematic branch, and its yields row carries the `branch`.
 //!
 //! `config.rs` holds the section as written, `plan.rs` the checked plan (calibrations, gates,
 //! channel categories), `accumulate.rs` the tallies and histograms of one run, `peaks.rs`

@@ -22,9 +22,9 @@ pub struct PeakFitRecord {
     pub ndf: usize,
     /// Converged.
     pub converged: bool,
-    /// Per state, its fitted peak.
+    /// Per gate (state and branch), its fitted peak, in the gates' order.
     pub peaks: Vec<FittedPeak>,
-    /// Per state, the counts in the peak window.
+    /// Per gate, the counts in the peak window.
     pub window_counts: Vec<f64>,
 }
 
@@ -33,6 +33,8 @@ pub struct PeakFitRecord {
 pub struct FittedPeak {
     /// State name.
     pub state: String,
+    /// Kinematic branch.
+    pub branch: u8,
     /// Centroid, MeV.
     pub centroid_mev: f64,
     /// Width (standard deviation), MeV.
@@ -106,6 +108,7 @@ pub(super) fn fit_detector(
             .zip(&fit.peaks)
             .map(|((_, g), p)| FittedPeak {
                 state: g.state.clone(),
+                branch: g.branch,
                 centroid_mev: p.centroid,
                 width_mev: p.width,
                 area: p.area,

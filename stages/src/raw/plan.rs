@@ -6,13 +6,13 @@
 
 use serde::Serialize;
 
-use crate::physics::kinematics::Mode;
+use crate::physics::kinematics::{Mode, Solution};
 use crate::physics::peak_acceptance::{window_acceptance, EnergyInterval, GaussianPeak, WindowLayout};
 use crate::physics::polygon::polygon_problem;
 use crate::problem::Checks;
 use crate::{Problem, Setup};
 
-use super::{CalibrationConfig, RawConfig, WindowConfig};
+use super::{CalibrationConfig, GatesConfig, RawConfig, WindowConfig};
 
 /// A [low, high) interval in MeV.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
@@ -48,6 +48,9 @@ pub struct Gate {
     pub detector: String,
     /// State.
     pub state: String,
+    /// Kinematic branch: 1, or 2 for the lower-energy peak where the detector's lab angle
+    /// is double valued.
+    pub branch: u8,
     /// Kinematic energy, MeV (automatic windows are centred on it).
     pub energy_kinematic_mev: f64,
     /// Peak window.
@@ -65,6 +68,17 @@ pub struct Gate {
     pub window_acceptance_err: f64,
 }
 
+impl Gate {
+    /// The state's name, with the branch where it is the second (lower-energy) peak.
+    pub fn name(&self) -> String {
+        if self.branch == 1 {
+            self.state.clone()
+        } else {
+            format!("{} (branch {})", self.state, self.branch)
+        }
+    }
+}
+
 /// One detector's plan.
 #[derive(Debug, Clone)]
 pub(super) struct DetectorPlan {
@@ -80,9 +94,10 @@ pub struct RawPlan {
     /// The section.
     pub config: RawConfig,
     pub(super) detectors: Vec<DetectorPlan>,
-    pub(super) states: Vec<String>,
     /// Per detector, per channel: the category index (see `category`).
-    pub(super) categories: Vec<u8>,
+    pub(super) categories: Vec<u16>,
+    /// Categories per detector: 1 + 2 × the most gates of any detector.
+    pub(super) n_categories: usize,
     pub(super) n_channels: usize,
 }
 
@@ -214,64 +229,20 @@ impl RawConfig {
             c.non_negative(&format!("calibration.{key}.gain_err_mev_per_channel"), cal.gain_err_mev_per_channel);
             let mut gates = Vec::new();
             for (si, state) in states.iter().enumerate() {
-                let e_kin = setup.resolved.as_ref().and_then(|r| {
-                    r.channel(state)?
-                        .at_lab_angle(det.theta_lab_deg.to_radians(), r.detect, Mode::Relativistic)
-                        .first()
-                        .map(|s| s.energy_lab_mev)
+                let solutions = setup.resolved.as_ref().map_or_else(Vec::new, |r| {
+                    r.channel(state).map_or_else(Vec::new, |ch| {
+                        ch.at_lab_angle(det.theta_lab_deg.to_radians(), r.detect, Mode::Relativistic)
+                    })
                 });
-                let written = g.windows.iter().find(|w| w.detector == det_id && &w.state == state);
-                let (s, wr, gap, bw) = (
-                    g.resolution_mev,
-                    g.window_resolutions,
-                    g.side_band_gap_resolutions,
-                    g.side_band_width_resolutions,
-                );
-                let written_window =
-                    written.and_then(|w| WindowConfig::interval(w.window_mev, w.window_channels, &cal));
-                let window = match (written_window, e_kin) {
-                    (Some(w), _) => w,
-                    (None, Some(e)) => Interval { low_mev: e - wr * s, high_mev: e + wr * s },
-                    (None, None) => continue, // the state cannot reach this angle
-                };
-                let left = written.and_then(|w| WindowConfig::interval(w.left_mev, w.left_channels, &cal)).unwrap_or(
-                    Interval { low_mev: window.low_mev - (gap + bw) * s, high_mev: window.low_mev - gap * s },
-                );
-                let right =
-                    written.and_then(|w| WindowConfig::interval(w.right_mev, w.right_channels, &cal)).unwrap_or(
-                        Interval { low_mev: window.high_mev + gap * s, high_mev: window.high_mev + (gap + bw) * s },
-                    );
-                let peak = GaussianPeak {
-                    centroid_mev: written
-                        .and_then(|w| w.peak_centroid_mev)
-                        .unwrap_or(0.5 * (window.low_mev + window.high_mev)),
-                    sigma_mev: s,
-                    sigma_err_mev: g.resolution_err_mev,
-                };
-                let layout = WindowLayout { window: window.energies(), left: left.energies(), right: right.energies() };
-                let acceptance = window_acceptance(&layout, &peak);
-                c.require(
-                    acceptance.value > 0.0,
-                    "gates",
-                    format!(
-                        "{det_id}, {state}: window acceptance {:.4} (the side bands hold more of the peak than the window)",
-                        acceptance.value
-                    ),
-                    "a window around the peak with side bands clear of it",
-                );
-                gates.push((
-                    si,
-                    Gate {
-                        detector: det_id.clone(),
-                        state: state.clone(),
-                        energy_kinematic_mev: e_kin.unwrap_or(f64::NAN),
-                        window,
-                        left,
-                        right,
-                        window_acceptance: acceptance.value,
-                        window_acceptance_err: acceptance.err,
-                    },
-                ));
+                let written: Vec<(usize, &WindowConfig)> =
+                    g.windows.iter().enumerate().filter(|(_, w)| w.detector == det_id && &w.state == state).collect();
+                for (branch, e_kin) in branches_to_gate(&det_id, state, &solutions, &written, &mut c) {
+                    let w = written.iter().find(|(_, w)| w.branch.unwrap_or(1) == branch).map(|(_, w)| *w);
+                    let gate = GatePlace { det: &det_id, state, branch, energy_kinematic_mev: e_kin };
+                    if let Some(gate) = gate.place(g, &cal, w, &mut c) {
+                        gates.push((si, gate));
+                    }
+                }
             }
             for (a, (_, ga)) in gates.iter().enumerate() {
                 for (_, gb) in &gates[a + 1..] {
@@ -280,10 +251,10 @@ impl RawConfig {
                         "gates",
                         format!(
                             "{det_id}: windows of {} [{:.4}, {:.4}) and {} [{:.4}, {:.4}) MeV overlap",
-                            ga.state,
+                            ga.name(),
                             ga.window.low_mev,
                             ga.window.high_mev,
-                            gb.state,
+                            gb.name(),
                             gb.window.low_mev,
                             gb.window.high_mev
                         ),
@@ -297,7 +268,10 @@ impl RawConfig {
                             "gates",
                             format!(
                                 "{det_id}: the {side} side band of {} [{:.4}, {:.4}) MeV overlaps the window of {}",
-                                ga.state, iv.low_mev, iv.high_mev, gb.state
+                                ga.name(),
+                                iv.low_mev,
+                                iv.high_mev,
+                                gb.name()
                             ),
                             "side bands clear of every peak window (narrower side bands or a larger gap)",
                         );
@@ -316,22 +290,146 @@ impl RawConfig {
         if !c.problems.is_empty() {
             return Err(c.problems);
         }
-        // Category per channel: 0 outside, 1 + 2k window of state k, 2 + 2k side band of k.
-        let mut categories = vec![0u8; detectors.len() * n_ch];
+        // Category per channel: 0 outside, 1 + 2k window of the detector's gate k, 2 + 2k
+        // side band of gate k.
+        let n_categories = 1 + 2 * detectors.iter().map(|d| d.gates.len()).max().unwrap_or(0);
+        if n_categories > usize::from(u16::MAX) {
+            return Err(vec![Problem::new(
+                "gates",
+                format!("{} gates on one detector", (n_categories - 1) / 2),
+                format!("at most {} states and branches per detector", u16::MAX / 2),
+            )]);
+        }
+        let mut categories = vec![0u16; detectors.len() * n_ch];
         for (d, det) in detectors.iter().enumerate() {
             for ch in 0..n_ch {
                 categories[d * n_ch + ch] = category(det, det.cal.energy_mev(ch as f64));
             }
         }
-        Ok(RawPlan { config: self.clone(), detectors, states, categories, n_channels: n_ch })
+        Ok(RawPlan { config: self.clone(), detectors, categories, n_categories, n_channels: n_ch })
     }
 }
 
-pub(super) fn category(det: &DetectorPlan, e: f64) -> u8 {
-    if let Some((si, _)) = det.gates.iter().find(|(_, g)| g.window.contains(e)) {
-        return (1 + 2 * si) as u8;
+/// The kinematic branches of one state at one detector that get a gate, with their
+/// kinematic energies: every solution of the kinematics (two where the lab angle is double
+/// valued), and a written window's branch where the kinematics has none. Checks the written
+/// windows' `branch`: needed where the angle is double valued, 2 only there, one window per
+/// branch.
+fn branches_to_gate(
+    det_id: &str,
+    state: &str,
+    solutions: &[Solution],
+    written: &[(usize, &WindowConfig)],
+    c: &mut Checks,
+) -> Vec<(u8, Option<f64>)> {
+    let mut branches: Vec<(u8, Option<f64>)> = solutions.iter().map(|s| (s.branch, Some(s.energy_lab_mev))).collect();
+    for (n, (i, w)) in written.iter().enumerate() {
+        let key = format!("gates.windows[{i}].branch");
+        match (w.branch, solutions) {
+            (None, [one, two]) => c.require(
+                false,
+                &key,
+                "missing",
+                &format!(
+                    "branch 1 or 2: detector {det_id} sees state {state} at {:.4} MeV (branch 1) and {:.4} MeV (branch 2)",
+                    one.energy_lab_mev, two.energy_lab_mev
+                ),
+            ),
+            (Some(b), _) if !(b == 1 || (b == 2 && solutions.len() == 2)) => c.require(
+                false,
+                &key,
+                b,
+                if solutions.len() == 2 { "1 or 2" } else { "1 (this angle is single valued)" },
+            ),
+            _ => {}
+        }
+        let branch = w.branch.unwrap_or(1);
+        if let Some((first, _)) = written[..n].iter().find(|(_, o)| o.branch.unwrap_or(1) == branch) {
+            c.require(
+                false,
+                &format!("gates.windows[{i}]"),
+                format!("detector {det_id}, state {state}, branch {branch} again (first at gates.windows[{first}])"),
+                "one written window per detector, state and branch",
+            );
+        }
+        if !branches.iter().any(|(b, _)| *b == branch) {
+            branches.push((branch, None));
+        }
     }
-    det.gates.iter().find(|(_, g)| g.left.contains(e) || g.right.contains(e)).map_or(0, |(si, _)| (2 + 2 * si) as u8)
+    branches
+}
+
+/// Where one gate goes: a detector, a state and its branch, at its kinematic energy (none
+/// when only a written window places it).
+struct GatePlace<'a> {
+    det: &'a str,
+    state: &'a str,
+    branch: u8,
+    energy_kinematic_mev: Option<f64>,
+}
+
+impl GatePlace<'_> {
+    /// The gate: the written window where there is one, else the automatic window around
+    /// the kinematic energy, with side bands by the automatic rule unless written, and the
+    /// window's acceptance. None when there is neither.
+    fn place(
+        &self,
+        g: &GatesConfig,
+        cal: &CalibrationConfig,
+        written: Option<&WindowConfig>,
+        c: &mut Checks,
+    ) -> Option<Gate> {
+        let (s, wr, gap, bw) =
+            (g.resolution_mev, g.window_resolutions, g.side_band_gap_resolutions, g.side_band_width_resolutions);
+        let written_window = written.and_then(|w| WindowConfig::interval(w.window_mev, w.window_channels, cal));
+        let window = match (written_window, self.energy_kinematic_mev) {
+            (Some(w), _) => w,
+            (None, Some(e)) => Interval { low_mev: e - wr * s, high_mev: e + wr * s },
+            (None, None) => return None,
+        };
+        let left = written
+            .and_then(|w| WindowConfig::interval(w.left_mev, w.left_channels, cal))
+            .unwrap_or(Interval { low_mev: window.low_mev - (gap + bw) * s, high_mev: window.low_mev - gap * s });
+        let right = written
+            .and_then(|w| WindowConfig::interval(w.right_mev, w.right_channels, cal))
+            .unwrap_or(Interval { low_mev: window.high_mev + gap * s, high_mev: window.high_mev + (gap + bw) * s });
+        let peak = GaussianPeak {
+            centroid_mev: written.and_then(|w| w.peak_centroid_mev).unwrap_or(0.5 * (window.low_mev + window.high_mev)),
+            sigma_mev: s,
+            sigma_err_mev: g.resolution_err_mev,
+        };
+        let layout = WindowLayout { window: window.energies(), left: left.energies(), right: right.energies() };
+        let acceptance = window_acceptance(&layout, &peak);
+        c.require(
+            acceptance.value > 0.0,
+            "gates",
+            format!(
+                "{}, {} branch {}: window acceptance {:.4} (the side bands hold more of the peak than the window)",
+                self.det, self.state, self.branch, acceptance.value
+            ),
+            "a window around the peak with side bands clear of it",
+        );
+        Some(Gate {
+            detector: self.det.to_string(),
+            state: self.state.to_string(),
+            branch: self.branch,
+            energy_kinematic_mev: self.energy_kinematic_mev.unwrap_or(f64::NAN),
+            window,
+            left,
+            right,
+            window_acceptance: acceptance.value,
+            window_acceptance_err: acceptance.err,
+        })
+    }
+}
+
+/// The category of energy `e` in a detector: 0 outside every gate, 1 + 2k in the window of
+/// gate k, 2 + 2k in a side band of gate k (windows first, gates in order).
+pub(super) fn category(det: &DetectorPlan, e: f64) -> u16 {
+    if let Some(k) = det.gates.iter().position(|(_, g)| g.window.contains(e)) {
+        return (1 + 2 * k) as u16;
+    }
+    det.gates.iter().position(|(_, g)| g.left.contains(e) || g.right.contains(e)).map_or(0, |k| (2 + 2 * k) as u16)
 }
 
 impl RawPlan {

@@ -168,6 +168,11 @@ impl Stage for ComputeKinematics {
                 ("energy_lab_mev", energy),
             ],
         )?;
+        // The yields table's `branch`, when given, was the choice; the output column (at
+        // the end, like the other added ones) is the branch used.
+        if table.column("branch").is_ok() {
+            table = table.drop("branch")?;
+        }
         table.with_column(Column::new("branch".into(), branch))?;
         Ok(table)
     }
