@@ -138,9 +138,10 @@ fn hand_counted_events_give_the_expected_yields_and_tallies() {
         yields.lines().nth(1).expect("row").split(',').skip(3).map(|x| x.parse().expect("number")).collect();
     assert!((row[0] - 4.0).abs() < 1e-12, "gross {yields}");
     assert!((row[1] - 3.0).abs() < 1e-12 && (row[2] - 3f64.sqrt()).abs() < 1e-12, "background {yields}");
-    // The window is ±5σ here (its acceptance erf(5/√2) = 0.99999943, Abramowitz & Stegun
-    // 26.2.2, less 3e-12 in the side bands); 1e-9: statrs's erfc to ~5e-11.
-    assert!((row[3] - 0.999_999_426_7).abs() < 1e-9, "acceptance {yields}");
+    // The window is channels 2000…2099, [19.995, 20.995) MeV, −5.05σ to +4.95σ about its
+    // written middle 20.5 MeV: acceptance Φ(4.95) − Φ(−5.05) = 0.9999994080 (scipy.stats.norm,
+    // the side bands' share below 1e-20); 1e-9: statrs's erfc to ~5e-11.
+    assert!((row[3] - 0.999_999_408_0).abs() < 1e-9, "acceptance {yields}");
 }
 
 #[test]
@@ -272,7 +273,7 @@ fn bad_gates_and_polygons_are_config_errors() {
     assert_eq!(out.status.code(), Some(2), "{msg}");
     assert!(
         msg.contains(
-            "raw.gates: found A: the right side band of elastic [20.8000, 22.0000) MeV overlaps the window of elastic"
+            "raw.gates: found A: the right side band of elastic [20.7950, 21.9950) MeV (whole channels) overlaps the window of elastic"
         ),
         "{msg}"
     );

@@ -82,6 +82,14 @@ impl CalibrationConfig {
     pub fn energy_mev(&self, c: f64) -> f64 {
         self.offset_mev + c * (self.gain_mev_per_channel + c * self.quadratic_mev_per_channel2)
     }
+    /// The channel whose energy is `energy_mev`: the root of q c² + g c + e₀ − E = 0 on the
+    /// rising branch, written 2(E − e₀)/(g + √(g² + 4q(E − e₀))) so that it holds for q = 0
+    /// without cancellation (W. H. Press et al., Numerical Recipes, 3rd ed. (2007), Eq.
+    /// 5.6.4–5.6.5); where no real root exists, 2(E − e₀)/g (a starting point only).
+    pub fn channel_of(&self, energy_mev: f64) -> f64 {
+        let (g, q, d) = (self.gain_mev_per_channel, self.quadratic_mev_per_channel2, energy_mev - self.offset_mev);
+        2.0 * d / (g + (g * g + 4.0 * q * d).max(0.0).sqrt())
+    }
     /// σ_E(c) in MeV.
     pub fn energy_err_mev(&self, c: f64) -> f64 {
         self.offset_err_mev.hypot(c * self.gain_err_mev_per_channel)

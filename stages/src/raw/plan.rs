@@ -239,7 +239,7 @@ impl RawConfig {
                 for (branch, e_kin) in branches_to_gate(&det_id, state, &solutions, &written, &mut c) {
                     let w = written.iter().find(|(_, w)| w.branch.unwrap_or(1) == branch).map(|(_, w)| *w);
                     let gate = GatePlace { det: &det_id, state, branch, energy_kinematic_mev: e_kin };
-                    if let Some(gate) = gate.place(g, &cal, w, &mut c) {
+                    if let Some(gate) = gate.place(g, &cal, n_ch, w, &mut c) {
                         gates.push((si, gate));
                     }
                 }
@@ -267,7 +267,7 @@ impl RawConfig {
                             !iv.overlaps(&gb.window),
                             "gates",
                             format!(
-                                "{det_id}: the {side} side band of {} [{:.4}, {:.4}) MeV overlaps the window of {}",
+                                "{det_id}: the {side} side band of {} [{:.4}, {:.4}) MeV (whole channels) overlaps the window of {}",
                                 ga.name(),
                                 iv.low_mev,
                                 iv.high_mev,
@@ -359,6 +359,33 @@ fn branches_to_gate(
     branches
 }
 
+/// The channels whose energy E(c) lies in `iv`, as the energy interval they cover, or None
+/// when no channel of the spectrum does. Channel c holds the energies [E(c − ½), E(c + ½)):
+/// a calibration fitted to peak centroids gives each channel's centre (common practice), so
+/// a gate of whole channels c₁…c₂ covers [E(c₁ − ½), E(c₂ + ½)), and its widths and window
+/// acceptance are those of that interval.
+fn snap_to_channels(iv: Interval, cal: &CalibrationConfig, n_ch: usize) -> Option<Interval> {
+    let top = n_ch as f64 - 1.0;
+    let e = |c: f64| cal.energy_mev(c);
+    // The first channel at or above the low edge and the last below the high edge; the
+    // loops settle round-off in the inverse calibration.
+    let mut first = cal.channel_of(iv.low_mev).ceil().clamp(0.0, top + 1.0);
+    while first > 0.0 && e(first - 1.0) >= iv.low_mev {
+        first -= 1.0;
+    }
+    while first <= top && e(first) < iv.low_mev {
+        first += 1.0;
+    }
+    let mut last = (cal.channel_of(iv.high_mev).ceil() - 1.0).clamp(-1.0, top);
+    while last < top && e(last + 1.0) < iv.high_mev {
+        last += 1.0;
+    }
+    while last >= 0.0 && e(last) >= iv.high_mev {
+        last -= 1.0;
+    }
+    (first <= last).then(|| Interval { low_mev: e(first - 0.5), high_mev: e(last + 0.5) })
+}
+
 /// Where one gate goes: a detector, a state and its branch, at its kinematic energy (none
 /// when only a written window places it).
 struct GatePlace<'a> {
@@ -376,25 +403,54 @@ impl GatePlace<'_> {
         &self,
         g: &GatesConfig,
         cal: &CalibrationConfig,
+        n_ch: usize,
         written: Option<&WindowConfig>,
         c: &mut Checks,
     ) -> Option<Gate> {
         let (s, wr, gap, bw) =
             (g.resolution_mev, g.window_resolutions, g.side_band_gap_resolutions, g.side_band_width_resolutions);
         let written_window = written.and_then(|w| WindowConfig::interval(w.window_mev, w.window_channels, cal));
-        let window = match (written_window, self.energy_kinematic_mev) {
+        let nominal = match (written_window, self.energy_kinematic_mev) {
             (Some(w), _) => w,
             (None, Some(e)) => Interval { low_mev: e - wr * s, high_mev: e + wr * s },
             (None, None) => return None,
         };
         let left = written
             .and_then(|w| WindowConfig::interval(w.left_mev, w.left_channels, cal))
-            .unwrap_or(Interval { low_mev: window.low_mev - (gap + bw) * s, high_mev: window.low_mev - gap * s });
+            .unwrap_or(Interval { low_mev: nominal.low_mev - (gap + bw) * s, high_mev: nominal.low_mev - gap * s });
         let right = written
             .and_then(|w| WindowConfig::interval(w.right_mev, w.right_channels, cal))
-            .unwrap_or(Interval { low_mev: window.high_mev + gap * s, high_mev: window.high_mev + (gap + bw) * s });
+            .unwrap_or(Interval { low_mev: nominal.high_mev + gap * s, high_mev: nominal.high_mev + (gap + bw) * s });
+        let name =
+            if self.branch == 1 { self.state.to_string() } else { format!("{} branch {}", self.state, self.branch) };
+        let spectrum = format!("[{:.4}, {:.4}) MeV", cal.energy_mev(-0.5), cal.energy_mev(n_ch as f64 - 0.5));
+        let Some(window) = snap_to_channels(nominal, cal, n_ch) else {
+            c.require(
+                false,
+                "gates",
+                format!(
+                    "{}, {name}: the window [{:.4}, {:.4}) MeV holds no channel of the spectrum {spectrum}",
+                    self.det, nominal.low_mev, nominal.high_mev
+                ),
+                "a window inside the spectrum (check the calibration, overflow_channel and the states)",
+            );
+            return None;
+        };
+        let empty = |at: f64| Interval { low_mev: at, high_mev: at };
+        let left = snap_to_channels(left, cal, n_ch).unwrap_or(empty(window.low_mev));
+        let right = snap_to_channels(right, cal, n_ch).unwrap_or(empty(window.high_mev));
+        c.require(
+            left.width() + right.width() > 0.0,
+            "gates",
+            format!("{}, {name}: no side-band channel inside the spectrum {spectrum}", self.det),
+            "side bands that hold at least one channel",
+        );
         let peak = GaussianPeak {
-            centroid_mev: written.and_then(|w| w.peak_centroid_mev).unwrap_or(0.5 * (window.low_mev + window.high_mev)),
+            // The kinematic energy for an automatic window (its middle before the snap to
+            // whole channels), the written window's middle or its `peak_centroid_mev`.
+            centroid_mev: written
+                .and_then(|w| w.peak_centroid_mev)
+                .unwrap_or(0.5 * (nominal.low_mev + nominal.high_mev)),
             sigma_mev: s,
             sigma_err_mev: g.resolution_err_mev,
         };
@@ -458,5 +514,57 @@ impl RawPlan {
     /// The gates used, per detector and state.
     pub fn gates(&self) -> Vec<Gate> {
         self.detectors.iter().flat_map(|d| d.gates.iter().map(|(_, g)| g.clone())).collect()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn cal(offset_mev: f64, gain: f64, quadratic: f64) -> CalibrationConfig {
+        CalibrationConfig {
+            offset_mev,
+            gain_mev_per_channel: gain,
+            quadratic_mev_per_channel2: quadratic,
+            offset_err_mev: 0.0,
+            gain_err_mev_per_channel: 0.0,
+        }
+    }
+
+    #[test]
+    fn the_inverse_calibration_gives_back_the_channel() {
+        // (calibration, channel): E(c) then c(E) returns c (1e-9 channel: round-off of the
+        // square root for channels up to 4000).
+        let cases = [(cal(0.05, 0.01, 0.0), 2000.0), (cal(-0.3, 0.02, 1e-6), 3999.5), (cal(1.0, 0.01, -1e-7), 17.25)];
+        for (c, ch) in cases {
+            assert!((c.channel_of(c.energy_mev(ch)) - ch).abs() < 1e-9, "{c:?} {ch}");
+        }
+    }
+
+    #[test]
+    fn gates_snap_to_whole_channels() {
+        // E(c) = 0.01 c MeV, 4096 channels. (interval, snapped or None), worked by hand:
+        // the channels whose E(c) lies in [low, high), widened by half a channel each side.
+        let c = cal(0.0, 0.01, 0.0);
+        let iv = |low_mev: f64, high_mev: f64| Interval { low_mev, high_mev };
+        let cases = [
+            (iv(20.0, 21.0), Some(iv(19.995, 20.995))),     // channels 2000..=2099
+            (iv(20.003, 20.997), Some(iv(20.005, 20.995))), // 2001..=2099
+            (iv(20.001, 20.009), None),                     // no channel centre inside
+            (iv(-5.0, 0.015), Some(iv(-0.005, 0.015))),     // clipped at channel 0
+            (iv(40.9, 99.0), Some(iv(40.895, 40.955))),     // clipped at channel 4095
+            (iv(50.0, 60.0), None),                         // beyond the spectrum
+        ];
+        for (nominal, expected) in cases {
+            let got = snap_to_channels(nominal, &c, 4096);
+            match (got, expected) {
+                // 1e-9 MeV: round-off of E(c) = 0.01 c.
+                (Some(a), Some(b)) => assert!(
+                    (a.low_mev - b.low_mev).abs() < 1e-9 && (a.high_mev - b.high_mev).abs() < 1e-9,
+                    "{nominal:?}: {a:?}"
+                ),
+                (a, b) => assert_eq!(a, b, "{nominal:?}"),
+            }
+        }
     }
 }
