@@ -4,6 +4,7 @@
 mod bad_input;
 mod batch;
 mod cli;
+mod closure;
 mod common;
 mod config;
 mod fitting;
