@@ -147,6 +147,36 @@ impl CorrectDeadTime {
     }
 }
 
+/// The relative uncertainty of a reduced table's live fractions, split by what it is shared
+/// with (see [`live_fraction_rel_err`]).
+#[derive(Debug, Clone, PartialEq)]
+pub struct LiveFractionRelErr {
+    /// Common to every detector of the run (one acquisition): part of the normalisation.
+    pub common: f64,
+    /// Each row's own (per-detector dead time), independent of the other detectors and
+    /// runs: part of the row's statistical error.
+    pub own: Vec<f64>,
+}
+
+/// How the live-fraction columns of one run are to be read. One acquisition gives every row
+/// the same live fraction and error; that error is common to all detectors of the run, fully
+/// correlated between them, and belongs to the normalisation (`common`; `own` all 0).
+/// Per-detector dead time gives the rows their detectors' own values; each error is then
+/// independent of the other detectors and of the other runs and joins the row's statistical
+/// error (`own`; `common` 0). Detectors whose own clocks happen to give identical values
+/// are read as one acquisition, which changes nothing within a run and only the
+/// correlations of a combination. `live` and `err` are the columns `live_fraction` and
+/// `live_fraction_err`, row by row.
+pub fn live_fraction_rel_err(live: &[f64], err: &[f64]) -> LiveFractionRelErr {
+    let same = |v: &[f64]| v.windows(2).all(|w| w[0].to_bits() == w[1].to_bits());
+    let rel: Vec<f64> = live.iter().zip(err).map(|(f, u)| u / f).collect();
+    if same(live) && same(err) {
+        LiveFractionRelErr { common: rel.first().copied().unwrap_or(0.0), own: vec![0.0; rel.len()] }
+    } else {
+        LiveFractionRelErr { common: 0.0, own: rel }
+    }
+}
+
 impl Stage for CorrectDeadTime {
     fn name(&self) -> &'static str {
         "correct_dead_time"
@@ -221,6 +251,30 @@ mod tests {
         for (settings, run, key) in cases {
             let problems = stage(settings).check_run(&record(run));
             assert!(problems.iter().any(|p| p.key.starts_with(key)), "{key}: {problems:?}");
+        }
+    }
+
+    #[test]
+    fn a_shared_live_fraction_is_common_and_a_detectors_own_is_its_own() {
+        // (live fractions, their errors, common relative error, each row's own)
+        type Case = (&'static [f64], &'static [f64], f64, &'static [f64]);
+        let cases: [Case; 4] = [
+            // One acquisition: 0.9 ± 0.009 in every row, 1 % for the whole run.
+            (&[0.9, 0.9, 0.9], &[0.009, 0.009, 0.009], 0.01, &[0.0, 0.0, 0.0]),
+            // Per-detector dead time: 0.95 ± 0.0019 (0.2 %) and 0.6 ± 0.006 (1 %).
+            (&[0.95, 0.6], &[0.0019, 0.006], 0.0, &[0.002, 0.01]),
+            // The same fraction with different errors is still per detector.
+            (&[0.9, 0.9], &[0.009, 0.0], 0.0, &[0.01, 0.0]),
+            (&[], &[], 0.0, &[]),
+        ];
+        for (live, err, common, own) in cases {
+            let got = live_fraction_rel_err(live, err);
+            // 1e-12: one division.
+            assert_relative_eq!(got.common, common, max_relative = 1e-12);
+            assert_eq!(got.own.len(), own.len());
+            for (g, w) in got.own.iter().zip(own) {
+                assert_relative_eq!(*g, *w, max_relative = 1e-12);
+            }
         }
     }
 }
