@@ -6,6 +6,7 @@ mod batch;
 mod cli;
 mod common;
 mod config;
+mod dead_time;
 mod fitting;
 mod kinematics;
 mod nist;
