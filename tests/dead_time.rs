@@ -20,9 +20,9 @@ fn reduce_0101(dir: &std::path::Path, out: &str) -> HashMap<(String, String), Ha
 #[test]
 fn each_detectors_cross_section_uses_its_own_live_fraction() {
     // Run 0101 of the demo: real time 3600 s, one live clock of 3421 s (f = 0.95028) for all
-    // twelve detectors; clock_ratio with method_rel_err 0.002. Reduced once as it is, then
-    // with each detector's own live clock: D01 live 95 % of the time, D02 only 60 %, the
-    // others as the run.
+    // twelve detectors, a pulser of N = 36000 signals; clock_ratio with method_rel_err
+    // 0.002. Reduced once as it is, then with each detector's own live clock: D01 live 95 %
+    // of the time, D02 only 60 %, the others as the run.
     let tmp = demo_copy();
     let base = reduce_0101(tmp.path(), "base");
     let own_live_s: Vec<(String, f64)> = (1..=12)
@@ -39,7 +39,7 @@ fn each_detectors_cross_section_uses_its_own_live_fraction() {
     edit(&tmp.path().join("runs/run0101.run.yaml"), "charge_c:", &format!("detectors:\n{detectors}charge_c:"));
     let own = reduce_0101(tmp.path(), "own");
     assert_eq!(own.len(), base.len());
-    let method_rel_err = 0.002;
+    let (method_rel_err, pulser_sent) = (0.002, 36000.0);
     for ((detector, state), row) in &own {
         let was = &base[&(detector.clone(), state.clone())];
         let live_s = own_live_s.iter().find(|(d, _)| d == detector).expect("a detector of the demo").1;
@@ -47,7 +47,10 @@ fn each_detectors_cross_section_uses_its_own_live_fraction() {
         // Tolerances 1e-12 relative: the same arithmetic in another order (CSV round trip of
         // shortest decimals); 1e-9 where a difference of squares loses digits.
         assert_relative_eq!(num(row, "live_fraction"), f, max_relative = 1e-12);
-        assert_relative_eq!(num(row, "live_fraction_err"), f * method_rel_err, max_relative = 1e-12);
+        // The binomial error of the run's pulser at this detector's own live fraction,
+        // √(f (1 − f) / N), and the method's in quadrature.
+        let f_err = (f * (1.0 - f) / pulser_sent).sqrt().hypot(f * method_rel_err);
+        assert_relative_eq!(num(row, "live_fraction_err"), f_err, max_relative = 1e-12);
         // dσ/dΩ = Y / (ε f L ΔΩ): the product with the live fraction is the same whichever
         // live fraction the row has, so D02's cross section rises by 0.95028 / 0.6 = 1.584.
         for column in ["dsdo_lab_mb_sr", "dsdo_cm_mb_sr"] {
@@ -58,16 +61,16 @@ fn each_detectors_cross_section_uses_its_own_live_fraction() {
             );
         }
         // The live fraction's error is each detector's own now: it left the run's
-        // normalisation (0.2 % in quadrature) and joined each row's statistical error.
+        // normalisation (in quadrature) and joined each row's statistical error.
         assert_relative_eq!(
             num(row, "norm_rel_err").powi(2),
-            num(was, "norm_rel_err").powi(2) - method_rel_err.powi(2),
+            num(was, "norm_rel_err").powi(2) - (num(was, "live_fraction_err") / num(was, "live_fraction")).powi(2),
             max_relative = 1e-9
         );
         let counting = num(was, "stat_err_lab_mb_sr") * num(was, "live_fraction") / f;
         assert_relative_eq!(
             num(row, "stat_err_lab_mb_sr"),
-            counting.hypot(num(row, "dsdo_lab_mb_sr") * method_rel_err),
+            counting.hypot(num(row, "dsdo_lab_mb_sr") * f_err / f),
             max_relative = 1e-12
         );
         assert_relative_eq!(

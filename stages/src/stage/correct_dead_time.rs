@@ -25,7 +25,9 @@ use crate::{Problem, RunContext, RunRecord, Setup, Stage, StageError};
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize, JsonSchema)]
 #[serde(rename_all = "snake_case")]
 pub enum DeadTimeMethod {
-    /// live_time_s / real_time_s from the run record.
+    /// live_time_s / real_time_s from the run record; binomial error sqrt(f (1 - f) /
+    /// pulser_sent) where the record also gives pulser_sent and pulser_recorded, else none
+    /// (set `method_rel_err`).
     ClockRatio,
     /// pulser_recorded / pulser_sent, binomial error.
     PulserRatio,
@@ -78,7 +80,10 @@ pub struct CorrectDeadTimeConfig {
     #[serde(default)]
     pub resolving_time_err_us: f64,
     /// Relative uncertainty assigned to the method itself (added in quadrature to the
-    /// counting error); default 0, range [0, 1).
+    /// counting error: binomial for the pulser and trigger ratios, and for the clock ratio
+    /// where the run gives pulser counts; the models' from `resolving_time_err_us`); default
+    /// 0, range [0, 1). A clock ratio without a pulser has no other error: the README says
+    /// what to set.
     #[serde(default)]
     pub method_rel_err: f64,
 }
@@ -153,7 +158,10 @@ impl CorrectDeadTime {
             DeadTimeMethod::ClockRatio => {
                 let live = clocks.live_time_s.ok_or_else(|| missing("live_time_s"))?;
                 let real = clocks.real_time_s.ok_or_else(|| missing("real_time_s"))?;
-                dead_time::clock_ratio(live, real)
+                match (clocks.pulser_sent, clocks.pulser_recorded) {
+                    (Some(sent), Some(_)) => dead_time::clock_ratio_with_pulser(live, real, sent),
+                    _ => dead_time::clock_ratio(live, real),
+                }
             }
             DeadTimeMethod::PulserRatio => {
                 let sent = clocks.pulser_sent.ok_or_else(|| missing("pulser_sent"))?;
@@ -411,6 +419,15 @@ mod tests {
                 (0.9, 0.003),
                 (0.6, 2.4e-5f64.sqrt()),
             ),
+            // Own live clocks and the run's pulser of N = 10⁴ signals: each detector's
+            // binomial error of its own clock ratio, √(f (1 − f) / N).
+            (
+                "{ method: clock_ratio }",
+                "real_time_s: 100.0, pulser_sent: 10000, pulser_recorded: 9000,
+                 detectors: { A: { live_time_s: 95.0 }, B: { live_time_s: 60.0 } }",
+                (0.95, 4.75e-6f64.sqrt()),
+                (0.6, 2.4e-5f64.sqrt()),
+            ),
         ];
         for (settings, run, a, b) in cases {
             let (setup, stage) = two_detectors(settings);
@@ -478,6 +495,22 @@ mod tests {
         let cases = [
             ("{ method: clock_ratio }", "live_time_s: 90.0, real_time_s: 100.0", 0.9, 0.0),
             ("{ method: clock_ratio, method_rel_err: 0.01 }", "live_time_s: 80.0, real_time_s: 100.0", 0.8, 0.008),
+            // Clock ratio with a pulser of N = 10⁴: binomial u = √(f (1 − f) / N) = 0.003;
+            // with a 1 % method error too: √(0.003² + 0.009²) = √9e-5.
+            (
+                "{ method: clock_ratio }",
+                "live_time_s: 90.0, real_time_s: 100.0, pulser_sent: 10000, pulser_recorded: 9000",
+                0.9,
+                0.003,
+            ),
+            (
+                "{ method: clock_ratio, method_rel_err: 0.01 }",
+                "live_time_s: 90.0, real_time_s: 100.0, pulser_sent: 10000, pulser_recorded: 9000",
+                0.9,
+                9e-5f64.sqrt(),
+            ),
+            // Pulser signals sent but none said recorded: no pulser check, no binomial error.
+            ("{ method: clock_ratio }", "live_time_s: 90.0, real_time_s: 100.0, pulser_sent: 10000", 0.9, 0.0),
             ("{ method: pulser_ratio }", "pulser_sent: 10000, pulser_recorded: 9000", 0.9, 0.003),
             ("{ method: trigger_ratio }", "triggers_raw: 10000, triggers_accepted: 9000", 0.9, 0.003),
             (
