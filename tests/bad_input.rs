@@ -200,3 +200,15 @@ fn a_run_that_turns_an_arm_the_config_does_not_have_or_too_far_is_refused_with_i
            degrees (D01 would stand at -5)"],
     );
 }
+
+#[test]
+fn a_live_clock_given_for_some_detectors_only_is_refused_naming_those_with_and_without() {
+    assert_run_error(
+        "run0101.run.yaml",
+        "charge_c:",
+        "detectors: { D01: { live_time_s: 3420.0 }, D02: { live_time_s: 2160.0 } }\ncharge_c:",
+        &["run0101.run.yaml:4:1 detectors: found live_time_s given for D01, D02 and missing for D03, D04, D05, D06, \
+           D07, D08, D09, D10, D11, D12, expected live_time_s for every detector of the config or for none (the \
+           run's live_time_s then holds for all)"],
+    );
+}

@@ -62,8 +62,13 @@ pub fn edit(path: &Path, from: &str, to: &str) {
 
 /// Rows of a fixture CSV (lines starting with `#` skipped), as maps from column name to text.
 pub fn fixture_rows(name: &str) -> Vec<std::collections::HashMap<String, String>> {
-    let path = repo_root().join("tests/reference/fixtures").join(name);
-    let text = std::fs::read_to_string(&path).unwrap_or_else(|e| panic!("{}: {e}", path.display()));
+    csv_rows(&repo_root().join("tests/reference/fixtures").join(name))
+}
+
+/// The rows of a CSV file (lines starting with `#` skipped), as maps from column name to
+/// text.
+pub fn csv_rows(path: &Path) -> Vec<std::collections::HashMap<String, String>> {
+    let text = std::fs::read_to_string(path).unwrap_or_else(|e| panic!("{}: {e}", path.display()));
     let mut lines = text.lines().filter(|l| !l.starts_with('#'));
     let header: Vec<String> = lines.next().expect("a header line").split(',').map(str::to_string).collect();
     lines.map(|l| header.iter().cloned().zip(l.split(',').map(str::to_string)).collect()).collect()

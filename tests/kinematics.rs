@@ -144,14 +144,14 @@ fn monitor_normalisation_worked_by_hand() {
             counts_net: (10000.0, 100.0),
             efficiency: (1.0, 0.0),
             solid_angle_msr: (1.0, 0.01),
-            live_fraction: 0.5,
+            live_fraction: (0.5, 0.0),
             rutherford_lab_mb_sr: 1000.0,
         },
         MonitorPoint {
             counts_net: (5000.0, 5000f64.sqrt()),
             efficiency: (0.5, 0.0),
             solid_angle_msr: (2.0, 0.0),
-            live_fraction: 0.5,
+            live_fraction: (0.5, 0.0),
             rutherford_lab_mb_sr: 500.0,
         },
     ];

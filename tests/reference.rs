@@ -94,6 +94,7 @@ fn run_record(charge_c: f64, live_fraction: f64) -> RunRecord {
         triggers_accepted: None,
         recorded_rate_per_s: None,
         arm_theta_lab_deg: Default::default(),
+        detectors: Default::default(),
     }
 }
 

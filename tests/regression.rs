@@ -2,7 +2,7 @@
 
 use std::path::Path;
 
-use crate::common::{demo_copy, demo_dir, files_below, text, xsflow};
+use crate::common::{csv_rows, demo_copy, demo_dir, files_below, text, xsflow};
 
 /// Compare two CSV texts: same header, same text fields, numbers within `rel` relative.
 fn assert_csv_close(got: &str, want: &str, rel: f64, what: &str) {
@@ -204,14 +204,6 @@ fn rows_follow_detector_config_order_and_no_temporary_files_remain() {
         .expect("name")
         .to_string_lossy()
         .starts_with('.')));
-}
-
-/// The rows of a CSV file as maps from column name to text.
-fn csv_rows(path: &Path) -> Vec<std::collections::HashMap<String, String>> {
-    let text = std::fs::read_to_string(path).unwrap_or_else(|e| panic!("{}: {e}", path.display()));
-    let mut lines = text.lines();
-    let header: Vec<String> = lines.next().expect("header").split(',').map(str::to_string).collect();
-    lines.map(|l| header.iter().cloned().zip(l.split(',').map(str::to_string)).collect()).collect()
 }
 
 #[test]

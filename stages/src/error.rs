@@ -18,7 +18,7 @@ impl StageError {
     /// The input that holds the value to fix.
     pub fn origin(&self) -> Origin {
         match self {
-            StageError::MissingRunValue { .. } => Origin::RunRecord,
+            StageError::MissingRunValue { .. } | StageError::RunRecordValue(_) => Origin::RunRecord,
             StageError::NoSetup { .. } => Origin::Config,
             StageError::Physics { origin, .. } => *origin,
             _ => Origin::Table,
@@ -68,6 +68,9 @@ pub enum StageError {
         /// The stage and setting that need it.
         needed_by: String,
     },
+    /// A run-record value the stage cannot use (its `check_run` reports the same).
+    #[error("the run record's {0}")]
+    RunRecordValue(crate::Problem),
     /// A stage was built without part of the set-up it needs (the resolved reaction, a
     /// state's channel). Planning refuses such a config, so this is an internal defect, not
     /// a missing key of the user's run record.

@@ -75,7 +75,7 @@ impl StageConfig {
     pub fn build(&self, setup: Option<&Setup>) -> Result<Box<dyn Stage>, Vec<Problem>> {
         Ok(match self {
             StageConfig::SubtractBackground(c) => Box::new(c.build()?),
-            StageConfig::CorrectDeadTime(c) => Box::new(c.build()?),
+            StageConfig::CorrectDeadTime(c) => Box::new(c.build(setup)?),
             StageConfig::ComputeKinematics(c) => Box::new(c.build(setup)?),
             StageConfig::ApplyEfficiency(c) => Box::new(c.build(setup)?),
             StageConfig::ComputeSolidAngle(c) => Box::new(c.build()?),

@@ -23,14 +23,33 @@ pub fn clock_ratio(live_time_s: f64, real_time_s: f64) -> LiveFraction {
     LiveFraction { value: live_time_s / real_time_s, err: 0.0 }
 }
 
+/// Live fraction from the clocks, with the statistical uncertainty of a pulser of N signals
+/// recorded through the same acquisition:
+///     f = t_live / t_real,   u(f) = sqrt(f (1 - f) / N)
+/// The clocks measure the fraction of the run the acquisition was live; the pulser checks
+/// it with N trials, each recorded with probability f, so its recorded fraction k/N has
+/// the binomial variance f (1 - f) / N (binomial distribution: Knoll ch. 3, from memory;
+/// taking it as the clock ratio's uncertainty is common practice). f is the clocks' value,
+/// which k/N estimates: a detector with its own clocks and the run's pulser counts gets the
+/// binomial error of its own live fraction.
+pub fn clock_ratio_with_pulser(live_time_s: f64, real_time_s: f64, pulser_sent: u64) -> LiveFraction {
+    let f = live_time_s / real_time_s;
+    LiveFraction { value: f, err: binomial_err(f, pulser_sent) }
+}
+
+/// Standard deviation of the fraction kept when each of n offered events is kept with
+/// probability f: sqrt(f (1 - f) / n) (binomial distribution; common practice).
+fn binomial_err(f: f64, n: u64) -> f64 {
+    (f * (1.0 - f) / n as f64).sqrt()
+}
+
 /// Live fraction from a ratio of counts where each of N offered events is kept with
 /// probability f (pulser: recorded/sent; triggers: accepted/raw):
 ///     f = k / N,   u(f) = sqrt(f (1 - f) / N)
 /// The binomial standard deviation of a proportion (common practice; e.g. Knoll ch. 3).
 pub fn count_ratio(kept: u64, offered: u64) -> LiveFraction {
-    let n = offered as f64;
-    let f = kept as f64 / n;
-    LiveFraction { value: f, err: (f * (1.0 - f) / n).sqrt() }
+    let f = kept as f64 / offered as f64;
+    LiveFraction { value: f, err: binomial_err(f, offered) }
 }
 
 /// Non-paralyzable model: each recorded event blocks the system for τ, and events arriving
@@ -165,6 +184,20 @@ mod tests {
     fn saturated_rates_are_errors_not_nan() {
         assert!(matches!(non_paralyzable(1e6, 1e-6), Err(PhysicsError::NonParalyzableSaturated { .. })));
         assert!(matches!(paralyzable(4e5, 1e-6), Err(PhysicsError::ParalyzableAboveMaximum { .. })));
+    }
+
+    #[test]
+    fn clock_ratio_takes_the_binomial_error_of_its_pulser() {
+        // (live s, real s, pulser signals sent N, f, u); u = √(f (1 − f) / N), the binomial
+        // standard deviation of a proportion, worked by hand: √(0.9 · 0.1 / 10⁴) = 0.003,
+        // √(0.5 · 0.5 / 100) = 0.05, and 0 when the acquisition was never dead.
+        let cases = [(90.0, 100.0, 10_000, 0.9, 0.003), (50.0, 100.0, 100, 0.5, 0.05), (100.0, 100.0, 10, 1.0, 0.0)];
+        for (live_s, real_s, sent, value, err) in cases {
+            let f = clock_ratio_with_pulser(live_s, real_s, sent);
+            // 1e-14: one division and one square root.
+            assert_relative_eq!(f.value, value, max_relative = 1e-14);
+            assert_relative_eq!(f.err, err, max_relative = 1e-14);
+        }
     }
 
     #[test]

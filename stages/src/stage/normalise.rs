@@ -17,6 +17,7 @@ use crate::physics::rutherford::Convention;
 use crate::physics::uncertainty::quadrature;
 use crate::problem::Checks;
 use crate::setup::{Id, ResolvedReaction};
+use crate::stage::correct_dead_time::live_fraction_rel_err;
 use crate::table::{f64_values, str_values, with_f64_columns};
 use crate::{Problem, RunContext, RunRecord, Setup, Stage, StageError};
 
@@ -174,7 +175,7 @@ impl NormaliseConfig {
     }
 }
 
-const MONITOR_INPUTS: [&str; 11] = [
+const MONITOR_INPUTS: [&str; 12] = [
     "detector",
     "state",
     "counts_net",
@@ -186,6 +187,7 @@ const MONITOR_INPUTS: [&str; 11] = [
     "live_fraction",
     "theta_cm_deg",
     "domega_lab_per_domega_cm",
+    "live_fraction_err",
 ];
 
 impl Normalise {
@@ -210,6 +212,7 @@ impl Normalise {
             stage: "normalise (monitor_state)".into(),
             what: format!("a channel of state {}", m.state),
         })?;
+        let live_rel_err = live_fraction_rel_err(&cols[6], &cols[9]);
         let mut points = Vec::new();
         for id in &m.detectors {
             let row = detectors.iter().zip(&states).position(|(d, s)| d == id && *s == m.state).ok_or_else(|| {
@@ -226,7 +229,7 @@ impl Normalise {
                 counts_net: (cols[0][row], cols[1][row]),
                 efficiency: (cols[2][row], cols[3][row]),
                 solid_angle_msr: (cols[4][row], cols[5][row]),
-                live_fraction: cols[6][row],
+                live_fraction: (cols[6][row], cols[6][row] * live_rel_err.own[row]),
                 rutherford_lab_mb_sr: sigma_cm / cols[8][row],
             });
         }
@@ -279,10 +282,11 @@ impl Stage for Normalise {
         let (luminosity, norm_rel_err) = match (&self.monitor, absolute) {
             (Some(m), _) => Self::monitor_luminosity(m, &table)?,
             (None, Some([beam, beam_rel, target, target_rel])) => {
-                // The live fraction's error is common to the run: it joins the normalisation.
+                // The live fraction's error joins the normalisation where it is common to
+                // the run; a detector's own is in its statistical error.
                 let f = f64_values(&table, "live_fraction")?;
                 let f_err = f64_values(&table, "live_fraction_err")?;
-                let live_rel = f.first().zip(f_err.first()).map_or(0.0, |(f, u)| u / f);
+                let live_rel = live_fraction_rel_err(&f, &f_err).common;
                 (beam * target, quadrature(&[beam_rel, target_rel, live_rel]))
             }
             (None, None) => {
