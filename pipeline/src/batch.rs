@@ -21,9 +21,10 @@ use tracing::{info, info_span, warn};
 use crate::catalogue::{Catalogue, RunEntry, RunStatus, CATALOGUE_FILE};
 use crate::config::YamlFile;
 use crate::error::{Diagnostic, RunFailure};
+use crate::layout::{ANGULAR_DISTRIBUTION_PARQUET, CROSS_SECTIONS_PARQUET, FITS_DIR, FIT_JSON, PROVENANCE_JSON};
 use crate::plan::{Plan, PlannedRun};
 use crate::provenance::{record_time_s, rfc3339_utc, sha256_hex, RunInputs};
-use crate::run::{output_files, reduce_run, Summary, CROSS_SECTIONS_PARQUET, PROVENANCE_JSON};
+use crate::run::{output_files, reduce_run, Summary};
 use crate::tables::write_all_atomic;
 
 /// Settings of a batch.
@@ -274,8 +275,8 @@ pub fn batch(plan: &Plan, opts: &BatchOptions) -> Result<(BatchSummary, Vec<RunF
     if opts.shard.is_none() {
         let mut guard = catalogue.lock().map_err(|_| fail("catalogue lock poisoned".into()))?;
         let key = combined_key(plan, &guard)?;
-        let missing = !opts.out.join(crate::run::ANGULAR_DISTRIBUTION_PARQUET).is_file()
-            || plan.fits.iter().any(|f| !opts.out.join(crate::run::FITS_DIR).join(&f.name).join("fit.json").is_file());
+        let missing = !opts.out.join(ANGULAR_DISTRIBUTION_PARQUET).is_file()
+            || plan.fits.iter().any(|f| !opts.out.join(FITS_DIR).join(&f.name).join(FIT_JSON).is_file());
         if missing || guard.meta("combined_key").map_err(fail)?.as_deref() != Some(key.as_str()) {
             let before = failures.len();
             let (tables, unreadable) = ok_tables(plan, &opts.out, &mut guard)?;

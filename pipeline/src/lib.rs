@@ -10,6 +10,7 @@ pub mod error;
 pub mod events;
 pub mod fit;
 pub mod kinematics;
+pub mod layout;
 pub mod locate;
 pub mod plan;
 pub mod provenance;
