@@ -5,11 +5,14 @@
 //! (shards on a shared file system, or a second batch started by mistake) queue instead of
 //! corrupting it.
 
+use std::fmt::Write as _;
 use std::path::Path;
 use std::time::Duration;
 
 use rusqlite::{params, Connection, OptionalExtension};
 use serde::Serialize;
+
+use crate::cli::TableFormat;
 
 /// The catalogue's file name in the output folder.
 pub const CATALOGUE_FILE: &str = "catalogue.sqlite";
@@ -288,4 +291,39 @@ pub fn entries_table(entries: &[RunEntry]) -> polars::prelude::PolarsResult<pola
         Column::new("processed_utc".into(), text(&|e| e.processed_utc.clone())),
         Column::new("error".into(), text(&|e| e.error.clone())),
     ])
+}
+
+/// The run list as `xsflow runs` prints it: a JSON array, CSV ([`entries_table`]), or
+/// aligned columns with the first line of each error.
+///
+/// # Errors
+/// The table library's error (CSV only).
+pub fn render(entries: &[RunEntry], format: TableFormat) -> polars::prelude::PolarsResult<String> {
+    Ok(match format {
+        TableFormat::Json => serde_json::to_string_pretty(entries).unwrap_or_default() + "\n",
+        TableFormat::Csv => {
+            let bytes = entries_table(entries).and_then(|mut t| crate::tables::csv_bytes(&mut t))?;
+            String::from_utf8_lossy(&bytes).into_owned()
+        }
+        TableFormat::Table => {
+            let mut s = format!(
+                "{:<12} {:<7} {:>9} {:>12} {:>12} {:>8}  error\n",
+                "run", "status", "seconds", "events", "charge_c", "live"
+            );
+            for e in entries {
+                let _ = writeln!(
+                    s,
+                    "{:<12} {:<7} {:>9.3} {:>12} {:>12} {:>8}  {}",
+                    e.run,
+                    e.status,
+                    e.seconds,
+                    e.events.map(|x| x.to_string()).unwrap_or_else(|| "-".into()),
+                    e.charge_c.map(|x| format!("{x:.4e}")).unwrap_or_else(|| "-".into()),
+                    e.live_fraction.map(|x| format!("{x:.4}")).unwrap_or_else(|| "-".into()),
+                    e.error.lines().next().unwrap_or("")
+                );
+            }
+            s
+        }
+    })
 }

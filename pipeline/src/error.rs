@@ -85,11 +85,9 @@ pub struct RunFailure {
     pub problems: Vec<Diagnostic>,
 }
 
-/// Print diagnostics to stderr, one block each.
-pub fn report(diagnostics: &[Diagnostic]) {
-    for d in diagnostics {
-        eprintln!("{d}");
-    }
+/// Diagnostics as text, one block each (for stderr).
+pub fn render(diagnostics: &[Diagnostic]) -> String {
+    diagnostics.iter().map(|d| format!("{d}\n")).collect()
 }
 
 /// Run `work`, turning a panic (a defect of xsflow, never the user's input) into a failure

@@ -5,6 +5,7 @@
 pub mod batch;
 pub mod catalogue;
 pub mod cli;
+pub mod commands;
 pub mod config;
 pub mod error;
 pub mod events;

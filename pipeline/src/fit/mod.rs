@@ -18,7 +18,7 @@ use stages::physics::model_fit::NORMALISATION;
 pub use entries::{plan_fit, run_fits, Experiment, FitCounts, FitProblem, PlannedFit};
 pub use input::{choose_state, load, read_data, stack, LoadedFit};
 pub use record::{provenance_json, FitProvenance};
-pub use render::render_text;
+pub use render::{render, render_text};
 
 use crate::error::Diagnostic;
 use crate::layout::{FIT_JSON, PROVENANCE_JSON, PROVENANCE_KEY};

@@ -1,8 +1,19 @@
-//! A fit's report for a person.
+//! A fit's report as `xsflow fit` prints it: for a person, or as JSON or YAML.
 
 use std::fmt::Write as _;
 
 use stages::fit::FitReport;
+
+use crate::cli::ReportFormat;
+
+/// The report in the chosen format.
+pub fn render(r: &FitReport, format: ReportFormat) -> String {
+    match format {
+        ReportFormat::Text => render_text(r),
+        ReportFormat::Json => serde_json::to_string_pretty(r).unwrap_or_default() + "\n",
+        ReportFormat::Yaml => serde_yaml::to_string(r).unwrap_or_default(),
+    }
+}
 
 fn opt(v: Option<f64>, prec: usize) -> String {
     v.map_or_else(|| "-".into(), |x| format!("{x:.prec$e}"))
