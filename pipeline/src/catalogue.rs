@@ -301,10 +301,7 @@ pub fn entries_table(entries: &[RunEntry]) -> polars::prelude::PolarsResult<pola
 pub fn render(entries: &[RunEntry], format: TableFormat) -> polars::prelude::PolarsResult<String> {
     Ok(match format {
         TableFormat::Json => serde_json::to_string_pretty(entries).unwrap_or_default() + "\n",
-        TableFormat::Csv => {
-            let bytes = entries_table(entries).and_then(|mut t| crate::tables::csv_bytes(&mut t))?;
-            String::from_utf8_lossy(&bytes).into_owned()
-        }
+        TableFormat::Csv => entries_table(entries).and_then(|mut t| crate::tables::csv_text(&mut t))?,
         TableFormat::Table => {
             let mut s = format!(
                 "{:<12} {:<7} {:>9} {:>12} {:>12} {:>8}  error\n",

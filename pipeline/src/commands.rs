@@ -284,7 +284,7 @@ fn kinematics_table(request: &kinematics::Request<'_>, angles_text: &str, format
     };
     let mode = if request.non_relativistic { Mode::NonRelativistic } else { Mode::Relativistic };
     let rows = kinematics::rows(&reaction, &angles, mode);
-    Report::new().out(&kinematics::render(&reaction, &rows, format, mode))
+    printed_table(kinematics::render(&reaction, &rows, format, mode))
 }
 
 fn theory_curve(model: &Path, angles_text: &str, format: TableFormat) -> Report {
@@ -293,7 +293,7 @@ fn theory_curve(model: &Path, angles_text: &str, format: TableFormat) -> Report 
         Err(report) => return report,
     };
     match theory::curve(model, &angles) {
-        Ok(curve) => Report::new().out(&theory::render(&curve, format)),
+        Ok(curve) => printed_table(theory::render(&curve, format)),
         Err(diags) => Report::diagnostics(&diags),
     }
 }
@@ -401,9 +401,14 @@ fn runs(out: &Path, failed: bool, format: TableFormat) -> Report {
         Ok(e) => e,
         Err(m) => return Report::bad_input(m),
     };
-    match catalogue::render(&entries, format) {
+    printed_table(catalogue::render(&entries, format))
+}
+
+/// A rendered table on stdout, or why it could not be written.
+fn printed_table(rendered: polars::prelude::PolarsResult<String>) -> Report {
+    match rendered {
         Ok(text) => Report::new().out(&text),
-        Err(e) => Report::new().err(format_args!("cannot write the run list as CSV: {e}")).end(Outcome::Failed),
+        Err(e) => Report::new().err(format_args!("cannot write the table as CSV: {e}")).end(Outcome::Failed),
     }
 }
 

@@ -4,12 +4,14 @@
 use std::collections::BTreeMap;
 use std::fmt::Write as _;
 
+use polars::prelude::{Column, DataFrame, PolarsResult};
 use serde::Serialize;
 use stages::physics::kinematics::{Detect, Mode, Solution};
 use stages::setup::{DetectConfig, ReactionConfig, ResolvedReaction, StateConfig};
 use tracing::warn;
 
 use crate::cli::TableFormat;
+use crate::tables::csv_text;
 
 /// One solution at one lab angle, as printed.
 #[derive(Debug, Clone, Serialize, PartialEq)]
@@ -158,17 +160,25 @@ pub fn rows(reaction: &ResolvedReaction, angles_deg: &[f64], mode: Mode) -> Vec<
     out
 }
 
-const COLUMNS: [&str; 9] = [
-    "theta_lab_deg",
-    "theta_cm_deg",
-    "energy_lab_mev",
-    "domega_lab_per_domega_cm",
-    "branch",
-    "recoil_theta_lab_deg",
-    "recoil_energy_lab_mev",
-    "ejectile_theta_lab_deg",
-    "ejectile_energy_lab_mev",
-];
+/// The rows as a table, one column per field of [`KinematicsRow`] in its order.
+///
+/// # Errors
+/// The table library's error.
+pub fn table(rows: &[KinematicsRow]) -> PolarsResult<DataFrame> {
+    let col =
+        |name: &str, f: fn(&KinematicsRow) -> f64| Column::new(name.into(), rows.iter().map(f).collect::<Vec<_>>());
+    DataFrame::new_infer_height(vec![
+        col("theta_lab_deg", |r| r.theta_lab_deg),
+        col("theta_cm_deg", |r| r.theta_cm_deg),
+        col("energy_lab_mev", |r| r.energy_lab_mev),
+        col("domega_lab_per_domega_cm", |r| r.domega_lab_per_domega_cm),
+        Column::new("branch".into(), rows.iter().map(|r| r.branch).collect::<Vec<_>>()),
+        col("recoil_theta_lab_deg", |r| r.recoil_theta_lab_deg),
+        col("recoil_energy_lab_mev", |r| r.recoil_energy_lab_mev),
+        col("ejectile_theta_lab_deg", |r| r.ejectile_theta_lab_deg),
+        col("ejectile_energy_lab_mev", |r| r.ejectile_energy_lab_mev),
+    ])
+}
 
 fn values(r: &KinematicsRow) -> [f64; 9] {
     [
@@ -184,20 +194,22 @@ fn values(r: &KinematicsRow) -> [f64; 9] {
     ]
 }
 
-/// The rows in the chosen format, with a heading for the table format.
-pub fn render(reaction: &ResolvedReaction, rows: &[KinematicsRow], format: TableFormat, mode: Mode) -> String {
-    match format {
+/// The rows in the chosen format, with a heading for the table format; CSV through the
+/// one CSV writer ([`csv_text`]).
+///
+/// # Errors
+/// The table library's error (CSV only).
+pub fn render(
+    reaction: &ResolvedReaction,
+    rows: &[KinematicsRow],
+    format: TableFormat,
+    mode: Mode,
+) -> PolarsResult<String> {
+    Ok(match format {
         TableFormat::Json => {
             serde_json::to_string_pretty(rows).unwrap_or_else(|e| format!("{{\"error\": \"{e}\"}}")) + "\n"
         }
-        TableFormat::Csv => {
-            let mut s = COLUMNS.join(",") + "\n";
-            for r in rows {
-                let line: Vec<String> = values(r).iter().map(f64::to_string).collect();
-                s += &(line.join(",") + "\n");
-            }
-            s
-        }
+        TableFormat::Csv => csv_text(&mut table(rows)?)?,
         TableFormat::Table => {
             let mut s = String::new();
             if let Some((_, ch)) = reaction.channels.first() {
@@ -252,5 +264,48 @@ pub fn render(reaction: &ResolvedReaction, rows: &[KinematicsRow], format: Table
             }
             s
         }
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn row(theta_lab_deg: f64, branch: u8) -> KinematicsRow {
+        KinematicsRow {
+            theta_lab_deg,
+            theta_cm_deg: theta_lab_deg + 0.5,
+            energy_lab_mev: 23.949509358004224,
+            domega_lab_per_domega_cm: 1.0 / 3.0,
+            branch,
+            recoil_theta_lab_deg: 84.0,
+            recoil_energy_lab_mev: 0.05,
+            ejectile_theta_lab_deg: theta_lab_deg,
+            ejectile_energy_lab_mev: 23.949509358004224,
+        }
+    }
+
+    #[test]
+    fn csv_goes_through_the_one_writer_and_reads_back_bit_for_bit() {
+        let rows = [row(10.0, 1), row(12.25, 2)];
+        let text = csv_text(&mut table(&rows).expect("table")).expect("csv");
+        // (line, what the writer gives: floats in their shortest round-trip form with a
+        // decimal point, the branch as a whole number)
+        let cases = [
+            (0, "theta_lab_deg,theta_cm_deg,energy_lab_mev,domega_lab_per_domega_cm,branch,recoil_theta_lab_deg,recoil_energy_lab_mev,ejectile_theta_lab_deg,ejectile_energy_lab_mev"),
+            (1, "10.0,10.5,23.949509358004224,0.3333333333333333,1,84.0,0.05,10.0,23.949509358004224"),
+            (2, "12.25,12.75,23.949509358004224,0.3333333333333333,2,84.0,0.05,12.25,23.949509358004224"),
+        ];
+        let lines: Vec<&str> = text.lines().collect();
+        for (i, want) in cases {
+            assert_eq!(lines[i], want, "line {i}");
+        }
+        let tmp = tempfile::tempdir().expect("scratch");
+        let path = tmp.path().join("kinematics.csv");
+        std::fs::write(&path, &text).expect("write");
+        let back = crate::tables::read_table(&path).expect("the CSV reads back");
+        let jacobians = stages::table::f64_values(&back, "domega_lab_per_domega_cm").expect("column");
+        // Shortest round-trip form: the value read back is the same double, bit for bit.
+        assert!(jacobians.iter().all(|x| x.to_bits() == (1.0_f64 / 3.0).to_bits()), "{jacobians:?}");
     }
 }

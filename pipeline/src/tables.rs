@@ -49,6 +49,14 @@ pub fn csv_bytes(table: &mut DataFrame) -> PolarsResult<Vec<u8>> {
     Ok(out)
 }
 
+/// A table as CSV text ([`csv_bytes`]), for printing.
+///
+/// # Errors
+/// The writer's error.
+pub fn csv_text(table: &mut DataFrame) -> PolarsResult<String> {
+    csv_bytes(table).map(|bytes| String::from_utf8_lossy(&bytes).into_owned())
+}
+
 /// A table as Parquet bytes with file-level key-value metadata (zstd, no parallel
 /// encoding, so the bytes depend only on the data).
 ///
