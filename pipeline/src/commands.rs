@@ -309,11 +309,11 @@ fn fit_command(data: &Path, model: &Path, state: Option<&str>, out: Option<&Path
     };
     let state = match fit::choose_state(&table, state) {
         Ok(s) => s,
-        Err(m) => return Report::diagnostics(&[Diagnostic::new(data, "state", m)]),
+        Err(e) => return Report::diagnostics(&[Diagnostic::new(data, "state", e.to_string())]),
     };
     let mut output = match fit::run(&loaded, &table, &state) {
         Ok(o) => o,
-        Err(m) => return Report::diagnostics(&[Diagnostic::new(model, "", m)]),
+        Err(e) => return Report::diagnostics(&[Diagnostic::new(model, "", e.to_string())]),
     };
     let out_dir = out.map_or_else(|| model.parent().unwrap_or(Path::new(".")).join("fit"), Path::to_path_buf);
     let record = match fit::provenance_json(&loaded, &files, Path::new(".")) {

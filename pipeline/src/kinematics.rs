@@ -57,34 +57,72 @@ impl KinematicsRow {
     }
 }
 
+/// What `--angles` accepts, for messages.
+const ACCEPTED_ANGLES: &str = "A:B:STEP (e.g. 10:170:10) or a list (e.g. 15,30,45), angles in (0, 180) degrees";
+
+/// The most angles one `--angles` range may give.
+const MAX_ANGLES: usize = 100_000;
+
+/// An `--angles` text that gives no angles.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+#[error("--angles {text}: {problem}; accepted: {ACCEPTED_ANGLES}")]
+pub struct AnglesError {
+    /// The text given.
+    pub text: String,
+    /// What is wrong with it.
+    pub problem: AnglesProblem,
+}
+
+/// What is wrong with an `--angles` text.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum AnglesProblem {
+    /// A part that is no finite number.
+    #[error("`{0}` is not a number")]
+    NotANumber(String),
+    /// A range of other than three parts.
+    #[error("a range needs three numbers")]
+    RangeParts,
+    /// A range that runs backwards or does not advance.
+    #[error("a range needs A <= B and STEP > 0")]
+    RangeOrder,
+    /// A range of too many angles.
+    #[error("more than {MAX_ANGLES} angles")]
+    TooMany,
+    /// An angle outside (0, 180) degrees.
+    #[error("{0} is outside (0, 180)")]
+    Outside(f64),
+}
+
 /// Parse `A:B:STEP` (inclusive of B when the steps reach it) or a comma list `10,20,35`.
 ///
 /// # Errors
-/// A message naming the text and the accepted forms.
-pub fn parse_angles(text: &str) -> Result<Vec<f64>, String> {
-    let bad = |why: &str| {
-        format!("--angles {text}: {why}; accepted: A:B:STEP (e.g. 10:170:10) or a list (e.g. 15,30,45), angles in (0, 180) degrees")
-    };
+/// The text and what is wrong with it; its message names the accepted forms.
+pub fn parse_angles(text: &str) -> Result<Vec<f64>, AnglesError> {
+    let bad = |problem| AnglesError { text: text.to_string(), problem };
     let number = |s: &str| {
-        s.trim().parse::<f64>().ok().filter(|x| x.is_finite()).ok_or_else(|| bad(&format!("`{s}` is not a number")))
+        s.trim()
+            .parse::<f64>()
+            .ok()
+            .filter(|x| x.is_finite())
+            .ok_or_else(|| bad(AnglesProblem::NotANumber(s.to_string())))
     };
     let angles = if text.contains(':') {
         let parts: Vec<&str> = text.split(':').collect();
-        let [a, b, step] = parts[..] else { return Err(bad("a range needs three numbers")) };
+        let [a, b, step] = parts[..] else { return Err(bad(AnglesProblem::RangeParts)) };
         let (a, b, step) = (number(a)?, number(b)?, number(step)?);
         if step <= 0.0 || b < a {
-            return Err(bad("a range needs A <= B and STEP > 0"));
+            return Err(bad(AnglesProblem::RangeOrder));
         }
         let n = ((b - a) / step + 1e-9).floor() as usize;
-        if n > 100_000 {
-            return Err(bad("more than 100000 angles"));
+        if n > MAX_ANGLES {
+            return Err(bad(AnglesProblem::TooMany));
         }
         (0..=n).map(|i| a + step * i as f64).collect()
     } else {
         text.split(',').map(number).collect::<Result<Vec<_>, _>>()?
     };
     if let Some(x) = angles.iter().find(|x| !(**x > 0.0 && **x < 180.0)) {
-        return Err(bad(&format!("{x} is outside (0, 180)")));
+        return Err(bad(AnglesProblem::Outside(*x)));
     }
     Ok(angles)
 }
@@ -107,11 +145,23 @@ pub struct Request<'a> {
     pub non_relativistic: bool,
 }
 
+/// A value of a kinematics request that is not accepted, named by its command-line flag.
+#[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
+#[error("{flag}: found {found}, expected {expected}")]
+pub struct FlagProblem {
+    /// The flag (`--energy-mev`), or the key of the problem when no flag sets it.
+    pub flag: String,
+    /// The value found.
+    pub found: String,
+    /// What is accepted.
+    pub expected: String,
+}
+
 /// The reaction of a request, or the problems, phrased with the command-line flags.
 ///
 /// # Errors
-/// Each problem as a line naming the flag.
-pub fn resolve(req: &Request<'_>) -> Result<ResolvedReaction, Vec<String>> {
+/// Each problem, named by its flag.
+pub fn resolve(req: &Request<'_>) -> Result<ResolvedReaction, Vec<FlagProblem>> {
     let config = ReactionConfig {
         beam: req.beam.to_string(),
         target: req.target.to_string(),
@@ -124,7 +174,7 @@ pub fn resolve(req: &Request<'_>) -> Result<ResolvedReaction, Vec<String>> {
     };
     config.resolve().map_err(|problems| {
         problems
-            .iter()
+            .into_iter()
             .map(|p| {
                 let flag = match p.key.as_str() {
                     "energy_mev" => "--energy-mev",
@@ -134,7 +184,7 @@ pub fn resolve(req: &Request<'_>) -> Result<ResolvedReaction, Vec<String>> {
                     "ejectile" => "--ejectile",
                     other => other,
                 };
-                format!("{flag}: found {}, expected {}", p.found, p.expected)
+                FlagProblem { flag: flag.to_string(), found: p.found, expected: p.expected }
             })
             .collect()
     })
@@ -283,6 +333,26 @@ mod tests {
             ejectile_theta_lab_deg: theta_lab_deg,
             ejectile_energy_lab_mev: 23.949509358004224,
         }
+    }
+
+    #[test]
+    fn angles_that_cannot_be_read_say_why() {
+        // (text, what is wrong)
+        let cases = [
+            ("10:x:1", AnglesProblem::NotANumber("x".into())),
+            ("10:20", AnglesProblem::RangeParts),
+            ("20:10:1", AnglesProblem::RangeOrder),
+            ("10:20:0", AnglesProblem::RangeOrder),
+            ("0.001:179:0.001", AnglesProblem::TooMany),
+            ("10,190", AnglesProblem::Outside(190.0)),
+            ("0", AnglesProblem::Outside(0.0)),
+        ];
+        for (text, problem) in cases {
+            let err = parse_angles(text).expect_err(text);
+            assert_eq!(err, AnglesError { text: text.into(), problem: problem.clone() }, "{text}");
+            assert!(err.to_string().starts_with(&format!("--angles {text}: {problem}; accepted: A:B:STEP")), "{err}");
+        }
+        assert_eq!(parse_angles("10:30:10").expect("a range").len(), 3, "B is included when the steps reach it");
     }
 
     #[test]

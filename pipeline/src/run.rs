@@ -61,7 +61,7 @@ fn reduce_raw(plan: &Plan, run: &LoadedRun) -> Result<(DataFrame, RawOutputs), V
         RunData::Spectra => crate::events::reduce_spectra(path, raw),
         _ => crate::events::reduce_events(path, raw),
     }
-    .map_err(|m| vec![Diagnostic::new(path, "", m)])?;
+    .map_err(|e| vec![Diagnostic::new(path, "", e.to_string())])?;
     if result.tally.events == 0 {
         warn!(run = %run.record.run, file = %path.display(), "the file holds no events: every yield is zero");
     }
@@ -112,8 +112,8 @@ fn read_and_reduce(plan: &Plan, run: &LoadedRun) -> Result<Reduced, Vec<Diagnost
         vec![Diagnostic::new(yields, "", format!("{what}: {e}"))]
     })?;
     let (raw, raw_outputs) = if run.data == RunData::Yields {
-        let t = read_table(yields).map_err(|m| {
-            vec![Diagnostic::new(yields, "", m)
+        let t = read_table(yields).map_err(|e| {
+            vec![Diagnostic::new(yields, "", e.to_string())
                 .with_help("a yields table needs columns detector, state, counts_gross (schemas/yields.schema.json)")]
         })?;
         (t, None)
@@ -442,12 +442,12 @@ pub fn check_runs(plan: &Plan) -> Vec<RunFailure> {
             Ok(run) if run.data != RunData::Yields => match run.raw(plan) {
                 Some(raw) => crate::events::check_file(&run.yields_path, raw, run.data == RunData::Spectra)
                     .err()
-                    .map(|m| vec![Diagnostic::new(&run.yields_path, "", m)])
+                    .map(|e| vec![Diagnostic::new(&run.yields_path, "", e.to_string())])
                     .unwrap_or_default(),
                 None => Vec::new(),
             },
             Ok(run) => match read_table(&run.yields_path) {
-                Err(m) => vec![Diagnostic::new(&run.yields_path, "", m)],
+                Err(e) => vec![Diagnostic::new(&run.yields_path, "", e.to_string())],
                 Ok(raw) => match stages::yields::prepare(&raw, run.setup(plan), &run.record.run.0) {
                     Err(errs) => errs.iter().map(|e| table_diagnostic(&run.yields_path, "", e)).collect(),
                     Ok(prepared) => plan

@@ -156,9 +156,9 @@ fn run_fit(
     if tables.is_empty() {
         return Err(Diagnostic::new(experiment.config_path, &f.key, "no run was reduced, so there is nothing to fit"));
     }
-    let stacked = stack(tables.to_vec()).map_err(|m| Diagnostic::new(experiment.config_path, &f.key, m))?;
+    let stacked = stack(tables.to_vec()).map_err(|e| Diagnostic::new(experiment.config_path, &f.key, e.to_string()))?;
     let mut output = run(&f.loaded, &stacked, &f.state)
-        .map_err(|m| Diagnostic::new(&f.loaded.path, "", format!("fit of state {}: {m}", f.state)))?;
+        .map_err(|e| Diagnostic::new(&f.loaded.path, "", format!("fit of state {}: {e}", f.state)))?;
     // The fit file relative to the config's folder, like the inputs, so that the record
     // does not depend on where xsflow was started.
     let path = &f.loaded.path;

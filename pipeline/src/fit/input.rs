@@ -12,6 +12,8 @@ use crate::error::Diagnostic;
 use crate::layout::CROSS_SECTIONS_PARQUET;
 use crate::tables::{is_csv, read_table};
 
+use super::FitError;
+
 /// A fit file, read, checked and built.
 pub struct LoadedFit {
     /// The fit file.
@@ -50,8 +52,9 @@ pub fn load(path: &Path, experiment: Option<&stages::Setup>) -> Result<LoadedFit
 /// Read a theory curve table (columns `theta_cm_deg`, `dsdo_cm_mb_sr`; the CSV of
 /// `xsflow theory --format csv` is one).
 fn read_curve(path: &Path) -> Result<CurveTable, Diagnostic> {
-    let table = read_table(path)
-        .map_err(|m| Diagnostic::new(path, "", m).with_help("a curve table has columns theta_cm_deg, dsdo_cm_mb_sr"))?;
+    let table = read_table(path).map_err(|e| {
+        Diagnostic::new(path, "", e.to_string()).with_help("a curve table has columns theta_cm_deg, dsdo_cm_mb_sr")
+    })?;
     let col = |name| stages::table::f64_values(&table, name).map_err(|e| Diagnostic::new(path, "", e.to_string()));
     CurveTable::new(col("theta_cm_deg")?, col("dsdo_cm_mb_sr")?).map_err(|p| {
         // A CSV data row i is on line i + 2 (header first).
@@ -73,7 +76,9 @@ fn read_curve(path: &Path) -> Result<CurveTable, Diagnostic> {
 /// Unreadable files or folders, a folder without reduced runs, tables that do not stack.
 pub fn read_data(path: &Path) -> Result<(DataFrame, Vec<PathBuf>), Diagnostic> {
     if !path.is_dir() {
-        return read_table(path).map(|t| (t, vec![path.to_path_buf()])).map_err(|m| Diagnostic::new(path, "", m));
+        return read_table(path)
+            .map(|t| (t, vec![path.to_path_buf()]))
+            .map_err(|e| Diagnostic::new(path, "", e.to_string()));
     }
     let pattern = path.join("*").join(CROSS_SECTIONS_PARQUET);
     let matches = glob::glob(&pattern.to_string_lossy()).map_err(|e| {
@@ -91,16 +96,16 @@ pub fn read_data(path: &Path) -> Result<(DataFrame, Vec<PathBuf>), Diagnostic> {
     }
     let mut tables = Vec::new();
     for f in &files {
-        tables.push(read_table(f).map_err(|m| Diagnostic::new(f, "", m))?);
+        tables.push(read_table(f).map_err(|e| Diagnostic::new(f, "", e.to_string()))?);
     }
-    Ok((stack(tables).map_err(|m| Diagnostic::new(path, "", m))?, files))
+    Ok((stack(tables).map_err(|e| Diagnostic::new(path, "", e.to_string()))?, files))
 }
 
 /// Stack tables with the columns the fit reads (and `run`, `detector`) in that order.
 ///
 /// # Errors
 /// A table without one of the columns, or columns of different types.
-pub fn stack(tables: Vec<DataFrame>) -> Result<DataFrame, String> {
+pub fn stack(tables: Vec<DataFrame>) -> Result<DataFrame, FitError> {
     let mut names: Vec<&str> = vec!["run", "detector", "members", stages::fit::RUTHERFORD_CONVENTION];
     names.extend(stages::fit::FIT_COLUMNS);
     let mut out: Option<DataFrame> = None;
@@ -108,33 +113,33 @@ pub fn stack(tables: Vec<DataFrame>) -> Result<DataFrame, String> {
         let cols = names
             .iter()
             .filter(|n| t.column(n).is_ok())
-            .map(|n| t.column(n).cloned().map_err(|e| e.to_string()))
+            .map(|n| t.column(n).cloned())
             .collect::<Result<Vec<Column>, _>>()?;
-        let part = DataFrame::new_infer_height(cols).map_err(|e| e.to_string())?;
+        let part = DataFrame::new_infer_height(cols)?;
         out = Some(match out {
             None => part,
             Some(mut acc) => {
-                acc.vstack_mut(&part).map_err(|e| format!("the reduced tables do not stack: {e}"))?;
+                acc.vstack_mut(&part).map_err(FitError::Stack)?;
                 acc
             }
         });
     }
-    out.ok_or_else(|| "no tables".into())
+    out.ok_or(FitError::NoTables)
 }
 
 /// The state to fit: the given one, or the only state of the table.
 ///
 /// # Errors
 /// No state given and the table holds several (they are listed), or no `state` column.
-pub fn choose_state(table: &DataFrame, state: Option<&str>) -> Result<String, String> {
+pub fn choose_state(table: &DataFrame, state: Option<&str>) -> Result<String, FitError> {
     if let Some(s) = state {
         return Ok(s.to_string());
     }
-    let mut states = stages::table::str_values(table, "state").map_err(|e| e.to_string())?;
+    let mut states = stages::table::str_values(table, "state")?;
     states.sort();
     states.dedup();
     match states.as_slice() {
         [one] => Ok(one.clone()),
-        _ => Err(format!("the table holds states {}; choose one with --state", states.join(", "))),
+        _ => Err(FitError::SeveralStates { states }),
     }
 }

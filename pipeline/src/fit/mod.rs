@@ -11,9 +11,10 @@ mod render;
 
 use std::path::{Path, PathBuf};
 
-use polars::prelude::{Column, DataFrame};
-use stages::fit::{FitData, FitReport};
+use polars::prelude::{Column, DataFrame, PolarsError};
+use stages::fit::{FitData, FitFailure, FitReport};
 use stages::physics::model_fit::NORMALISATION;
+use stages::StageError;
 
 pub use entries::{plan_fit, run_fits, Experiment, FitCounts, FitProblem, PlannedFit};
 pub use input::{choose_state, load, read_data, stack, LoadedFit};
@@ -23,6 +24,36 @@ pub use render::{render, render_text};
 use crate::error::Diagnostic;
 use crate::layout::{FIT_JSON, PROVENANCE_JSON, PROVENANCE_KEY};
 use crate::tables::{csv_bytes, parquet_bytes, write_all_atomic};
+
+/// Why a fit could not be made. A fit that runs and does not converge is no error: its
+/// report says so.
+#[derive(Debug, thiserror::Error)]
+pub enum FitError {
+    /// The data do not suit the fit: a column missing, a value it cannot use.
+    #[error(transparent)]
+    Data(#[from] StageError),
+    /// The fit could not start.
+    #[error(transparent)]
+    Start(#[from] FitFailure),
+    /// The model fails at the fitted parameters while its curve is drawn.
+    #[error("{0}")]
+    Curve(Box<dyn std::error::Error + Send + Sync>),
+    /// Reduced tables whose columns do not match.
+    #[error("the reduced tables do not stack: {0}")]
+    Stack(#[source] PolarsError),
+    /// Nothing to stack.
+    #[error("no tables")]
+    NoTables,
+    /// No state chosen, and the table holds several (or none).
+    #[error("the table holds states {}; choose one with --state", .states.join(", "))]
+    SeveralStates {
+        /// The states in the table.
+        states: Vec<String>,
+    },
+    /// The table library failed.
+    #[error(transparent)]
+    Table(#[from] PolarsError),
+}
 
 /// A fit's result and its best curve.
 pub struct FitOutput {
@@ -36,9 +67,9 @@ pub struct FitOutput {
 ///
 /// # Errors
 /// Data that do not suit the fit, or a fit that cannot start; the message says why.
-pub fn run(loaded: &LoadedFit, table: &DataFrame, state: &str) -> Result<FitOutput, String> {
-    let data = FitData::from_table(table, state).map_err(|e| e.to_string())?;
-    let (report, values) = loaded.fit.run(&data, state, loaded.model).map_err(|e| e.to_string())?;
+pub fn run(loaded: &LoadedFit, table: &DataFrame, state: &str) -> Result<FitOutput, FitError> {
+    let data = FitData::from_table(table, state)?;
+    let (report, values) = loaded.fit.run(&data, state, loaded.model)?;
     let nu = report.parameters.iter().find(|p| p.name == NORMALISATION).map_or(1.0, |p| p.value);
     // Half-degree steps from 2° before the first point to 2° after the last, inside the
     // range where the model is defined (a curve model: its table).
@@ -46,7 +77,8 @@ pub fn run(loaded: &LoadedFit, table: &DataFrame, state: &str) -> Result<FitOutp
     let (min, max) = loaded.fit.angle_range_deg();
     let (lo, hi) = ((first - 2.0).max(min), (last + 2.0).min(max));
     let angles: Vec<f64> = (0..).map(|i| lo + 0.5 * f64::from(i)).take_while(|a| *a <= hi).collect();
-    let rows = loaded.fit.curve(&values, nu, &angles, data.rutherford_convention)?;
+    let rows =
+        loaded.fit.curve(&values, nu, &angles, data.rutherford_convention).map_err(|e| FitError::Curve(e.into()))?;
     let has_ratio = rows.iter().any(|r| r.2.is_some());
     let curve = DataFrame::new_infer_height(vec![
         Column::new("theta_cm_deg".into(), rows.iter().map(|r| r.0).collect::<Vec<_>>()),
@@ -56,8 +88,7 @@ pub fn run(loaded: &LoadedFit, table: &DataFrame, state: &str) -> Result<FitOutp
             stages::fit::RUTHERFORD_CONVENTION.into(),
             rows.iter().map(|_| has_ratio.then_some(data.rutherford_convention.name())).collect::<Vec<_>>(),
         ),
-    ])
-    .map_err(|e| e.to_string())?;
+    ])?;
     Ok(FitOutput { report, curve })
 }
 
