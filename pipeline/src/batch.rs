@@ -68,6 +68,19 @@ pub struct ShardError {
     pub text: String,
 }
 
+impl BatchSummary {
+    /// Count the runs whose outputs could not be read back (see `ok_tables`) as failed,
+    /// and no longer as what they were counted before: ok when `processed_now(run)` (this
+    /// batch reduced it, or a merge copied it), else skipped. Each run is counted once.
+    fn count_unreadable(&mut self, unreadable: &[RunFailure], processed_now: impl Fn(&str) -> bool) {
+        for f in unreadable {
+            let before = if processed_now(&f.run) { &mut self.ok } else { &mut self.skipped };
+            *before = before.saturating_sub(1);
+            self.failed += 1;
+        }
+    }
+}
+
 /// Parse `K/N`.
 ///
 /// # Errors
@@ -290,7 +303,8 @@ pub fn batch(plan: &Plan, opts: &BatchOptions) -> Result<(BatchSummary, Vec<RunF
         if missing || guard.meta("combined_key").map_err(|e| fail(&e))?.as_deref() != Some(key.as_str()) {
             let before = failures.len();
             let (tables, unreadable) = ok_tables(plan, &opts.out, &mut guard)?;
-            summary.failed += unreadable.len();
+            let processed: Vec<String> = todo.iter().map(|(run, _)| run.label()).collect();
+            summary.count_unreadable(&unreadable, |run| processed.iter().any(|p| p == run));
             failures.extend(unreadable);
             let mut s = Summary::default();
             crate::run::combine_then_fit(plan, &tables, &opts.out, &mut s, &mut failures);
@@ -506,7 +520,8 @@ pub fn merge(dirs: &[PathBuf], out: &Path) -> Result<(BatchSummary, Vec<RunFailu
     let plan = crate::plan::plan(Path::new(&config))
         .map_err(|d| d.into_iter().next().unwrap_or_else(|| fail(out, &"bad config")))?;
     let (tables, mut failures) = ok_tables(&plan, out, &mut merged)?;
-    summary.failed += failures.len();
+    // Every run read back was copied, and counted ok.
+    summary.count_unreadable(&failures, |_| true);
     let mut s = Summary::default();
     crate::run::combine_then_fit(&plan, &tables, out, &mut s, &mut failures);
     summary.fits_ok = s.fits_ok;
@@ -554,4 +569,30 @@ fn copy_dir(src: &Path, dst: &Path) -> Result<(), CopyError> {
         files.push((dst.join(name), bytes));
     }
     Ok(write_all_atomic(&files)?)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_run_whose_outputs_cannot_be_read_back_is_counted_once_as_failed() {
+        let failure = |run: &str| RunFailure { run: run.into(), problems: Vec::new() };
+        let summary = |ok, failed, skipped| BatchSummary { ok, failed, skipped, ..BatchSummary::default() };
+        // (before, unreadable runs, runs reduced by this batch, after)
+        let cases = [
+            // Issue 11: a skipped run that failed to read back was counted skipped and failed.
+            (summary(1, 0, 3), vec!["0102"], vec!["0101"], summary(1, 1, 2)),
+            (summary(1, 0, 3), vec!["0101"], vec!["0101"], summary(0, 1, 3)),
+            (summary(2, 1, 1), vec!["0101", "0103"], vec!["0101", "0102"], summary(1, 3, 0)),
+            (summary(4, 0, 0), vec![], vec!["0101"], summary(4, 0, 0)),
+        ];
+        for (mut s, unreadable, processed, want) in cases {
+            let unreadable: Vec<RunFailure> = unreadable.into_iter().map(failure).collect();
+            let runs = s.ok + s.failed + s.skipped;
+            s.count_unreadable(&unreadable, |run| processed.contains(&run));
+            assert_eq!(s, want, "{unreadable:?}");
+            assert_eq!(s.ok + s.failed + s.skipped, runs, "every run counted once");
+        }
+    }
 }
