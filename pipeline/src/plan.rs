@@ -434,7 +434,7 @@ fn load_run(
 impl Plan {
     /// The experiment, as its fits see it.
     pub fn experiment(&self) -> Experiment<'_> {
-        Experiment { config_path: &self.config_path, config_dir: &self.config_dir }
+        Experiment { config_path: &self.config_path, config_dir: &self.config_dir, config_sha256: &self.config_sha256 }
     }
 
     /// Two record files with the same run id would write to the same output folder.

@@ -90,12 +90,15 @@ pub fn plan_fit(
 }
 
 /// The experiment whose fits run: its config file (problems of a `fits:` entry are reported
-/// against it) and folder (fit files are named relative to it in the records).
+/// against it; its name and hash go into each fit's record) and folder (fit files are named
+/// relative to it in the records).
 pub struct Experiment<'a> {
     /// The config file.
     pub config_path: &'a Path,
     /// Its folder.
     pub config_dir: &'a Path,
+    /// SHA-256 of the config file's bytes.
+    pub config_sha256: &'a str,
 }
 
 /// How many fits converged, and how many failed or did not converge.
@@ -164,7 +167,7 @@ fn run_fit(
     let path = &f.loaded.path;
     let fit_file = path.strip_prefix(experiment.config_dir).unwrap_or(path).to_string_lossy().replace('\\', "/");
     let inputs = runs.iter().flat_map(|r| r.inputs.iter().cloned()).collect();
-    let json = FitProvenance::new(&f.loaded, fit_file, inputs).to_json(&f.loaded)?;
+    let json = FitProvenance::new(&f.loaded, fit_file, Some(experiment), inputs).to_json(&f.loaded)?;
     let dir = out_dir.join(FITS_DIR).join(&f.name);
     write(&dir, &mut output, &json)?;
     let r = &output.report;

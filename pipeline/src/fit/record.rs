@@ -1,12 +1,12 @@
-//! How a fit's outputs were made: the program, the fit file and the data that went in,
-//! each with its hash.
+//! How a fit's outputs were made: the program, the experiment config whose `fits:` entry
+//! it is (if any), the fit file and the data that went in, each with its hash.
 
 use std::path::{Path, PathBuf};
 
 use crate::error::Diagnostic;
 use crate::provenance::{record_time_s, rfc3339_utc, sha256_file, sha256_hex, InputFile, Provenance};
 
-use super::LoadedFit;
+use super::{Experiment, LoadedFit};
 
 /// How a fit's outputs were made.
 #[derive(Debug, Clone, serde::Serialize)]
@@ -15,7 +15,13 @@ pub struct FitProvenance {
     pub program: &'static str,
     /// Program version.
     pub version: &'static str,
-    /// The fit file, as given.
+    /// The experiment config whose `fits:` entry made the fit, by its name (relative to its
+    /// own folder, like the inputs); `null` for `xsflow fit`, which reads no config.
+    pub config_file: Option<String>,
+    /// SHA-256 of that config file, as in the records of its runs; `null` without one.
+    pub config_sha256: Option<String>,
+    /// The fit file: relative to the config's folder for a `fits:` entry, as given to
+    /// `xsflow fit`.
     pub fit_file: String,
     /// SHA-256 of the fit file.
     pub fit_sha256: String,
@@ -40,15 +46,27 @@ pub fn provenance_json(loaded: &LoadedFit, data_files: &[PathBuf], base: &Path) 
             })
         })
         .collect::<Result<Vec<_>, _>>()?;
-    FitProvenance::new(loaded, loaded.path.to_string_lossy().into_owned(), inputs).to_json(loaded)
+    FitProvenance::new(loaded, loaded.path.to_string_lossy().into_owned(), None, inputs).to_json(loaded)
 }
 
 impl FitProvenance {
-    /// The record of a fit of `loaded` (named `fit_file` in the record) on `inputs`, made now.
-    pub fn new(loaded: &LoadedFit, fit_file: String, inputs: Vec<InputFile>) -> Self {
+    /// The record of a fit of `loaded` (named `fit_file` in the record) on `inputs`, made now,
+    /// for the `fits:` entry of `experiment` or, without one, for `xsflow fit`.
+    pub fn new(
+        loaded: &LoadedFit,
+        fit_file: String,
+        experiment: Option<&Experiment<'_>>,
+        inputs: Vec<InputFile>,
+    ) -> Self {
+        let config_name = |e: &Experiment<'_>| {
+            let name = e.config_path.file_name().unwrap_or(e.config_path.as_os_str());
+            name.to_string_lossy().into_owned()
+        };
         FitProvenance {
             program: "xsflow",
             version: env!("CARGO_PKG_VERSION"),
+            config_file: experiment.map(config_name),
+            config_sha256: experiment.map(|e| e.config_sha256.to_string()),
             fit_file,
             fit_sha256: sha256_hex(&loaded.bytes),
             inputs,
