@@ -184,6 +184,30 @@ fn three_shards_merged_give_what_one_batch_gives() {
     assert!(msg.contains("inconsistent N"), "{msg}");
 }
 
+/// Issue 11: a run whose outputs cannot be read back was counted twice, once as failed and
+/// once as it was counted before (ok when copied by a merge, skipped by a batch).
+#[test]
+fn issue_11_a_merged_run_whose_outputs_cannot_be_read_back_counts_once_as_failed() {
+    let tmp = demo_copy();
+    for k in 1..=2 {
+        let out =
+            xsflow(tmp.path(), &["batch", "experiment.yaml", "--out", &format!("s{k}"), "--shard", &format!("{k}/2")]);
+        assert_eq!(out.status.code(), Some(0), "{}", text(&out));
+    }
+    let lost = ["s1", "s2"]
+        .iter()
+        .map(|s| tmp.path().join(s).join("0102/provenance.json"))
+        .find(|p| p.is_file())
+        .expect("one shard holds run 0102");
+    std::fs::remove_file(&lost).expect("remove");
+    let out = xsflow(tmp.path(), &["merge", "s1", "s2", "--out", "merged"]);
+    let msg = text(&out);
+    assert_eq!(out.status.code(), Some(1), "{msg}");
+    let line = msg.lines().find(|l| l.starts_with("merge:")).unwrap_or_default();
+    assert!(line.starts_with("merge: 3 run(s) ok, 1 failed;"), "four runs, each counted once: {msg}");
+    assert!(msg.contains("merged/0102/provenance.json cannot read the run's provenance record"), "{msg}");
+}
+
 /// The demo with `extra` more run records (`k000`, ...) that reuse its three yields tables.
 fn demo_with_more_runs(extra: usize) -> tempfile::TempDir {
     let tmp = demo_copy();

@@ -112,7 +112,9 @@ fn issue_11_a_batch_run_whose_outputs_cannot_be_read_back_fails_and_the_others_a
     let second = batch();
     let msg = text(&second);
     assert_eq!(second.status.code(), Some(1), "a run failed: {msg}");
-    assert!(summary(&second).starts_with("batch: 1 ok, 1 failed, 3 skipped"), "{msg}");
+    // Issue 11: 0102 was counted twice, skipped and failed ("1 ok, 1 failed, 3 skipped" of
+    // four runs); it is one failed run.
+    assert!(summary(&second).starts_with("batch: 1 ok, 1 failed, 2 skipped"), "{msg}");
     assert!(
         msg.contains("out/0102/provenance.json cannot read the run's provenance record: No such file or directory"),
         "names the file and the OS error: {msg}"
@@ -157,4 +159,35 @@ fn issue_11_a_fit_data_file_that_cannot_be_read_is_an_error_naming_it_not_a_hash
             "{msg}"
         );
     }
+}
+
+#[test]
+fn issue_11_a_fit_records_the_hash_of_its_fit_file_and_of_the_experiment_config_read_back_with_pyarrow() {
+    let tmp = demo_copy();
+    let out = xsflow(tmp.path(), &["reduce", "experiment.yaml", "--out", "out"]);
+    assert_eq!(out.status.code(), Some(0), "{}", text(&out));
+    // (fit folder, its fit file)
+    let cases =
+        [("elastic_optical", "fits/elastic-optical.yaml"), ("inelastic_legendre", "fits/inelastic-legendre.yaml")];
+    for (name, fit_file) in cases {
+        let dir = tmp.path().join("out/fits").join(name);
+        let record = parquet_provenance(&dir.join("curve.parquet"));
+        assert_eq!(record, read_json(&dir.join("provenance.json")), "{name}: the same record beside it");
+        assert_eq!(record["config_file"], "experiment.yaml", "{name}");
+        assert_eq!(record["config_sha256"], sha256_of(&tmp.path().join("experiment.yaml")), "{name}");
+        assert_eq!(record["fit_file"], fit_file, "{name}");
+        assert_eq!(record["fit_sha256"], sha256_of(&tmp.path().join(fit_file)), "{name}");
+    }
+    // The same hash as the runs' own records carry.
+    let run = read_json(&tmp.path().join("out/0101/provenance.json"));
+    let fit = read_json(&tmp.path().join("out/fits/elastic_optical/provenance.json"));
+    assert_eq!(fit["config_sha256"], run["config_sha256"]);
+    // `xsflow fit` reads no experiment config: the keys are there, and null.
+    let out =
+        xsflow(tmp.path(), &["fit", "out", "fits/elastic-rutherford.yaml", "--state", "elastic", "--out", "alone"]);
+    assert_eq!(out.status.code(), Some(0), "{}", text(&out));
+    let record = parquet_provenance(&tmp.path().join("alone/curve.parquet"));
+    assert_eq!(record["config_file"], serde_json::Value::Null, "{record}");
+    assert_eq!(record["config_sha256"], serde_json::Value::Null, "{record}");
+    assert_eq!(record["fit_sha256"], sha256_of(&tmp.path().join("fits/elastic-rutherford.yaml")));
 }

@@ -13,13 +13,35 @@ use std::path::{Path, PathBuf};
 use std::process::Command;
 use std::time::Instant;
 
+/// Why a step of the benchmark failed.
+#[derive(Debug, thiserror::Error)]
+enum BenchError {
+    /// A scratch file or the xsflow child process.
+    #[error(transparent)]
+    Io(#[from] std::io::Error),
+    /// Reading or writing the demo's events.
+    #[error(transparent)]
+    Table(#[from] polars::prelude::PolarsError),
+    /// Reading the demo's events.
+    #[error(transparent)]
+    Read(#[from] xsflow::tables::TableError),
+    /// An xsflow command that failed.
+    #[error("xsflow {args} failed: {stderr}")]
+    Failed {
+        /// Its arguments.
+        args: String,
+        /// What it printed on stderr.
+        stderr: String,
+    },
+}
+
 fn demo() -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../sample-runs/alpha-ni58")
 }
 
 /// Wall time of an xsflow command, and its peak RSS as `/usr/bin/time` reports it (missing
 /// when that program is not installed).
-fn run_timed(dir: &Path, args: &[&str]) -> Result<(f64, Option<f64>), String> {
+fn run_timed(dir: &Path, args: &[&str]) -> Result<(f64, Option<f64>), BenchError> {
     let exe = env!("CARGO_BIN_EXE_xsflow");
     let time = Path::new("/usr/bin/time");
     let start = Instant::now();
@@ -27,12 +49,11 @@ fn run_timed(dir: &Path, args: &[&str]) -> Result<(f64, Option<f64>), String> {
         Command::new(time).arg("-f").arg("%M").arg(exe).args(args).current_dir(dir).output()
     } else {
         Command::new(exe).args(args).current_dir(dir).output()
-    }
-    .map_err(|e| e.to_string())?;
+    }?;
     let seconds = start.elapsed().as_secs_f64();
     let stderr = String::from_utf8_lossy(&out.stderr);
     if !out.status.success() {
-        return Err(format!("xsflow {args:?} failed: {stderr}"));
+        return Err(BenchError::Failed { args: args.join(" "), stderr: stderr.into_owned() });
     }
     let rss = if time.is_file() {
         stderr.lines().last().and_then(|l| l.trim().parse::<f64>().ok()).map(|kb| kb / 1024.0)
@@ -42,16 +63,16 @@ fn run_timed(dir: &Path, args: &[&str]) -> Result<(f64, Option<f64>), String> {
     Ok((seconds, rss))
 }
 
-fn config_without_fits(src: &Path, dst: &Path, runs: &str) -> Result<(), String> {
-    let text = std::fs::read_to_string(src).map_err(|e| e.to_string())?;
+fn config_without_fits(src: &Path, dst: &Path, runs: &str) -> Result<(), BenchError> {
+    let text = std::fs::read_to_string(src)?;
     let head = text.split("\n  - type: fit").next().unwrap_or(&text);
     let text = head
         .replace("  - runs/*.run.yaml", &format!("  - {runs}"))
         .replace("  - listmode/*.run.yaml", &format!("  - {runs}"));
-    std::fs::write(dst, text + "\n").map_err(|e| e.to_string())
+    Ok(std::fs::write(dst, text + "\n")?)
 }
 
-fn main() -> Result<(), String> {
+fn main() -> Result<(), BenchError> {
     let args: Vec<usize> = std::env::args().skip(1).filter_map(|a| a.parse::<f64>().ok()).map(|x| x as usize).collect();
     let n_runs = args.first().copied().unwrap_or(1000);
     let n_listmode = args.get(1).copied().unwrap_or(20);
@@ -69,19 +90,19 @@ fn main() -> Result<(), String> {
     // 1. Many yields runs.
     let dir = std::env::temp_dir().join("xsflow-bench-batch");
     let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(dir.join("runs")).map_err(|e| e.to_string())?;
+    std::fs::create_dir_all(dir.join("runs"))?;
     config_without_fits(&demo().join("experiment.yaml"), &dir.join("experiment.yaml"), "runs/*.run.yaml")?;
-    let yields = std::fs::read_to_string(demo().join("runs/run0101.yields.csv")).map_err(|e| e.to_string())?;
-    let record = std::fs::read_to_string(demo().join("runs/run0101.run.yaml")).map_err(|e| e.to_string())?;
+    let yields = std::fs::read_to_string(demo().join("runs/run0101.yields.csv"))?;
+    let record = std::fs::read_to_string(demo().join("runs/run0101.run.yaml"))?;
     for i in 0..n_runs {
         let id = format!("b{i:05}");
         // Distinct data per run: the first count shifted by the run number.
         let y = yields.replacen("D01,elastic,", &format!("D01,elastic,{}", i % 10), 1);
-        std::fs::write(dir.join(format!("runs/{id}.yields.csv")), y).map_err(|e| e.to_string())?;
+        std::fs::write(dir.join(format!("runs/{id}.yields.csv")), y)?;
         let r = record
             .replace("run: \"0101\"", &format!("run: \"{id}\""))
             .replace("run0101.yields.csv", &format!("{id}.yields.csv"));
-        std::fs::write(dir.join(format!("runs/{id}.run.yaml")), r).map_err(|e| e.to_string())?;
+        std::fs::write(dir.join(format!("runs/{id}.run.yaml")), r)?;
     }
     let (cold, rss_cold) = run_timed(&dir, &["batch", "experiment.yaml", "--out", "out", "-q", "--jobs", "2"])?;
     let (warm, rss_warm) = run_timed(&dir, &["batch", "experiment.yaml", "--out", "out", "-q", "--jobs", "2"])?;
@@ -97,28 +118,25 @@ fn main() -> Result<(), String> {
     // ΔE, pile-up; a PID polygon on D01) scaled up by repeating its rows.
     let lm = std::env::temp_dir().join("xsflow-bench-listmode");
     let _ = std::fs::remove_dir_all(&lm);
-    std::fs::create_dir_all(lm.join("listmode")).map_err(|e| e.to_string())?;
+    std::fs::create_dir_all(lm.join("listmode"))?;
     config_without_fits(&demo().join("experiment-listmode.yaml"), &lm.join("experiment.yaml"), "listmode/*.run.yaml")?;
     let small = xsflow::tables::read_table(&demo().join("listmode/run0201.events.parquet"))?;
     let reps = n_events.div_ceil(small.height());
     let mut big = small.clone();
     for _ in 1..reps {
-        big.vstack_mut(&small).map_err(|e| e.to_string())?;
+        big.vstack_mut(&small)?;
     }
     let mut big = big.head(Some(n_events));
     let mut bytes = Vec::new();
-    polars::prelude::ParquetWriter::new(&mut bytes)
-        .with_row_group_size(Some(1 << 20))
-        .finish(&mut big)
-        .map_err(|e| e.to_string())?;
-    let record = std::fs::read_to_string(demo().join("listmode/run0201.run.yaml")).map_err(|e| e.to_string())?;
+    polars::prelude::ParquetWriter::new(&mut bytes).with_row_group_size(Some(1 << 20)).finish(&mut big)?;
+    let record = std::fs::read_to_string(demo().join("listmode/run0201.run.yaml"))?;
     for i in 0..n_listmode {
         let id = format!("m{i:03}");
-        std::fs::write(lm.join(format!("listmode/{id}.events.parquet")), &bytes).map_err(|e| e.to_string())?;
+        std::fs::write(lm.join(format!("listmode/{id}.events.parquet")), &bytes)?;
         let r = record
             .replace("run: \"0201\"", &format!("run: \"{id}\""))
             .replace("run0201.events.parquet", &format!("{id}.events.parquet"));
-        std::fs::write(lm.join(format!("listmode/{id}.run.yaml")), r).map_err(|e| e.to_string())?;
+        std::fs::write(lm.join(format!("listmode/{id}.run.yaml")), r)?;
     }
     let (one, rss_one) = run_timed(&lm, &["batch", "experiment.yaml", "--out", "out1", "-q", "--jobs", "1"])?;
     let (two, rss_two) = run_timed(&lm, &["batch", "experiment.yaml", "--out", "out2", "-q", "--jobs", "2"])?;

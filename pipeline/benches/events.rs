@@ -21,6 +21,37 @@ const DETECTORS: usize = 16;
 const CHANNELS: u16 = 4096;
 const ROW_GROUP: usize = 1 << 20;
 
+/// Why a step of the benchmark failed.
+#[derive(Debug, thiserror::Error)]
+enum BenchError {
+    /// A scratch file or a child process.
+    #[error(transparent)]
+    Io(#[from] std::io::Error),
+    /// Writing or reading the events.
+    #[error(transparent)]
+    Table(#[from] PolarsError),
+    /// Writing the gates for the baseline.
+    #[error(transparent)]
+    Json(#[from] serde_json::Error),
+    /// xsflow's reduction of the events.
+    #[error(transparent)]
+    Events(#[from] xsflow::events::RawFileError),
+    /// The benchmark's own config does not plan.
+    #[error("the benchmark config does not plan: {}", .0.iter().map(ToString::to_string).collect::<Vec<_>>().join("; "))]
+    Plan(Vec<xsflow::error::Diagnostic>),
+    /// The benchmark's config has no `raw:` section.
+    #[error("the benchmark config has no raw section")]
+    NoRaw,
+    /// A child printed no timing line.
+    #[error("unexpected output: `{line}` {stderr}")]
+    Output {
+        /// The last line it printed.
+        line: String,
+        /// What it printed on stderr.
+        stderr: String,
+    },
+}
+
 fn config_yaml() -> String {
     let mut dets = String::new();
     for i in 0..DETECTORS {
@@ -56,21 +87,19 @@ raw:
     )
 }
 
-fn plan_in(dir: &Path) -> Result<xsflow::plan::Plan, String> {
-    std::fs::write(dir.join("bench.yaml"), config_yaml()).map_err(|e| e.to_string())?;
-    std::fs::write(dir.join("run.run.yaml"), "run: bench\nevents_file: events.parquet\ncharge_c: 1.0e-6\n")
-        .map_err(|e| e.to_string())?;
-    xsflow::plan::plan(&dir.join("bench.yaml")).map_err(|d| format!("{d:?}"))
+fn plan_in(dir: &Path) -> Result<xsflow::plan::Plan, BenchError> {
+    std::fs::write(dir.join("bench.yaml"), config_yaml())?;
+    std::fs::write(dir.join("run.run.yaml"), "run: bench\nevents_file: events.parquet\ncharge_c: 1.0e-6\n")?;
+    xsflow::plan::plan(&dir.join("bench.yaml")).map_err(BenchError::Plan)
 }
 
-fn write_events(path: &Path, n: usize, plan: &stages::raw::RawPlan, f32_adc: bool) -> Result<(), String> {
+fn write_events(path: &Path, n: usize, plan: &stages::raw::RawPlan, f32_adc: bool) -> Result<(), BenchError> {
     let gates = plan.gates();
     let mut rng = Rng::new(42);
-    let file = std::fs::File::create(path).map_err(|e| e.to_string())?;
+    let file = std::fs::File::create(path)?;
     let schema =
         Schema::from_iter([Field::new("det".into(), DataType::UInt16), Field::new("adc".into(), DataType::UInt16)]);
-    let mut w =
-        ParquetWriter::new(file).with_row_group_size(Some(ROW_GROUP)).batched(&schema).map_err(|e| e.to_string())?;
+    let mut w = ParquetWriter::new(file).with_row_group_size(Some(ROW_GROUP)).batched(&schema)?;
     let mut done = 0;
     while done < n {
         let m = ROW_GROUP.min(n - done);
@@ -93,11 +122,11 @@ fn write_events(path: &Path, n: usize, plan: &stages::raw::RawPlan, f32_adc: boo
         } else {
             Column::new("adc".into(), adc)
         };
-        let df = DataFrame::new_infer_height(vec![Column::new("det".into(), det), adc]).map_err(|e| e.to_string())?;
-        w.write_batch(&df).map_err(|e| e.to_string())?;
+        let df = DataFrame::new_infer_height(vec![Column::new("det".into(), det), adc])?;
+        w.write_batch(&df)?;
         done += m;
     }
-    w.finish().map_err(|e| e.to_string())?;
+    w.finish()?;
     Ok(())
 }
 
@@ -111,27 +140,17 @@ fn peak_rss_mb() -> f64 {
 }
 
 /// Decode the two columns row group by row group, as the reducer does, and touch them.
-fn floor(path: &Path) -> Result<u64, String> {
-    let mut reader = ParquetReader::new(std::fs::File::open(path).map_err(|e| e.to_string())?);
-    let meta = reader.get_metadata().map_err(|e| e.to_string())?.clone();
+fn floor(path: &Path) -> Result<u64, BenchError> {
+    let mut reader = ParquetReader::new(std::fs::File::open(path)?);
+    let meta = reader.get_metadata()?.clone();
     let (mut offset, mut sum) = (0, 0u64);
     for rg in &meta.row_groups {
         let n = rg.num_rows();
-        let mut r = ParquetReader::new(std::fs::File::open(path).map_err(|e| e.to_string())?);
+        let mut r = ParquetReader::new(std::fs::File::open(path)?);
         r.set_metadata(meta.clone());
-        let df = r
-            .with_columns(Some(vec!["det".into(), "adc".into()]))
-            .with_slice(Some((offset, n)))
-            .finish()
-            .map_err(|e| e.to_string())?;
+        let df = r.with_columns(Some(vec!["det".into(), "adc".into()])).with_slice(Some((offset, n))).finish()?;
         for c in ["det", "adc"] {
-            let s = df
-                .column(c)
-                .map_err(|e| e.to_string())?
-                .as_materialized_series()
-                .u16()
-                .map_err(|e| e.to_string())?
-                .clone();
+            let s = df.column(c)?.as_materialized_series().u16()?.clone();
             sum += s
                 .downcast_iter()
                 .map(|a| a.values().as_slice().iter().map(|v| u64::from(*v)).sum::<u64>())
@@ -142,9 +161,9 @@ fn floor(path: &Path) -> Result<u64, String> {
     Ok(sum)
 }
 
-fn child(mode: &str, dir: &Path) -> Result<(), String> {
+fn child(mode: &str, dir: &Path) -> Result<(), BenchError> {
     let plan = plan_in(dir)?;
-    let raw = plan.raw.as_ref().ok_or("no raw section")?;
+    let raw = plan.raw.as_ref().ok_or(BenchError::NoRaw)?;
     let path = dir.join("events.parquet");
     let t = Instant::now();
     let detail = match mode {
@@ -164,15 +183,16 @@ fn median(mut v: Vec<f64>) -> f64 {
     v[v.len() / 2]
 }
 
-fn measure(cmd: &mut dyn FnMut() -> Command) -> Result<(f64, f64), String> {
+fn measure(cmd: &mut dyn FnMut() -> Command) -> Result<(f64, f64), BenchError> {
     let (mut times, mut rss) = (Vec::new(), Vec::new());
     for _ in 0..3 {
-        let out = cmd().output().map_err(|e| e.to_string())?;
+        let out = cmd().output()?;
         let text = String::from_utf8_lossy(&out.stdout).to_string();
-        let line = text.lines().last().ok_or_else(|| format!("no output: {}", String::from_utf8_lossy(&out.stderr)))?;
+        let stderr = || String::from_utf8_lossy(&out.stderr).into_owned();
+        let line = text.lines().last().ok_or_else(|| BenchError::Output { line: String::new(), stderr: stderr() })?;
         let v: Vec<f64> = line.split_whitespace().take(2).filter_map(|x| x.parse().ok()).collect();
         if v.len() < 2 {
-            return Err(format!("unexpected output: {line} {}", String::from_utf8_lossy(&out.stderr)));
+            return Err(BenchError::Output { line: line.to_string(), stderr: stderr() });
         }
         times.push(v[0]);
         rss.push(v[1]);
@@ -180,7 +200,7 @@ fn measure(cmd: &mut dyn FnMut() -> Command) -> Result<(f64, f64), String> {
     Ok((median(times), median(rss)))
 }
 
-fn main() -> Result<(), String> {
+fn main() -> Result<(), BenchError> {
     let args: Vec<String> = std::env::args().collect();
     if let Some(i) = args.iter().position(|a| a == "--child") {
         return child(&args[i + 1], Path::new(&args[i + 2]));
@@ -198,16 +218,16 @@ fn main() -> Result<(), String> {
         })
         .unwrap_or_default();
     println!("machine: {cpu}, {} logical cores", std::thread::available_parallelism().map_or(1, |n| n.get()));
-    let exe = std::env::current_exe().map_err(|e| e.to_string())?;
+    let exe = std::env::current_exe()?;
     let baseline = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("benches/baseline_events.py");
     for n in sizes {
         let dir = std::env::temp_dir().join(format!("xsflow-bench-{n}"));
-        std::fs::create_dir_all(&dir).map_err(|e| e.to_string())?;
+        std::fs::create_dir_all(&dir)?;
         let plan = plan_in(&dir)?;
         let path = dir.join("events.parquet");
         let t = Instant::now();
-        write_events(&path, n, plan.raw.as_ref().ok_or("no raw")?, f32_adc)?;
-        let bytes = std::fs::metadata(&path).map_err(|e| e.to_string())?.len() as f64;
+        write_events(&path, n, plan.raw.as_ref().ok_or(BenchError::NoRaw)?, f32_adc)?;
+        let bytes = std::fs::metadata(&path)?.len() as f64;
         let kind = if f32_adc { "f32" } else { "u16" };
         println!("{n} events (ADC {kind}): file {:.0} MB written in {:.1} s", bytes / 1e6, t.elapsed().as_secs_f64());
         let (t_reduce, rss_reduce) = measure(&mut || {
@@ -226,8 +246,8 @@ fn main() -> Result<(), String> {
             bytes / t_reduce / 1e6
         );
         println!("  floor (read and decode det, adc only): median {t_floor:.3} s; peak RSS {rss_floor:.0} MB; reduce/floor = {:.2}", t_reduce / t_floor);
-        let gates = serde_json::to_string(&plan.raw.as_ref().ok_or("no raw")?.gates()).map_err(|e| e.to_string())?;
-        std::fs::write(dir.join("gates.json"), gates).map_err(|e| e.to_string())?;
+        let gates = serde_json::to_string(&plan.raw.as_ref().ok_or(BenchError::NoRaw)?.gates())?;
+        std::fs::write(dir.join("gates.json"), gates)?;
         match measure(&mut || {
             let mut c = Command::new("python3");
             c.arg(&baseline).arg(&path).arg(dir.join("gates.json"));
@@ -239,7 +259,7 @@ fn main() -> Result<(), String> {
             ),
             Err(e) => println!("  numpy/pyarrow baseline not run: {e}"),
         }
-        std::fs::remove_dir_all(&dir).map_err(|e| e.to_string())?;
+        std::fs::remove_dir_all(&dir)?;
     }
     Ok(())
 }

@@ -10,21 +10,23 @@
 //! read-only or unwritable) stops the batch with one error; the runs it hit keep their
 //! files and catalogue entries as they were.
 
+use std::fmt::Display;
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicUsize, Ordering};
-use std::sync::Mutex;
+use std::sync::{Mutex, MutexGuard};
 use std::time::Instant;
 
 use polars::prelude::DataFrame;
 use tracing::{info, info_span, warn};
 
-use crate::catalogue::{Catalogue, RunEntry, RunStatus, CATALOGUE_FILE};
+use crate::catalogue::{Catalogue, CatalogueError, RunEntry, RunStatus, CATALOGUE_FILE};
 use crate::config::YamlFile;
 use crate::error::{Diagnostic, RunFailure};
+use crate::layout::{ANGULAR_DISTRIBUTION_PARQUET, CROSS_SECTIONS_PARQUET, FITS_DIR, FIT_JSON, PROVENANCE_JSON};
 use crate::plan::{Plan, PlannedRun};
 use crate::provenance::{record_time_s, rfc3339_utc, sha256_hex, RunInputs};
-use crate::run::{output_files, reduce_run, Summary, CROSS_SECTIONS_PARQUET, PROVENANCE_JSON};
-use crate::tables::write_all_atomic;
+use crate::run::{output_files, reduce_run, Summary};
+use crate::tables::{write_all_atomic, WriteError};
 
 /// Settings of a batch.
 #[derive(Debug, Clone)]
@@ -58,12 +60,33 @@ pub struct BatchSummary {
     pub fits_failed: usize,
 }
 
+/// A `--shard` text that names no shard.
+#[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
+#[error("--shard {text}: expected K/N with whole numbers 1 <= K <= N, such as 2/8")]
+pub struct ShardError {
+    /// The text given.
+    pub text: String,
+}
+
+impl BatchSummary {
+    /// Count the runs whose outputs could not be read back (see `ok_tables`) as failed,
+    /// and no longer as what they were counted before: ok when `processed_now(run)` (this
+    /// batch reduced it, or a merge copied it), else skipped. Each run is counted once.
+    fn count_unreadable(&mut self, unreadable: &[RunFailure], processed_now: impl Fn(&str) -> bool) {
+        for f in unreadable {
+            let before = if processed_now(&f.run) { &mut self.ok } else { &mut self.skipped };
+            *before = before.saturating_sub(1);
+            self.failed += 1;
+        }
+    }
+}
+
 /// Parse `K/N`.
 ///
 /// # Errors
 /// Anything but two whole numbers with 1 ≤ K ≤ N.
-pub fn parse_shard(text: &str) -> Result<(u64, u64), String> {
-    let bad = || format!("--shard {text}: expected K/N with whole numbers 1 <= K <= N, such as 2/8");
+pub fn parse_shard(text: &str) -> Result<(u64, u64), ShardError> {
+    let bad = || ShardError { text: text.to_string() };
     let (k, n) = text.split_once('/').ok_or_else(bad)?;
     let (k, n): (u64, u64) = (k.trim().parse().map_err(|_| bad())?, n.trim().parse().map_err(|_| bad())?);
     if k == 0 || n == 0 || k > n {
@@ -97,11 +120,17 @@ pub fn config_hash(config_path: &Path) -> Result<String, Diagnostic> {
     Ok(sha256_hex(parts.join("\n").as_bytes()))
 }
 
-/// One run's input hash: record bytes and data file.
-fn input_hash(run: &PlannedRun) -> Result<String, String> {
-    let loaded = run.loaded.as_ref().map_err(|_| "record did not load".to_string())?;
-    let data = loaded.data_hash().map_err(|e| format!("{}: {e}", loaded.yields_path.display()))?;
-    Ok(sha256_hex(format!("{}\n{data}", sha256_hex(&loaded.record_bytes)).as_bytes()))
+/// One run's input hash: record bytes and data file; `None` when the record did not load
+/// or the data file cannot be read (the run is then processed, and its failure says why).
+fn input_hash(run: &PlannedRun) -> Option<String> {
+    let loaded = run.loaded.as_ref().ok()?;
+    let data = loaded.data_hash().ok()?;
+    Some(sha256_hex(format!("{}\n{data}", sha256_hex(&loaded.record_bytes)).as_bytes()))
+}
+
+/// The catalogue shared by the batch's threads, locked.
+fn lock(catalogue: &Mutex<Catalogue>) -> Result<MutexGuard<'_, Catalogue>, CatalogueError> {
+    catalogue.lock().map_err(|_| CatalogueError::Poisoned)
 }
 
 /// Process the runs of `plan` that are new or changed.
@@ -109,23 +138,23 @@ fn input_hash(run: &PlannedRun) -> Result<String, String> {
 /// # Errors
 /// An output folder or catalogue that cannot be used (nothing is processed then).
 pub fn batch(plan: &Plan, opts: &BatchOptions) -> Result<(BatchSummary, Vec<RunFailure>, Vec<String>), Diagnostic> {
-    let fail = |m: String| Diagnostic::new(&opts.out, "", m);
+    let fail = |m: &dyn Display| Diagnostic::new(&opts.out, "", m.to_string());
     let unusable =
-        |m: String| fail(m).with_help("the output folder must exist or be creatable, be writable and have free space");
+        |m: String| fail(&m).with_help("the output folder must exist or be creatable, be writable and have free space");
     std::fs::create_dir_all(&opts.out).map_err(|e| unusable(format!("cannot create the output folder: {e}")))?;
     probe_writable(&opts.out).map_err(|e| unusable(format!("cannot write into the output folder: {e}")))?;
     remove_stale_temporaries(&opts.out);
-    let catalogue = Catalogue::open(&opts.out).map_err(fail)?;
+    let catalogue = Catalogue::open(&opts.out).map_err(|e| fail(&e))?;
     let shard_text = opts.shard.map_or_else(|| "1/1".to_string(), |(k, n)| format!("{k}/{n}"));
-    match catalogue.meta("shard").map_err(fail)? {
+    match catalogue.meta("shard").map_err(|e| fail(&e))? {
         Some(s) if s != shard_text => {
-            return Err(fail(format!("this output folder holds shard {s}; it cannot take shard {shard_text}")));
+            return Err(fail(&format!("this output folder holds shard {s}; it cannot take shard {shard_text}")));
         }
         _ => {}
     }
-    catalogue.set_meta("shard", &shard_text).map_err(fail)?;
+    catalogue.set_meta("shard", &shard_text).map_err(|e| fail(&e))?;
     let config_abs = std::fs::canonicalize(&plan.config_path).unwrap_or_else(|_| plan.config_path.clone());
-    catalogue.set_meta("config_file", &config_abs.to_string_lossy()).map_err(fail)?;
+    catalogue.set_meta("config_file", &config_abs.to_string_lossy()).map_err(|e| fail(&e))?;
     let catalogue = Mutex::new(catalogue);
     let config_sha = config_hash(&plan.config_path)?;
     let mut summary = BatchSummary::default();
@@ -141,8 +170,7 @@ pub fn batch(plan: &Plan, opts: &BatchOptions) -> Result<(BatchSummary, Vec<RunF
             }
         }
         let hash = input_hash(run).unwrap_or_default();
-        let previous =
-            catalogue.lock().map_err(|_| fail("catalogue lock poisoned".into()))?.get(&label).map_err(fail)?;
+        let previous = lock(&catalogue).and_then(|c| c.get(&label)).map_err(|e| fail(&e))?;
         let unchanged = previous.as_ref().is_some_and(|p| {
             p.status.has_outputs()
                 && p.input_sha256 == hash
@@ -220,9 +248,7 @@ pub fn batch(plan: &Plan, opts: &BatchOptions) -> Result<(BatchSummary, Vec<RunF
                     Err(problems) => Err(problems),
                 };
                 let entry = catalogue_entry(run, hash, &config_sha, start, &result);
-                if let Err(e) =
-                    catalogue.lock().map_err(|_| "lock poisoned".to_string()).and_then(|mut c| c.put(&entry))
-                {
+                if let Err(e) = lock(&catalogue).and_then(|mut c| c.put(&entry)) {
                     stop(format!("cannot record run {label} in {CATALOGUE_FILE}: {e}"));
                     break;
                 }
@@ -257,36 +283,35 @@ pub fn batch(plan: &Plan, opts: &BatchOptions) -> Result<(BatchSummary, Vec<RunF
     failures.sort_by(|a, b| a.run.cmp(&b.run));
     if let Some(why) = stopped.into_inner().unwrap_or_default() {
         let left = todo.len() - ok - failed;
-        return Err(fail(format!(
+        return Err(fail(&format!(
             "{why}; the batch stopped: {ok} run(s) written, {failed} failed, {left} not processed (the catalogue \
              keeps what it said of those before); the combination and the fits were not redone"
         ))
         .with_help("free space on the disk or make the output folder writable, then run the batch again: it picks up every run not done"));
     }
-    catalogue
-        .lock()
-        .map_err(|_| "lock poisoned".to_string())
+    lock(&catalogue)
         .and_then(|mut c| c.mark_skipped(&newly_skipped))
-        .map_err(|e| fail(format!("cannot record the unchanged runs in {CATALOGUE_FILE}: {e}")))?;
+        .map_err(|e| fail(&format!("cannot record the unchanged runs in {CATALOGUE_FILE}: {e}")))?;
     // The combination and the fits again only when what they are made of changed (the ok
     // runs' hashes, the whole config, the fit files) or an output is missing; the key is
     // recorded after they are written, so a batch killed before that redoes them.
     if opts.shard.is_none() {
-        let mut guard = catalogue.lock().map_err(|_| fail("catalogue lock poisoned".into()))?;
+        let mut guard = lock(&catalogue).map_err(|e| fail(&e))?;
         let key = combined_key(plan, &guard)?;
-        let missing = !opts.out.join(crate::run::ANGULAR_DISTRIBUTION_PARQUET).is_file()
-            || plan.fits.iter().any(|f| !opts.out.join(crate::run::FITS_DIR).join(&f.name).join("fit.json").is_file());
-        if missing || guard.meta("combined_key").map_err(fail)?.as_deref() != Some(key.as_str()) {
+        let missing = !opts.out.join(ANGULAR_DISTRIBUTION_PARQUET).is_file()
+            || plan.fits.iter().any(|f| !opts.out.join(FITS_DIR).join(&f.name).join(FIT_JSON).is_file());
+        if missing || guard.meta("combined_key").map_err(|e| fail(&e))?.as_deref() != Some(key.as_str()) {
             let before = failures.len();
             let (tables, unreadable) = ok_tables(plan, &opts.out, &mut guard)?;
-            summary.failed += unreadable.len();
+            let processed: Vec<String> = todo.iter().map(|(run, _)| run.label()).collect();
+            summary.count_unreadable(&unreadable, |run| processed.iter().any(|p| p == run));
             failures.extend(unreadable);
             let mut s = Summary::default();
             crate::run::combine_then_fit(plan, &tables, &opts.out, &mut s, &mut failures);
             summary.fits_ok = s.fits_ok;
             summary.fits_failed = s.fits_failed;
             if failures.len() == before {
-                guard.set_meta("combined_key", &key).map_err(fail)?;
+                guard.set_meta("combined_key", &key).map_err(|e| fail(&e))?;
             }
         }
     }
@@ -351,7 +376,9 @@ fn combined_key(plan: &Plan, catalogue: &Catalogue) -> Result<String, Diagnostic
         parts.push(sha256_hex(&f.loaded.bytes));
     }
     for run in &plan.runs {
-        if let Some(e) = catalogue.get(&run.label()).map_err(|m| Diagnostic::new(&plan.config_path, "", m))? {
+        if let Some(e) =
+            catalogue.get(&run.label()).map_err(|e| Diagnostic::new(&plan.config_path, "", e.to_string()))?
+        {
             if e.status.has_outputs() {
                 parts.push(format!("{} {} {}", e.run, e.input_sha256, e.config_sha256));
             }
@@ -397,15 +424,17 @@ fn ok_tables(plan: &Plan, out: &Path, catalogue: &mut Catalogue) -> Result<(RunT
     let (mut tables, mut failures) = (Vec::new(), Vec::new());
     for run in &plan.runs {
         let label = run.label();
-        let Some(mut entry) = catalogue.get(&label).map_err(|m| Diagnostic::new(out, "", m))? else { continue };
+        let Some(mut entry) = catalogue.get(&label).map_err(|e| Diagnostic::new(out, "", e.to_string()))? else {
+            continue;
+        };
         if !entry.status.has_outputs() {
             continue;
         }
         let dir = out.join(&label);
         let (table, record) = (dir.join(CROSS_SECTIONS_PARQUET), dir.join(PROVENANCE_JSON));
         let read_back = crate::tables::read_table(&table)
-            .map_err(|m| Diagnostic::new(&table, "", m))
-            .and_then(|t| Ok((t, RunInputs::read(&record).map_err(|m| Diagnostic::new(&record, "", m))?)));
+            .map_err(|e| Diagnostic::new(&table, "", e.to_string()))
+            .and_then(|t| Ok((t, RunInputs::read(&record).map_err(|e| Diagnostic::new(&record, "", e.to_string()))?)));
         match read_back {
             Ok(t) => tables.push(t),
             Err(d) => {
@@ -413,7 +442,7 @@ fn ok_tables(plan: &Plan, out: &Path, catalogue: &mut Catalogue) -> Result<(RunT
                     d.with_help("the run is left out of the combination and the fits; the next batch reduces it again");
                 entry.status = RunStatus::Failed;
                 entry.error = d.to_string();
-                catalogue.put(&entry).map_err(|m| Diagnostic::new(out, "", m))?;
+                catalogue.put(&entry).map_err(|e| Diagnostic::new(out, "", e.to_string()))?;
                 failures.push(RunFailure { run: label, problems: vec![d] });
             }
         }
@@ -429,35 +458,35 @@ fn ok_tables(plan: &Plan, out: &Path, catalogue: &mut Catalogue) -> Result<(RunT
 /// Folders that are not batch outputs, shards of different configs or of different N, a
 /// shard given twice, a run in two shards.
 pub fn merge(dirs: &[PathBuf], out: &Path) -> Result<(BatchSummary, Vec<RunFailure>), Diagnostic> {
-    let fail = |p: &Path, m: String| Diagnostic::new(p, "", m);
+    let fail = |p: &Path, m: &dyn Display| Diagnostic::new(p, "", m.to_string());
     let mut config: Option<String> = None;
     let mut shards: Vec<(u64, u64)> = Vec::new();
     let mut entries = Vec::new();
     for d in dirs {
-        let c = Catalogue::open(d).map_err(|m| fail(d, m))?;
+        let c = Catalogue::open(d).map_err(|e| fail(d, &e))?;
         let shard = c
             .meta("shard")
-            .map_err(|m| fail(d, m))?
-            .ok_or_else(|| fail(d, "not a batch output (no shard recorded)".into()))?;
-        let (k, n) = parse_shard(&shard).map_err(|m| fail(d, m))?;
+            .map_err(|e| fail(d, &e))?
+            .ok_or_else(|| fail(d, &"not a batch output (no shard recorded)"))?;
+        let (k, n) = parse_shard(&shard).map_err(|e| fail(d, &e))?;
         if let Some(&(_, n0)) = shards.first() {
             if n != n0 {
                 return Err(fail(
                     d,
-                    format!("shard {k}/{n} does not belong with shards of {n0}: the shards give inconsistent N"),
+                    &format!("shard {k}/{n} does not belong with shards of {n0}: the shards give inconsistent N"),
                 ));
             }
         }
         if shards.iter().any(|s| s.0 == k) {
-            return Err(fail(d, format!("shard {k}/{n} is given twice")));
+            return Err(fail(d, &format!("shard {k}/{n} is given twice")));
         }
         shards.push((k, n));
-        let cf = c.meta("config_file").map_err(|m| fail(d, m))?.unwrap_or_default();
+        let cf = c.meta("config_file").map_err(|e| fail(d, &e))?.unwrap_or_default();
         match &config {
-            Some(c0) if *c0 != cf => return Err(fail(d, format!("made from {cf}, the other shards from {c0}"))),
+            Some(c0) if *c0 != cf => return Err(fail(d, &format!("made from {cf}, the other shards from {c0}"))),
             _ => config = Some(cf),
         }
-        for e in c.list(false).map_err(|m| fail(d, m))? {
+        for e in c.list(false).map_err(|e| fail(d, &e))? {
             entries.push((d.clone(), e));
         }
     }
@@ -466,32 +495,33 @@ pub fn merge(dirs: &[PathBuf], out: &Path) -> Result<(BatchSummary, Vec<RunFailu
         let mut have: Vec<u64> = shards.iter().map(|s| s.0).collect();
         have.sort_unstable();
         let missing: Vec<String> = (1..=n).filter(|k| !have.contains(k)).map(|k| format!("{k}/{n}")).collect();
-        return Err(fail(out, format!("shards missing: {}", missing.join(", "))));
+        return Err(fail(out, &format!("shards missing: {}", missing.join(", "))));
     }
     entries.sort_by(|a, b| a.1.run.cmp(&b.1.run));
     if let Some(w) = entries.windows(2).find(|w| w[0].1.run == w[1].1.run) {
-        return Err(fail(&w[1].0, format!("run {} is in two shards", w[1].1.run)));
+        return Err(fail(&w[1].0, &format!("run {} is in two shards", w[1].1.run)));
     }
-    std::fs::create_dir_all(out).map_err(|e| fail(out, format!("cannot create the output folder: {e}")))?;
-    let mut merged = Catalogue::open(out).map_err(|m| fail(out, m))?;
-    merged.set_meta("shard", "1/1").map_err(|m| fail(out, m))?;
+    std::fs::create_dir_all(out).map_err(|e| fail(out, &format!("cannot create the output folder: {e}")))?;
+    let mut merged = Catalogue::open(out).map_err(|e| fail(out, &e))?;
+    merged.set_meta("shard", "1/1").map_err(|e| fail(out, &e))?;
     let config = config.unwrap_or_default();
-    merged.set_meta("config_file", &config).map_err(|m| fail(out, m))?;
+    merged.set_meta("config_file", &config).map_err(|e| fail(out, &e))?;
     let mut summary = BatchSummary::default();
     for (dir, e) in &entries {
         let src = dir.join(&e.run);
         if e.status.has_outputs() {
-            copy_dir(&src, &out.join(&e.run)).map_err(|m| fail(&src, m))?;
+            copy_dir(&src, &out.join(&e.run)).map_err(|e| fail(&src, &e))?;
             summary.ok += 1;
         } else {
             summary.failed += 1;
         }
-        merged.put(e).map_err(|m| fail(out, m))?;
+        merged.put(e).map_err(|e| fail(out, &e))?;
     }
     let plan = crate::plan::plan(Path::new(&config))
-        .map_err(|d| d.into_iter().next().unwrap_or_else(|| fail(out, "bad config".into())))?;
+        .map_err(|d| d.into_iter().next().unwrap_or_else(|| fail(out, &"bad config")))?;
     let (tables, mut failures) = ok_tables(&plan, out, &mut merged)?;
-    summary.failed += failures.len();
+    // Every run read back was copied, and counted ok.
+    summary.count_unreadable(&failures, |_| true);
     let mut s = Summary::default();
     crate::run::combine_then_fit(&plan, &tables, out, &mut s, &mut failures);
     summary.fits_ok = s.fits_ok;
@@ -499,21 +529,70 @@ pub fn merge(dirs: &[PathBuf], out: &Path) -> Result<(BatchSummary, Vec<RunFailu
     Ok((summary, failures))
 }
 
+/// Why a shard's run folder could not be copied.
+#[derive(Debug, thiserror::Error)]
+pub enum CopyError {
+    /// The copy's folder cannot be created.
+    #[error("cannot create {}: {source}", .path.display())]
+    Create {
+        /// The folder.
+        path: PathBuf,
+        /// The I/O error.
+        source: std::io::Error,
+    },
+    /// The folder cannot be listed.
+    #[error("cannot list the folder: {0}")]
+    List(#[source] std::io::Error),
+    /// A file of it cannot be read.
+    #[error("{}: {source}", .path.display())]
+    Read {
+        /// The file.
+        path: PathBuf,
+        /// The I/O error.
+        source: std::io::Error,
+    },
+    /// The copy cannot be written.
+    #[error(transparent)]
+    Write(#[from] WriteError),
+}
+
 /// Copy a run folder, its files together and atomically.
-fn copy_dir(src: &Path, dst: &Path) -> Result<(), String> {
-    std::fs::create_dir_all(dst).map_err(|e| e.to_string())?;
-    let mut names: Vec<PathBuf> = std::fs::read_dir(src)
-        .map_err(|e| e.to_string())?
-        .flatten()
-        .map(|e| e.path())
-        .filter(|p| p.is_file())
-        .collect();
+fn copy_dir(src: &Path, dst: &Path) -> Result<(), CopyError> {
+    std::fs::create_dir_all(dst).map_err(|source| CopyError::Create { path: dst.to_path_buf(), source })?;
+    let mut names: Vec<PathBuf> =
+        std::fs::read_dir(src).map_err(CopyError::List)?.flatten().map(|e| e.path()).filter(|p| p.is_file()).collect();
     names.sort();
     let mut files = Vec::new();
-    for p in names {
-        let bytes = std::fs::read(&p).map_err(|e| format!("{}: {e}", p.display()))?;
-        let name = p.file_name().map(|n| n.to_os_string()).unwrap_or_default();
+    for path in names {
+        let bytes = std::fs::read(&path).map_err(|source| CopyError::Read { path: path.clone(), source })?;
+        let name = path.file_name().map(|n| n.to_os_string()).unwrap_or_default();
         files.push((dst.join(name), bytes));
     }
-    crate::tables::write_all_atomic(&files).map_err(|e| e.to_string())
+    Ok(write_all_atomic(&files)?)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_run_whose_outputs_cannot_be_read_back_is_counted_once_as_failed() {
+        let failure = |run: &str| RunFailure { run: run.into(), problems: Vec::new() };
+        let summary = |ok, failed, skipped| BatchSummary { ok, failed, skipped, ..BatchSummary::default() };
+        // (before, unreadable runs, runs reduced by this batch, after)
+        let cases = [
+            // Issue 11: a skipped run that failed to read back was counted skipped and failed.
+            (summary(1, 0, 3), vec!["0102"], vec!["0101"], summary(1, 1, 2)),
+            (summary(1, 0, 3), vec!["0101"], vec!["0101"], summary(0, 1, 3)),
+            (summary(2, 1, 1), vec!["0101", "0103"], vec!["0101", "0102"], summary(1, 3, 0)),
+            (summary(4, 0, 0), vec![], vec!["0101"], summary(4, 0, 0)),
+        ];
+        for (mut s, unreadable, processed, want) in cases {
+            let unreadable: Vec<RunFailure> = unreadable.into_iter().map(failure).collect();
+            let runs = s.ok + s.failed + s.skipped;
+            s.count_unreadable(&unreadable, |run| processed.contains(&run));
+            assert_eq!(s, want, "{unreadable:?}");
+            assert_eq!(s.ok + s.failed + s.skipped, runs, "every run counted once");
+        }
+    }
 }

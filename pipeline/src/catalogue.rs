@@ -5,11 +5,14 @@
 //! (shards on a shared file system, or a second batch started by mistake) queue instead of
 //! corrupting it.
 
+use std::fmt::Write as _;
 use std::path::Path;
 use std::time::Duration;
 
 use rusqlite::{params, Connection, OptionalExtension};
 use serde::Serialize;
+
+use crate::cli::TableFormat;
 
 /// The catalogue's file name in the output folder.
 pub const CATALOGUE_FILE: &str = "catalogue.sqlite";
@@ -108,8 +111,27 @@ pub struct Catalogue {
     conn: Connection,
 }
 
-fn sql(e: rusqlite::Error) -> String {
-    format!("catalogue: {e}")
+/// Why the catalogue could not be used.
+#[derive(Debug, thiserror::Error)]
+pub enum CatalogueError {
+    /// The database refused a statement, or the file is no SQLite database.
+    #[error("catalogue: {0}")]
+    Sql(#[from] rusqlite::Error),
+    /// A catalogue of a layout newer than this program reads.
+    #[error(
+        "catalogue {} was written by a newer xsflow (catalogue version {found}; this one reads \
+         {SCHEMA_VERSION}): use that version, or another output folder",
+        .path.display()
+    )]
+    Newer {
+        /// The catalogue file.
+        path: std::path::PathBuf,
+        /// Its layout version.
+        found: i64,
+    },
+    /// A thread panicked while it held the catalogue (a defect of xsflow).
+    #[error("catalogue: its lock was poisoned by a thread that panicked while it held it")]
+    Poisoned,
 }
 
 impl Catalogue {
@@ -117,9 +139,9 @@ impl Catalogue {
     ///
     /// # Errors
     /// A file that is not a catalogue, or one written by a newer version of xsflow.
-    pub fn open(dir: &Path) -> Result<Self, String> {
-        let conn = Connection::open(dir.join(CATALOGUE_FILE)).map_err(sql)?;
-        conn.busy_timeout(Duration::from_secs(60)).map_err(sql)?;
+    pub fn open(dir: &Path) -> Result<Self, CatalogueError> {
+        let conn = Connection::open(dir.join(CATALOGUE_FILE))?;
+        conn.busy_timeout(Duration::from_secs(60))?;
         conn.execute_batch(
             "BEGIN IMMEDIATE;
              CREATE TABLE IF NOT EXISTS meta (key TEXT PRIMARY KEY, value TEXT NOT NULL);
@@ -130,17 +152,12 @@ impl Catalogue {
                 events INTEGER, charge_c REAL, live_fraction REAL, warnings TEXT NOT NULL);
              INSERT OR IGNORE INTO meta (key, value) VALUES ('schema_version', '1');
              COMMIT;",
-        )
-        .map_err(sql)?;
+        )?;
         let version: String =
-            conn.query_row("SELECT value FROM meta WHERE key = 'schema_version'", [], |r| r.get(0)).map_err(sql)?;
+            conn.query_row("SELECT value FROM meta WHERE key = 'schema_version'", [], |r| r.get(0))?;
         let v: i64 = version.parse().unwrap_or(i64::MAX);
         if v > SCHEMA_VERSION {
-            return Err(format!(
-                "catalogue {} was written by a newer xsflow (catalogue version {v}; this one reads {SCHEMA_VERSION}): \
-                 use that version, or another output folder",
-                dir.join(CATALOGUE_FILE).display()
-            ));
+            return Err(CatalogueError::Newer { path: dir.join(CATALOGUE_FILE), found: v });
         }
         Ok(Catalogue { conn })
     }
@@ -149,16 +166,16 @@ impl Catalogue {
     ///
     /// # Errors
     /// A database error.
-    pub fn get(&self, run: &str) -> Result<Option<RunEntry>, String> {
-        self.conn.query_row("SELECT * FROM runs WHERE run = ?1", [run], entry).optional().map_err(sql)
+    pub fn get(&self, run: &str) -> Result<Option<RunEntry>, CatalogueError> {
+        Ok(self.conn.query_row("SELECT * FROM runs WHERE run = ?1", [run], entry).optional()?)
     }
 
     /// Write a run's entry (replacing the previous one) in one transaction.
     ///
     /// # Errors
     /// A database error (the catalogue is then unchanged).
-    pub fn put(&mut self, e: &RunEntry) -> Result<(), String> {
-        let tx = self.conn.transaction_with_behavior(rusqlite::TransactionBehavior::Immediate).map_err(sql)?;
+    pub fn put(&mut self, e: &RunEntry) -> Result<(), CatalogueError> {
+        let tx = self.conn.transaction_with_behavior(rusqlite::TransactionBehavior::Immediate)?;
         tx.execute(
             "INSERT OR REPLACE INTO runs VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13)",
             params![
@@ -176,9 +193,8 @@ impl Catalogue {
                 e.live_fraction,
                 e.warnings
             ],
-        )
-        .map_err(sql)?;
-        tx.commit().map_err(sql)
+        )?;
+        Ok(tx.commit()?)
     }
 
     /// Record that this batch found `runs` unchanged: those that are `ok` become `skipped`,
@@ -186,42 +202,41 @@ impl Catalogue {
     ///
     /// # Errors
     /// A database error (the catalogue is then unchanged).
-    pub fn mark_skipped(&mut self, runs: &[String]) -> Result<(), String> {
+    pub fn mark_skipped(&mut self, runs: &[String]) -> Result<(), CatalogueError> {
         if runs.is_empty() {
             return Ok(());
         }
-        let tx = self.conn.transaction_with_behavior(rusqlite::TransactionBehavior::Immediate).map_err(sql)?;
+        let tx = self.conn.transaction_with_behavior(rusqlite::TransactionBehavior::Immediate)?;
         {
-            let mut update =
-                tx.prepare("UPDATE runs SET status = 'skipped' WHERE run = ?1 AND status = 'ok'").map_err(sql)?;
+            let mut update = tx.prepare("UPDATE runs SET status = 'skipped' WHERE run = ?1 AND status = 'ok'")?;
             for run in runs {
-                update.execute([run]).map_err(sql)?;
+                update.execute([run])?;
             }
         }
-        tx.commit().map_err(sql)
+        Ok(tx.commit()?)
     }
 
     /// Every entry in run order, or only the failed ones.
     ///
     /// # Errors
     /// A database error.
-    pub fn list(&self, failed_only: bool) -> Result<Vec<RunEntry>, String> {
+    pub fn list(&self, failed_only: bool) -> Result<Vec<RunEntry>, CatalogueError> {
         let q = if failed_only {
             "SELECT * FROM runs WHERE status = 'failed' ORDER BY run"
         } else {
             "SELECT * FROM runs ORDER BY run"
         };
-        let mut stmt = self.conn.prepare(q).map_err(sql)?;
-        let rows = stmt.query_map([], entry).map_err(sql)?;
-        rows.collect::<Result<Vec<_>, _>>().map_err(sql)
+        let mut stmt = self.conn.prepare(q)?;
+        let rows = stmt.query_map([], entry)?;
+        Ok(rows.collect::<Result<Vec<_>, _>>()?)
     }
 
     /// A value of the `meta` table.
     ///
     /// # Errors
     /// A database error.
-    pub fn meta(&self, key: &str) -> Result<Option<String>, String> {
-        self.conn.query_row("SELECT value FROM meta WHERE key = ?1", [key], |r| r.get(0)).optional().map_err(sql)
+    pub fn meta(&self, key: &str) -> Result<Option<String>, CatalogueError> {
+        Ok(self.conn.query_row("SELECT value FROM meta WHERE key = ?1", [key], |r| r.get(0)).optional()?)
     }
 
     /// Set a value of the `meta` table (nothing is written when it already has that value,
@@ -229,25 +244,21 @@ impl Catalogue {
     ///
     /// # Errors
     /// A database error.
-    pub fn set_meta(&self, key: &str, value: &str) -> Result<(), String> {
+    pub fn set_meta(&self, key: &str, value: &str) -> Result<(), CatalogueError> {
         if self.meta(key)?.as_deref() == Some(value) {
             return Ok(());
         }
-        self.conn
-            .execute("INSERT OR REPLACE INTO meta (key, value) VALUES (?1, ?2)", [key, value])
-            .map(|_| ())
-            .map_err(sql)
+        self.conn.execute("INSERT OR REPLACE INTO meta (key, value) VALUES (?1, ?2)", [key, value])?;
+        Ok(())
     }
 
     /// Set the catalogue version (tests of the refusal of newer catalogues).
     ///
     /// # Errors
     /// A database error.
-    pub fn set_version(&self, v: i64) -> Result<(), String> {
-        self.conn
-            .execute("UPDATE meta SET value = ?1 WHERE key = 'schema_version'", [v.to_string()])
-            .map(|_| ())
-            .map_err(sql)
+    pub fn set_version(&self, v: i64) -> Result<(), CatalogueError> {
+        self.conn.execute("UPDATE meta SET value = ?1 WHERE key = 'schema_version'", [v.to_string()])?;
+        Ok(())
     }
 }
 
@@ -288,4 +299,36 @@ pub fn entries_table(entries: &[RunEntry]) -> polars::prelude::PolarsResult<pola
         Column::new("processed_utc".into(), text(&|e| e.processed_utc.clone())),
         Column::new("error".into(), text(&|e| e.error.clone())),
     ])
+}
+
+/// The run list as `xsflow runs` prints it: a JSON array, CSV ([`entries_table`]), or
+/// aligned columns with the first line of each error.
+///
+/// # Errors
+/// The table library's error (CSV only).
+pub fn render(entries: &[RunEntry], format: TableFormat) -> polars::prelude::PolarsResult<String> {
+    Ok(match format {
+        TableFormat::Json => serde_json::to_string_pretty(entries).unwrap_or_default() + "\n",
+        TableFormat::Csv => entries_table(entries).and_then(|mut t| crate::tables::csv_text(&mut t))?,
+        TableFormat::Table => {
+            let mut s = format!(
+                "{:<12} {:<7} {:>9} {:>12} {:>12} {:>8}  error\n",
+                "run", "status", "seconds", "events", "charge_c", "live"
+            );
+            for e in entries {
+                let _ = writeln!(
+                    s,
+                    "{:<12} {:<7} {:>9.3} {:>12} {:>12} {:>8}  {}",
+                    e.run,
+                    e.status,
+                    e.seconds,
+                    e.events.map(|x| x.to_string()).unwrap_or_else(|| "-".into()),
+                    e.charge_c.map(|x| format!("{x:.4e}")).unwrap_or_else(|| "-".into()),
+                    e.live_fraction.map(|x| format!("{x:.4}")).unwrap_or_else(|| "-".into()),
+                    e.error.lines().next().unwrap_or("")
+                );
+            }
+            s
+        }
+    })
 }

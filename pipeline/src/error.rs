@@ -85,9 +85,25 @@ pub struct RunFailure {
     pub problems: Vec<Diagnostic>,
 }
 
-/// Print diagnostics to stderr, one block each.
-pub fn report(diagnostics: &[Diagnostic]) {
-    for d in diagnostics {
-        eprintln!("{d}");
-    }
+/// Diagnostics as text, one block each (for stderr).
+pub fn render(diagnostics: &[Diagnostic]) -> String {
+    diagnostics.iter().map(|d| format!("{d}\n")).collect()
+}
+
+/// Run `work`, turning a panic (a defect of xsflow, never the user's input) into a failure
+/// of that one run or fit, reported against `file` with the panic's message, so that the
+/// other runs of a batch still finish. The panic's default report on stderr stays.
+///
+/// # Errors
+/// The panic's message.
+pub fn without_panics<T>(file: &Path, work: impl FnOnce() -> T) -> Result<T, Diagnostic> {
+    std::panic::catch_unwind(std::panic::AssertUnwindSafe(work)).map_err(|payload| {
+        let message = payload
+            .downcast_ref::<&str>()
+            .map(|s| (*s).to_string())
+            .or_else(|| payload.downcast_ref::<String>().cloned())
+            .unwrap_or_else(|| "no message".into());
+        Diagnostic::new(file, "", format!("internal error (a defect of xsflow, not of this input): {message}"))
+            .with_help("the other runs went on; please report this with the run's files")
+    })
 }

@@ -11,11 +11,135 @@ use std::path::Path;
 use polars::prelude::*;
 use stages::raw::{Accumulator, RawPlan, RawResult, UNKNOWN_DETECTOR};
 
+use crate::tables::TableError;
+
 /// The file formats, by extension.
 const ACCEPTED: &str = ".parquet (or .pq), .arrow (or .ipc, .feather), .csv";
 
 /// Rows handed to the accumulator at once from CSV.
 const CSV_BATCH: usize = 1 << 16;
+
+/// Why an event or spectrum file could not be read. The messages leave out the path: the
+/// caller's diagnostic names the file; they name the line, row or column inside it.
+#[derive(Debug, thiserror::Error)]
+pub enum RawFileError {
+    /// The file cannot be opened, or its reader rejects it (as for any table file).
+    #[error(transparent)]
+    File(#[from] TableError),
+    /// A row group that cannot be read.
+    #[error("cannot read rows {start}..{end}: {source}")]
+    Rows {
+        /// First row (0-based).
+        start: usize,
+        /// One past the last row.
+        end: usize,
+        /// The reader's error.
+        source: PolarsError,
+    },
+    /// An extension that names no format of this kind of file.
+    #[error("unknown {kind}file format `.{extension}`; accepted: {ACCEPTED}")]
+    UnknownFormat {
+        /// `event `, `spectrum ` or empty.
+        kind: &'static str,
+        /// The extension found (lower case).
+        extension: String,
+    },
+    /// Columns mapped in `raw.columns` that the file lacks.
+    #[error(
+        "column{} {} not found (mapped in raw.columns); columns found: {}",
+        if .missing.len() > 1 { "s" } else { "" },
+        .missing.iter().map(|m| format!("`{m}`")).collect::<Vec<_>>().join(", "),
+        .found.join(", ")
+    )]
+    MissingColumns {
+        /// The mapped columns not found.
+        missing: Vec<String>,
+        /// The columns the file has.
+        found: Vec<String>,
+    },
+    /// A column of a type its role cannot use.
+    #[error("column `{column}` has type {dtype}; expected {expected}")]
+    ColumnType {
+        /// The column.
+        column: String,
+        /// Its type.
+        dtype: String,
+        /// What the role needs.
+        expected: String,
+    },
+    /// A CSV line that cannot be read.
+    #[error("line {line}: cannot read it: {source}")]
+    Line {
+        /// The line (1-based).
+        line: u64,
+        /// The I/O error.
+        source: std::io::Error,
+    },
+    /// A CSV line that ends inside a quoted value.
+    #[error(
+        "line {line}, column {column}: found the quote of `\"{value}` not closed on its line; expected one \
+         event a line: add the closing `\"`"
+    )]
+    OpenQuote {
+        /// The line (1-based).
+        line: u64,
+        /// The column's name in backquotes, or its number.
+        column: String,
+        /// The value from its opening quote to the end of the line.
+        value: String,
+    },
+    /// A CSV line with more or fewer values than the header.
+    #[error(
+        "line {line}: found {found} values, expected {} as in the header ({}); quote a value that holds a \
+         comma (\"a,b\")",
+        .header.len(),
+        .header.join(", ")
+    )]
+    ValueCount {
+        /// The line (1-based).
+        line: u64,
+        /// Values found.
+        found: usize,
+        /// The header's column names.
+        header: Vec<String>,
+    },
+    /// A CSV value that is not UTF-8.
+    #[error("line {line}, column {column}: found `{value}`, expected UTF-8 text")]
+    NotUtf8 {
+        /// The line (1-based).
+        line: u64,
+        /// The column's name in backquotes, or its number.
+        column: String,
+        /// The value, with the bytes that are not UTF-8 replaced.
+        value: String,
+    },
+    /// A spectrum row the accumulator refuses.
+    #[error("data row {row}: {reason}")]
+    SpectrumRow {
+        /// Data row (1-based).
+        row: usize,
+        /// Why.
+        reason: Box<dyn std::error::Error + Send + Sync>,
+    },
+    /// The table library failed.
+    #[error(transparent)]
+    Polars(#[from] PolarsError),
+}
+
+/// A file that cannot be opened.
+fn open_error(e: std::io::Error) -> RawFileError {
+    TableError::Open(e).into()
+}
+
+/// A file the Parquet reader rejects.
+fn parquet_error(source: PolarsError) -> RawFileError {
+    TableError::Decode { format: "Parquet", source }.into()
+}
+
+/// A file the Arrow IPC reader rejects.
+fn ipc_error(source: PolarsError) -> RawFileError {
+    TableError::Decode { format: "Arrow IPC", source }.into()
+}
 
 /// Which columns of an event or spectrum file, by role.
 struct Roles<'a> {
@@ -99,13 +223,13 @@ impl<'a> DetectorMap<'a> {
         self.cache.insert(v.to_string(), i);
         i
     }
-    fn column(&mut self, c: &Column) -> Result<Vec<u16>, String> {
+    fn column(&mut self, c: &Column) -> Result<Vec<u16>, RawFileError> {
         let s = c.as_materialized_series();
         match s.dtype() {
             // The common case, one table lookup per event.
             DataType::UInt16 => {
                 let mut out = Vec::with_capacity(s.len());
-                for a in s.u16().map_err(|e| e.to_string())?.downcast_iter() {
+                for a in s.u16()?.downcast_iter() {
                     if a.validity().is_none_or(|v| v.unset_bits() == 0) {
                         out.extend(a.values().iter().map(|v| self.small[usize::from(*v)]));
                     } else {
@@ -114,16 +238,10 @@ impl<'a> DetectorMap<'a> {
                 }
                 Ok(out)
             }
-            DataType::String => Ok(s
-                .str()
-                .map_err(|e| e.to_string())?
-                .iter()
-                .map(|v| v.map_or(UNKNOWN_DETECTOR, |v| self.text(v)))
-                .collect()),
+            DataType::String => Ok(s.str()?.iter().map(|v| v.map_or(UNKNOWN_DETECTOR, |v| self.text(v))).collect()),
             dt if dt.is_integer() => {
-                let v = s.cast(&DataType::Int64).map_err(|e| e.to_string())?;
-                Ok(v.i64()
-                    .map_err(|e| e.to_string())?
+                let v = s.cast(&DataType::Int64)?;
+                Ok(v.i64()?
                     .iter()
                     .map(|v| match v {
                         Some(v) if (0..=i64::from(u16::MAX)).contains(&v) => self.small[v as usize],
@@ -132,18 +250,26 @@ impl<'a> DetectorMap<'a> {
                     })
                     .collect())
             }
-            dt => Err(format!("column `{}` has type {dt}; expected integers or strings (detector ids)", c.name())),
+            dt => Err(RawFileError::ColumnType {
+                column: c.name().to_string(),
+                dtype: dt.to_string(),
+                expected: "integers or strings (detector ids)".into(),
+            }),
         }
     }
 }
 
-fn f64_column(c: &Column, what: &str) -> Result<Vec<f64>, String> {
+fn f64_column(c: &Column, what: &str) -> Result<Vec<f64>, RawFileError> {
     let s = c.as_materialized_series();
     if !(s.dtype().is_primitive_numeric() || s.dtype() == &DataType::Boolean) {
-        return Err(format!("column `{}` has type {}; expected numbers ({what})", c.name(), s.dtype()));
+        return Err(RawFileError::ColumnType {
+            column: c.name().to_string(),
+            dtype: s.dtype().to_string(),
+            expected: format!("numbers ({what})"),
+        });
     }
-    let v = s.cast(&DataType::Float64).map_err(|e| e.to_string())?;
-    Ok(v.f64().map_err(|e| e.to_string())?.iter().map(|x| x.unwrap_or(f64::NAN)).collect())
+    let v = s.cast(&DataType::Float64)?;
+    Ok(v.f64()?.iter().map(|x| x.unwrap_or(f64::NAN)).collect())
 }
 
 /// Feed one table of events (a row group, or a whole IPC file) to the accumulator.
@@ -152,8 +278,8 @@ fn add_frame(
     map: &mut DetectorMap<'_>,
     df: &DataFrame,
     roles: &Roles<'_>,
-) -> Result<(), String> {
-    let col = |name: &str| df.column(name).map_err(|e| e.to_string());
+) -> Result<(), RawFileError> {
+    let col = |name: &str| df.column(name);
     let det = map.column(col(roles.detector)?)?;
     let pile: Option<Vec<bool>> = roles
         .pile_up
@@ -162,7 +288,7 @@ fn add_frame(
     let de = roles.delta_e.map(|p| f64_column(col(p)?, "ΔE")).transpose()?;
     let energy = col(roles.value)?.as_materialized_series();
     if energy.dtype() == &DataType::UInt16 && energy.null_count() == 0 {
-        let ca = energy.u16().map_err(|e| e.to_string())?;
+        let ca = energy.u16()?;
         let mut offset = 0;
         for chunk in ca.downcast_iter() {
             let values = chunk.values().as_slice();
@@ -182,17 +308,12 @@ fn add_frame(
     Ok(())
 }
 
-fn check_columns(found: &[String], roles: &Roles<'_>) -> Result<(), String> {
+fn check_columns(found: &[String], roles: &Roles<'_>) -> Result<(), RawFileError> {
     let missing: Vec<String> = roles.names().into_iter().filter(|n| !found.contains(n)).collect();
     if missing.is_empty() {
         Ok(())
     } else {
-        Err(format!(
-            "column{} {} not found (mapped in raw.columns); columns found: {}",
-            if missing.len() > 1 { "s" } else { "" },
-            missing.iter().map(|m| format!("`{m}`")).collect::<Vec<_>>().join(", "),
-            found.join(", ")
-        ))
+        Err(RawFileError::MissingColumns { missing, found: found.to_vec() })
     }
 }
 
@@ -201,16 +322,16 @@ fn read_parquet(
     acc: &mut Accumulator<'_>,
     map: &mut DetectorMap<'_>,
     roles: &Roles<'_>,
-) -> Result<(), String> {
-    let open = || File::open(path).map_err(|e| format!("cannot open it: {e}"));
+) -> Result<(), RawFileError> {
+    let open = || File::open(path).map_err(open_error);
     let mut reader = ParquetReader::new(open()?);
-    let schema = reader.schema().map_err(|e| format!("cannot read it as Parquet: {e}"))?;
+    let schema = reader.schema().map_err(parquet_error)?;
     let found: Vec<String> = schema.iter_names().map(|n| n.to_string()).collect();
     check_columns(&found, roles)?;
-    let meta = reader.get_metadata().map_err(|e| format!("cannot read it as Parquet: {e}"))?.clone();
+    let meta = reader.get_metadata().map_err(parquet_error)?.clone();
     // One thread decodes row group k + 1 while this one accumulates row group k; at most
     // two decoded row groups exist at a time, so memory follows the row-group size.
-    let (send, receive) = std::sync::mpsc::sync_channel::<Result<DataFrame, String>>(1);
+    let (send, receive) = std::sync::mpsc::sync_channel::<Result<DataFrame, RawFileError>>(1);
     let names = roles.names();
     std::thread::scope(|scope| {
         scope.spawn(move || {
@@ -223,7 +344,7 @@ fn read_parquet(
                     r.with_columns(Some(names.clone()))
                         .with_slice(Some((offset, n)))
                         .finish()
-                        .map_err(|e| format!("cannot read rows {offset}..{}: {e}", offset + n))
+                        .map_err(|source| RawFileError::Rows { start: offset, end: offset + n, source })
                 });
                 let failed = frame.is_err();
                 if send.send(frame).is_err() || failed {
@@ -239,10 +360,10 @@ fn read_parquet(
     })
 }
 
-fn ipc_columns(path: &Path) -> Result<Vec<String>, String> {
-    let file = File::open(path).map_err(|e| format!("cannot open it: {e}"))?;
+fn ipc_columns(path: &Path) -> Result<Vec<String>, RawFileError> {
+    let file = File::open(path).map_err(open_error)?;
     let mut reader = IpcReader::new(file);
-    let schema = reader.schema().map_err(|e| format!("cannot read it as Arrow IPC: {e}"))?;
+    let schema = reader.schema().map_err(ipc_error)?;
     Ok(schema.iter_names().map(|n| n.to_string()).collect())
 }
 
@@ -253,10 +374,10 @@ fn read_ipc_events(
     acc: &mut Accumulator<'_>,
     map: &mut DetectorMap<'_>,
     roles: &Roles<'_>,
-) -> Result<(), String> {
+) -> Result<(), RawFileError> {
     use polars_arrow::io::ipc::read::{read_file_metadata, FileReader};
-    let mut file = File::open(path).map_err(|e| format!("cannot open it: {e}"))?;
-    let meta = read_file_metadata(&mut file).map_err(|e| format!("cannot read it as Arrow IPC: {e}"))?;
+    let mut file = File::open(path).map_err(open_error)?;
+    let meta = read_file_metadata(&mut file).map_err(ipc_error)?;
     let found: Vec<String> = meta.schema.iter_names().map(|n| n.to_string()).collect();
     check_columns(&found, roles)?;
     let wanted = roles.names();
@@ -265,21 +386,21 @@ fn read_ipc_events(
     projection.sort_unstable();
     let names: Vec<String> = projection.iter().map(|&i| found[i].clone()).collect();
     for batch in FileReader::new(file, meta, Some(projection), None) {
-        let batch = batch.map_err(|e| format!("cannot read it as Arrow IPC: {e}"))?;
+        let batch = batch.map_err(ipc_error)?;
         let columns = names
             .iter()
             .zip(batch.into_arrays())
-            .map(|(n, a)| Series::from_arrow(n.as_str().into(), a).map(Column::from).map_err(|e| e.to_string()))
-            .collect::<Result<Vec<Column>, String>>()?;
-        let df = DataFrame::new_infer_height(columns).map_err(|e| e.to_string())?;
+            .map(|(n, a)| Series::from_arrow(n.as_str().into(), a).map(Column::from))
+            .collect::<Result<Vec<Column>, _>>()?;
+        let df = DataFrame::new_infer_height(columns)?;
         add_frame(acc, map, &df, roles)?;
     }
     Ok(())
 }
 
-fn read_ipc_columns(path: &Path, columns: Vec<String>) -> Result<DataFrame, String> {
-    let file = File::open(path).map_err(|e| format!("cannot open it: {e}"))?;
-    IpcReader::new(file).with_columns(Some(columns)).finish().map_err(|e| format!("cannot read it as Arrow IPC: {e}"))
+fn read_ipc_columns(path: &Path, columns: Vec<String>) -> Result<DataFrame, RawFileError> {
+    let file = File::open(path).map_err(open_error)?;
+    IpcReader::new(file).with_columns(Some(columns)).finish().map_err(ipc_error)
 }
 
 /// A CSV file read one line at a time, each line parsed by `csv-core` (the `csv` crate's
@@ -302,8 +423,8 @@ struct CsvRecords {
 
 impl CsvRecords {
     /// Open a CSV file and read its header.
-    fn open(path: &Path) -> Result<Self, String> {
-        let file = File::open(path).map_err(|e| format!("cannot open it: {e}"))?;
+    fn open(path: &Path) -> Result<Self, RawFileError> {
+        let file = File::open(path).map_err(open_error)?;
         let mut csv = CsvRecords {
             header: Vec::new(),
             input: BufReader::new(file),
@@ -321,13 +442,13 @@ impl CsvRecords {
     }
 
     /// Read and parse the next line that is not blank; `false` at the end of the file.
-    fn read(&mut self) -> Result<bool, String> {
+    fn read(&mut self) -> Result<bool, RawFileError> {
         loop {
             self.text.clear();
             let n = self
                 .input
                 .read_until(b'\n', &mut self.text)
-                .map_err(|e| format!("line {}: cannot read it: {e}", self.line + 1))?;
+                .map_err(|source| RawFileError::Line { line: self.line + 1, source })?;
             if n == 0 {
                 return Ok(false);
             }
@@ -347,7 +468,7 @@ impl CsvRecords {
     }
 
     /// Parse the line last read into its values.
-    fn parse(&mut self) -> Result<(), String> {
+    fn parse(&mut self) -> Result<(), RawFileError> {
         use csv_core::ReadRecordResult;
         let (mut nin, mut nout, mut nend) = (0, 0, 0);
         loop {
@@ -365,13 +486,11 @@ impl CsvRecords {
                 ReadRecordResult::InputEmpty | ReadRecordResult::End => {
                     let start = if nend == 0 { 0 } else { self.ends[nend - 1] };
                     let open = String::from_utf8_lossy(&self.values[start..nout]);
-                    return Err(format!(
-                        "line {}, column {}: found the quote of `\"{}` not closed on its line; expected one \
-                         event a line: add the closing `\"`",
-                        self.line,
-                        self.column(nend),
-                        open.trim_end()
-                    ));
+                    return Err(RawFileError::OpenQuote {
+                        line: self.line,
+                        column: self.column(nend),
+                        value: open.trim_end().to_string(),
+                    });
                 }
             }
         }
@@ -379,17 +498,10 @@ impl CsvRecords {
 
     /// Read the next event: a line with one value for each header column; `false` at the
     /// end of the file.
-    fn next_event(&mut self) -> Result<bool, String> {
+    fn next_event(&mut self) -> Result<bool, RawFileError> {
         let more = self.read()?;
         if more && self.len != self.header.len() {
-            return Err(format!(
-                "line {}: found {} values, expected {} as in the header ({}); quote a value that holds a \
-                 comma (\"a,b\")",
-                self.line,
-                self.len,
-                self.header.len(),
-                self.header.join(", ")
-            ));
+            return Err(RawFileError::ValueCount { line: self.line, found: self.len, header: self.header.clone() });
         }
         Ok(more)
     }
@@ -400,17 +512,14 @@ impl CsvRecords {
     }
 
     /// Value `i` of the line last read, as text.
-    fn text(&self, i: usize) -> Result<&str, String> {
+    fn text(&self, i: usize) -> Result<&str, RawFileError> {
         let start = i.checked_sub(1).and_then(|j| self.ends.get(j)).copied().unwrap_or(0);
         let end = if i < self.len { self.ends.get(i).copied().unwrap_or(start) } else { start };
         let bytes = self.values.get(start..end).unwrap_or_default();
-        std::str::from_utf8(bytes).map_err(|_| {
-            format!(
-                "line {}, column {}: found `{}`, expected UTF-8 text",
-                self.line,
-                self.column(i),
-                String::from_utf8_lossy(bytes)
-            )
+        std::str::from_utf8(bytes).map_err(|_| RawFileError::NotUtf8 {
+            line: self.line,
+            column: self.column(i),
+            value: String::from_utf8_lossy(bytes).into_owned(),
         })
     }
 }
@@ -420,7 +529,7 @@ fn read_csv_events(
     acc: &mut Accumulator<'_>,
     map: &mut DetectorMap<'_>,
     roles: &Roles<'_>,
-) -> Result<(), String> {
+) -> Result<(), RawFileError> {
     let mut csv = CsvRecords::open(path)?;
     if csv.header.is_empty() {
         return Ok(());
@@ -462,17 +571,17 @@ fn read_csv_events(
 ///
 /// # Errors
 /// An unreadable file, an unknown format, or the missing columns (the columns found named).
-pub fn check_file(path: &Path, plan: &RawPlan, spectra: bool) -> Result<(), String> {
+pub fn check_file(path: &Path, plan: &RawPlan, spectra: bool) -> Result<(), RawFileError> {
     let roles = if spectra { Roles::spectra(plan) } else { Roles::events(plan) };
     let found = match extension(path).as_str() {
         "parquet" | "pq" => {
-            let mut reader = ParquetReader::new(File::open(path).map_err(|e| format!("cannot open it: {e}"))?);
-            let schema = reader.schema().map_err(|e| format!("cannot read it as Parquet: {e}"))?;
+            let mut reader = ParquetReader::new(File::open(path).map_err(open_error)?);
+            let schema = reader.schema().map_err(parquet_error)?;
             schema.iter_names().map(|n| n.to_string()).collect()
         }
         "arrow" | "ipc" | "feather" => ipc_columns(path)?,
         "csv" => CsvRecords::open(path)?.header,
-        ext => return Err(format!("unknown file format `.{ext}`; accepted: {ACCEPTED}")),
+        ext => return Err(RawFileError::UnknownFormat { kind: "", extension: ext.to_string() }),
     };
     check_columns(&found, &roles)
 }
@@ -482,7 +591,7 @@ pub fn check_file(path: &Path, plan: &RawPlan, spectra: bool) -> Result<(), Stri
 /// # Errors
 /// An unreadable, corrupt or truncated file, a mapped column that is missing (the columns
 /// found are named) or of the wrong type.
-pub fn reduce_events(path: &Path, plan: &RawPlan) -> Result<RawResult, String> {
+pub fn reduce_events(path: &Path, plan: &RawPlan) -> Result<RawResult, RawFileError> {
     let roles = Roles::events(plan);
     let mut acc = plan.accumulator();
     let mut map = DetectorMap::new(plan);
@@ -490,7 +599,7 @@ pub fn reduce_events(path: &Path, plan: &RawPlan) -> Result<RawResult, String> {
         "parquet" | "pq" => read_parquet(path, &mut acc, &mut map, &roles)?,
         "arrow" | "ipc" | "feather" => read_ipc_events(path, &mut acc, &mut map, &roles)?,
         "csv" => read_csv_events(path, &mut acc, &mut map, &roles)?,
-        ext => return Err(format!("unknown event file format `.{ext}`; accepted: {ACCEPTED}")),
+        ext => return Err(RawFileError::UnknownFormat { kind: "event ", extension: ext.to_string() }),
     }
     Ok(acc.finish())
 }
@@ -499,7 +608,7 @@ pub fn reduce_events(path: &Path, plan: &RawPlan) -> Result<RawResult, String> {
 ///
 /// # Errors
 /// As [`reduce_events`], and a count that is not a whole number ≥ 0 (its row is named).
-pub fn reduce_spectra(path: &Path, plan: &RawPlan) -> Result<RawResult, String> {
+pub fn reduce_spectra(path: &Path, plan: &RawPlan) -> Result<RawResult, RawFileError> {
     let c = &plan.config.spectrum_columns;
     let roles = Roles::spectra(plan);
     let df = match extension(path).as_str() {
@@ -508,17 +617,18 @@ pub fn reduce_spectra(path: &Path, plan: &RawPlan) -> Result<RawResult, String> 
             check_columns(&ipc_columns(path)?, &roles)?;
             read_ipc_columns(path, roles.names())?
         }
-        ext => return Err(format!("unknown spectrum file format `.{ext}`; accepted: {ACCEPTED}")),
+        ext => return Err(RawFileError::UnknownFormat { kind: "spectrum ", extension: ext.to_string() }),
     };
     let found: Vec<String> = df.get_column_names().iter().map(|n| n.to_string()).collect();
     check_columns(&found, &roles)?;
     let mut map = DetectorMap::new(plan);
-    let det = map.column(df.column(&c.detector).map_err(|e| e.to_string())?)?;
-    let ch = f64_column(df.column(&c.channel).map_err(|e| e.to_string())?, "channels")?;
-    let n = f64_column(df.column(&c.counts).map_err(|e| e.to_string())?, "counts")?;
+    let det = map.column(df.column(&c.detector)?)?;
+    let ch = f64_column(df.column(&c.channel)?, "channels")?;
+    let n = f64_column(df.column(&c.counts)?, "counts")?;
     let mut acc = plan.accumulator();
     for i in 0..det.len() {
-        acc.add_spectrum_row(det[i], ch[i], n[i]).map_err(|m| format!("data row {}: {m}", i + 1))?;
+        acc.add_spectrum_row(det[i], ch[i], n[i])
+            .map_err(|reason| RawFileError::SpectrumRow { row: i + 1, reason: reason.into() })?;
     }
     Ok(acc.finish())
 }

@@ -4,12 +4,14 @@
 use std::collections::BTreeMap;
 use std::fmt::Write as _;
 
+use polars::prelude::{Column, DataFrame, PolarsResult};
 use serde::Serialize;
 use stages::physics::kinematics::{Detect, Mode, Solution};
 use stages::setup::{DetectConfig, ReactionConfig, ResolvedReaction, StateConfig};
 use tracing::warn;
 
 use crate::cli::TableFormat;
+use crate::tables::csv_text;
 
 /// One solution at one lab angle, as printed.
 #[derive(Debug, Clone, Serialize, PartialEq)]
@@ -55,34 +57,72 @@ impl KinematicsRow {
     }
 }
 
+/// What `--angles` accepts, for messages.
+const ACCEPTED_ANGLES: &str = "A:B:STEP (e.g. 10:170:10) or a list (e.g. 15,30,45), angles in (0, 180) degrees";
+
+/// The most angles one `--angles` range may give.
+const MAX_ANGLES: usize = 100_000;
+
+/// An `--angles` text that gives no angles.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+#[error("--angles {text}: {problem}; accepted: {ACCEPTED_ANGLES}")]
+pub struct AnglesError {
+    /// The text given.
+    pub text: String,
+    /// What is wrong with it.
+    pub problem: AnglesProblem,
+}
+
+/// What is wrong with an `--angles` text.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum AnglesProblem {
+    /// A part that is no finite number.
+    #[error("`{0}` is not a number")]
+    NotANumber(String),
+    /// A range of other than three parts.
+    #[error("a range needs three numbers")]
+    RangeParts,
+    /// A range that runs backwards or does not advance.
+    #[error("a range needs A <= B and STEP > 0")]
+    RangeOrder,
+    /// A range of too many angles.
+    #[error("more than {MAX_ANGLES} angles")]
+    TooMany,
+    /// An angle outside (0, 180) degrees.
+    #[error("{0} is outside (0, 180)")]
+    Outside(f64),
+}
+
 /// Parse `A:B:STEP` (inclusive of B when the steps reach it) or a comma list `10,20,35`.
 ///
 /// # Errors
-/// A message naming the text and the accepted forms.
-pub fn parse_angles(text: &str) -> Result<Vec<f64>, String> {
-    let bad = |why: &str| {
-        format!("--angles {text}: {why}; accepted: A:B:STEP (e.g. 10:170:10) or a list (e.g. 15,30,45), angles in (0, 180) degrees")
-    };
+/// The text and what is wrong with it; its message names the accepted forms.
+pub fn parse_angles(text: &str) -> Result<Vec<f64>, AnglesError> {
+    let bad = |problem| AnglesError { text: text.to_string(), problem };
     let number = |s: &str| {
-        s.trim().parse::<f64>().ok().filter(|x| x.is_finite()).ok_or_else(|| bad(&format!("`{s}` is not a number")))
+        s.trim()
+            .parse::<f64>()
+            .ok()
+            .filter(|x| x.is_finite())
+            .ok_or_else(|| bad(AnglesProblem::NotANumber(s.to_string())))
     };
     let angles = if text.contains(':') {
         let parts: Vec<&str> = text.split(':').collect();
-        let [a, b, step] = parts[..] else { return Err(bad("a range needs three numbers")) };
+        let [a, b, step] = parts[..] else { return Err(bad(AnglesProblem::RangeParts)) };
         let (a, b, step) = (number(a)?, number(b)?, number(step)?);
         if step <= 0.0 || b < a {
-            return Err(bad("a range needs A <= B and STEP > 0"));
+            return Err(bad(AnglesProblem::RangeOrder));
         }
         let n = ((b - a) / step + 1e-9).floor() as usize;
-        if n > 100_000 {
-            return Err(bad("more than 100000 angles"));
+        if n > MAX_ANGLES {
+            return Err(bad(AnglesProblem::TooMany));
         }
         (0..=n).map(|i| a + step * i as f64).collect()
     } else {
         text.split(',').map(number).collect::<Result<Vec<_>, _>>()?
     };
     if let Some(x) = angles.iter().find(|x| !(**x > 0.0 && **x < 180.0)) {
-        return Err(bad(&format!("{x} is outside (0, 180)")));
+        return Err(bad(AnglesProblem::Outside(*x)));
     }
     Ok(angles)
 }
@@ -105,11 +145,23 @@ pub struct Request<'a> {
     pub non_relativistic: bool,
 }
 
+/// A value of a kinematics request that is not accepted, named by its command-line flag.
+#[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
+#[error("{flag}: found {found}, expected {expected}")]
+pub struct FlagProblem {
+    /// The flag (`--energy-mev`), or the key of the problem when no flag sets it.
+    pub flag: String,
+    /// The value found.
+    pub found: String,
+    /// What is accepted.
+    pub expected: String,
+}
+
 /// The reaction of a request, or the problems, phrased with the command-line flags.
 ///
 /// # Errors
-/// Each problem as a line naming the flag.
-pub fn resolve(req: &Request<'_>) -> Result<ResolvedReaction, Vec<String>> {
+/// Each problem, named by its flag.
+pub fn resolve(req: &Request<'_>) -> Result<ResolvedReaction, Vec<FlagProblem>> {
     let config = ReactionConfig {
         beam: req.beam.to_string(),
         target: req.target.to_string(),
@@ -122,7 +174,7 @@ pub fn resolve(req: &Request<'_>) -> Result<ResolvedReaction, Vec<String>> {
     };
     config.resolve().map_err(|problems| {
         problems
-            .iter()
+            .into_iter()
             .map(|p| {
                 let flag = match p.key.as_str() {
                     "energy_mev" => "--energy-mev",
@@ -132,7 +184,7 @@ pub fn resolve(req: &Request<'_>) -> Result<ResolvedReaction, Vec<String>> {
                     "ejectile" => "--ejectile",
                     other => other,
                 };
-                format!("{flag}: found {}, expected {}", p.found, p.expected)
+                FlagProblem { flag: flag.to_string(), found: p.found, expected: p.expected }
             })
             .collect()
     })
@@ -158,17 +210,25 @@ pub fn rows(reaction: &ResolvedReaction, angles_deg: &[f64], mode: Mode) -> Vec<
     out
 }
 
-const COLUMNS: [&str; 9] = [
-    "theta_lab_deg",
-    "theta_cm_deg",
-    "energy_lab_mev",
-    "domega_lab_per_domega_cm",
-    "branch",
-    "recoil_theta_lab_deg",
-    "recoil_energy_lab_mev",
-    "ejectile_theta_lab_deg",
-    "ejectile_energy_lab_mev",
-];
+/// The rows as a table, one column per field of [`KinematicsRow`] in its order.
+///
+/// # Errors
+/// The table library's error.
+pub fn table(rows: &[KinematicsRow]) -> PolarsResult<DataFrame> {
+    let col =
+        |name: &str, f: fn(&KinematicsRow) -> f64| Column::new(name.into(), rows.iter().map(f).collect::<Vec<_>>());
+    DataFrame::new_infer_height(vec![
+        col("theta_lab_deg", |r| r.theta_lab_deg),
+        col("theta_cm_deg", |r| r.theta_cm_deg),
+        col("energy_lab_mev", |r| r.energy_lab_mev),
+        col("domega_lab_per_domega_cm", |r| r.domega_lab_per_domega_cm),
+        Column::new("branch".into(), rows.iter().map(|r| r.branch).collect::<Vec<_>>()),
+        col("recoil_theta_lab_deg", |r| r.recoil_theta_lab_deg),
+        col("recoil_energy_lab_mev", |r| r.recoil_energy_lab_mev),
+        col("ejectile_theta_lab_deg", |r| r.ejectile_theta_lab_deg),
+        col("ejectile_energy_lab_mev", |r| r.ejectile_energy_lab_mev),
+    ])
+}
 
 fn values(r: &KinematicsRow) -> [f64; 9] {
     [
@@ -184,20 +244,22 @@ fn values(r: &KinematicsRow) -> [f64; 9] {
     ]
 }
 
-/// The rows in the chosen format, with a heading for the table format.
-pub fn render(reaction: &ResolvedReaction, rows: &[KinematicsRow], format: TableFormat, mode: Mode) -> String {
-    match format {
+/// The rows in the chosen format, with a heading for the table format; CSV through the
+/// one CSV writer ([`csv_text`]).
+///
+/// # Errors
+/// The table library's error (CSV only).
+pub fn render(
+    reaction: &ResolvedReaction,
+    rows: &[KinematicsRow],
+    format: TableFormat,
+    mode: Mode,
+) -> PolarsResult<String> {
+    Ok(match format {
         TableFormat::Json => {
             serde_json::to_string_pretty(rows).unwrap_or_else(|e| format!("{{\"error\": \"{e}\"}}")) + "\n"
         }
-        TableFormat::Csv => {
-            let mut s = COLUMNS.join(",") + "\n";
-            for r in rows {
-                let line: Vec<String> = values(r).iter().map(f64::to_string).collect();
-                s += &(line.join(",") + "\n");
-            }
-            s
-        }
+        TableFormat::Csv => csv_text(&mut table(rows)?)?,
         TableFormat::Table => {
             let mut s = String::new();
             if let Some((_, ch)) = reaction.channels.first() {
@@ -252,5 +314,68 @@ pub fn render(reaction: &ResolvedReaction, rows: &[KinematicsRow], format: Table
             }
             s
         }
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn row(theta_lab_deg: f64, branch: u8) -> KinematicsRow {
+        KinematicsRow {
+            theta_lab_deg,
+            theta_cm_deg: theta_lab_deg + 0.5,
+            energy_lab_mev: 23.949509358004224,
+            domega_lab_per_domega_cm: 1.0 / 3.0,
+            branch,
+            recoil_theta_lab_deg: 84.0,
+            recoil_energy_lab_mev: 0.05,
+            ejectile_theta_lab_deg: theta_lab_deg,
+            ejectile_energy_lab_mev: 23.949509358004224,
+        }
+    }
+
+    #[test]
+    fn angles_that_cannot_be_read_say_why() {
+        // (text, what is wrong)
+        let cases = [
+            ("10:x:1", AnglesProblem::NotANumber("x".into())),
+            ("10:20", AnglesProblem::RangeParts),
+            ("20:10:1", AnglesProblem::RangeOrder),
+            ("10:20:0", AnglesProblem::RangeOrder),
+            ("0.001:179:0.001", AnglesProblem::TooMany),
+            ("10,190", AnglesProblem::Outside(190.0)),
+            ("0", AnglesProblem::Outside(0.0)),
+        ];
+        for (text, problem) in cases {
+            let err = parse_angles(text).expect_err(text);
+            assert_eq!(err, AnglesError { text: text.into(), problem: problem.clone() }, "{text}");
+            assert!(err.to_string().starts_with(&format!("--angles {text}: {problem}; accepted: A:B:STEP")), "{err}");
+        }
+        assert_eq!(parse_angles("10:30:10").expect("a range").len(), 3, "B is included when the steps reach it");
+    }
+
+    #[test]
+    fn csv_goes_through_the_one_writer_and_reads_back_bit_for_bit() {
+        let rows = [row(10.0, 1), row(12.25, 2)];
+        let text = csv_text(&mut table(&rows).expect("table")).expect("csv");
+        // (line, what the writer gives: floats in their shortest round-trip form with a
+        // decimal point, the branch as a whole number)
+        let cases = [
+            (0, "theta_lab_deg,theta_cm_deg,energy_lab_mev,domega_lab_per_domega_cm,branch,recoil_theta_lab_deg,recoil_energy_lab_mev,ejectile_theta_lab_deg,ejectile_energy_lab_mev"),
+            (1, "10.0,10.5,23.949509358004224,0.3333333333333333,1,84.0,0.05,10.0,23.949509358004224"),
+            (2, "12.25,12.75,23.949509358004224,0.3333333333333333,2,84.0,0.05,12.25,23.949509358004224"),
+        ];
+        let lines: Vec<&str> = text.lines().collect();
+        for (i, want) in cases {
+            assert_eq!(lines[i], want, "line {i}");
+        }
+        let tmp = tempfile::tempdir().expect("scratch");
+        let path = tmp.path().join("kinematics.csv");
+        std::fs::write(&path, &text).expect("write");
+        let back = crate::tables::read_table(&path).expect("the CSV reads back");
+        let jacobians = stages::table::f64_values(&back, "domega_lab_per_domega_cm").expect("column");
+        // Shortest round-trip form: the value read back is the same double, bit for bit.
+        assert!(jacobians.iter().all(|x| x.to_bits() == (1.0_f64 / 3.0).to_bits()), "{jacobians:?}");
     }
 }

@@ -5,11 +5,13 @@
 pub mod batch;
 pub mod catalogue;
 pub mod cli;
+pub mod commands;
 pub mod config;
 pub mod error;
 pub mod events;
 pub mod fit;
 pub mod kinematics;
+pub mod layout;
 pub mod locate;
 pub mod plan;
 pub mod provenance;

@@ -11,6 +11,8 @@ use stages::{Problem, RunRecord, Setup, Stage};
 
 use crate::config::{parse_experiment, ExperimentInfo, YamlFile};
 use crate::error::Diagnostic;
+use crate::fit::{plan_fit, Experiment, FitProblem, PlannedFit};
+use crate::layout::is_folder_name;
 use crate::provenance::{change_since, sha256_file_stamped, sha256_hex, FileStamp};
 
 /// A stage ready to run, with where it came from in the config.
@@ -19,18 +21,6 @@ pub struct PlannedStage {
     pub key: String,
     /// The built stage.
     pub stage: Box<dyn Stage>,
-}
-
-/// A `fit` entry ready to run after every run.
-pub struct PlannedFit {
-    /// `stages[i]` key path.
-    pub key: String,
-    /// Output folder name under `fits/`.
-    pub name: String,
-    /// The state fitted.
-    pub state: String,
-    /// The fit file, loaded and built.
-    pub loaded: crate::fit::LoadedFit,
 }
 
 /// A run record that parsed and passed its checks.
@@ -291,63 +281,6 @@ pub fn plan_with(config_path: &Path, empty_patterns_warn: bool) -> Result<Plan, 
     }
 }
 
-/// A problem of a `fit` entry: in the config, or in the fit file it names.
-enum FitProblem {
-    Config(Problem),
-    File(Diagnostic),
-}
-
-/// Load the fit file of a `fit` entry and check its state against the reaction.
-fn plan_fit(
-    config_dir: &Path,
-    key: &str,
-    f: &stages::fit::FitEntryConfig,
-    setup: Option<&Setup>,
-) -> Result<PlannedFit, Vec<FitProblem>> {
-    let mut problems = Vec::new();
-    if let Some(setup) = setup {
-        let states: Vec<&str> = setup.reaction.states.iter().map(|s| s.name.as_str()).collect();
-        if !states.contains(&f.state.as_str()) {
-            problems.push(FitProblem::Config(Problem::new(
-                format!("{key}.state"),
-                &f.state,
-                format!("a state of the reaction ({})", states.join(", ")),
-            )));
-        }
-    }
-    if let Some(n) = &f.name {
-        if !safe_id(n) {
-            problems.push(FitProblem::Config(Problem::new(
-                format!("{key}.name"),
-                n,
-                "a name of letters, digits, '-', '_' and '.' (it names the output folder)",
-            )));
-        }
-    }
-    let path = config_dir.join(&f.model_file);
-    let loaded = if path.is_file() {
-        crate::fit::load(&path, setup).map_err(|ds| problems.extend(ds.into_iter().map(FitProblem::File))).ok()
-    } else {
-        problems.push(FitProblem::Config(Problem::new(
-            format!("{key}.model_file"),
-            &f.model_file,
-            format!("an existing fit file (not found: {})", path.display()),
-        )));
-        None
-    };
-    match loaded {
-        Some(loaded) if problems.is_empty() => {
-            let name = f.name.clone().unwrap_or_else(|| {
-                let state: String =
-                    f.state.chars().map(|c| if c.is_ascii_alphanumeric() || c == '-' { c } else { '_' }).collect();
-                format!("{state}_{}", loaded.model)
-            });
-            Ok(PlannedFit { key: key.to_string(), name, state: f.state.clone(), loaded })
-        }
-        _ => Err(problems),
-    }
-}
-
 /// Walk the stage list with the set of columns available so far; a stage that needs a
 /// column no earlier stage adds is a problem. Optional yields columns are checked per run.
 fn trace_columns(stages: &[PlannedStage]) -> Vec<Problem> {
@@ -421,11 +354,6 @@ fn discover_runs(
     found.into_iter().collect()
 }
 
-/// Characters a run id may hold (it names the run's output folder).
-fn safe_id(id: &str) -> bool {
-    !id.starts_with('.') && id.chars().all(|c| c.is_ascii_alphanumeric() || matches!(c, '-' | '_' | '.'))
-}
-
 /// Read and check one run record against the stages.
 fn load_run(
     record_path: &Path,
@@ -460,7 +388,7 @@ fn load_run(
             (Some(turned), turned_raw)
         }
     };
-    if !safe_id(&record.run.0) {
+    if !is_folder_name(&record.run.0) {
         problems.push(Problem::new(
             "run",
             &record.run,
@@ -504,6 +432,11 @@ fn load_run(
 }
 
 impl Plan {
+    /// The experiment, as its fits see it.
+    pub fn experiment(&self) -> Experiment<'_> {
+        Experiment { config_path: &self.config_path, config_dir: &self.config_dir, config_sha256: &self.config_sha256 }
+    }
+
     /// Two record files with the same run id would write to the same output folder.
     fn check_unique_runs(&self) -> Result<(), Vec<Diagnostic>> {
         let mut first: BTreeMap<&str, &Path> = BTreeMap::new();

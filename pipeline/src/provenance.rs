@@ -77,13 +77,22 @@ impl RunInputs {
     ///
     /// # Errors
     /// The file cannot be read (the OS error) or holds no run and inputs.
-    pub fn read(path: &Path) -> Result<RunInputs, String> {
-        let text =
-            std::fs::read_to_string(path).map_err(|e| format!("cannot read the run's provenance record: {e}"))?;
-        serde_json::from_str(&text).map_err(|e| {
-            format!("found a file that is not a run's provenance record ({e}), expected JSON with `run` and `inputs`")
-        })
+    pub fn read(path: &Path) -> Result<RunInputs, RecordError> {
+        let text = std::fs::read_to_string(path).map_err(RecordError::Read)?;
+        serde_json::from_str(&text).map_err(RecordError::NotARecord)
     }
+}
+
+/// Why a run's provenance record could not be read back. The messages leave out the path:
+/// the caller's diagnostic names the file.
+#[derive(Debug, thiserror::Error)]
+pub enum RecordError {
+    /// The file cannot be read.
+    #[error("cannot read the run's provenance record: {0}")]
+    Read(#[source] std::io::Error),
+    /// The file is no such record.
+    #[error("found a file that is not a run's provenance record ({0}), expected JSON with `run` and `inputs`")]
+    NotARecord(#[source] serde_json::Error),
 }
 
 /// The provenance record of an output made of several runs (the combined distribution).

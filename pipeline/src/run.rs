@@ -8,19 +8,15 @@ use stages::setup::RunData;
 use stages::{Origin, RunContext, StageError};
 use tracing::{debug, info, info_span, warn};
 
-use crate::error::{Diagnostic, RunFailure};
+use crate::error::{without_panics, Diagnostic, RunFailure};
+use crate::fit::{run_fits, FitCounts};
+use crate::layout::{
+    ANGULAR_DISTRIBUTION_CSV, ANGULAR_DISTRIBUTION_PARQUET, ANGULAR_DISTRIBUTION_PROVENANCE_JSON, COVARIANCE_CSV,
+    CROSS_SECTIONS_CSV, CROSS_SECTIONS_PARQUET, PROVENANCE_JSON, PROVENANCE_KEY,
+};
 use crate::plan::{LoadedRun, Plan};
 use crate::provenance::{record_time_s, rfc3339_utc, CombinedProvenance, MadeWith, Provenance, RunInputs};
 use crate::tables::{csv_bytes, is_csv, parquet_bytes, read_table, write_all_atomic};
-
-/// File names of one run's outputs inside `<out>/<run>/`.
-pub const CROSS_SECTIONS_PARQUET: &str = "cross_sections.parquet";
-/// CSV copy of the same table.
-pub const CROSS_SECTIONS_CSV: &str = "cross_sections.csv";
-/// Provenance record beside the tables.
-pub const PROVENANCE_JSON: &str = "provenance.json";
-/// Key of the provenance record in the Parquet file metadata.
-pub const PROVENANCE_KEY: &str = "xsflow.provenance";
 
 /// The reduced table of one run and how it was made.
 pub struct Reduced {
@@ -68,7 +64,7 @@ fn reduce_raw(plan: &Plan, run: &LoadedRun) -> Result<(DataFrame, RawOutputs), V
         RunData::Spectra => crate::events::reduce_spectra(path, raw),
         _ => crate::events::reduce_events(path, raw),
     }
-    .map_err(|m| vec![Diagnostic::new(path, "", m)])?;
+    .map_err(|e| vec![Diagnostic::new(path, "", e.to_string())])?;
     if result.tally.events == 0 {
         warn!(run = %run.record.run, file = %path.display(), "the file holds no events: every yield is zero");
     }
@@ -106,24 +102,6 @@ pub fn reduce_run(plan: &Plan, run: &LoadedRun) -> Result<Reduced, Vec<Diagnosti
 /// tests use it to show that a panic fails one run and the others go on.
 pub const PANIC_RUN_ENV: &str = "XSFLOW_TEST_PANIC_RUN";
 
-/// Run `work`, turning a panic (a defect of xsflow, never the user's input) into a failure
-/// of that one run or fit, reported against `file` with the panic's message, so that the
-/// other runs of a batch still finish. The panic's default report on stderr stays.
-///
-/// # Errors
-/// The panic's message.
-pub fn without_panics<T>(file: &Path, work: impl FnOnce() -> T) -> Result<T, Diagnostic> {
-    std::panic::catch_unwind(std::panic::AssertUnwindSafe(work)).map_err(|payload| {
-        let message = payload
-            .downcast_ref::<&str>()
-            .map(|s| (*s).to_string())
-            .or_else(|| payload.downcast_ref::<String>().cloned())
-            .unwrap_or_else(|| "no message".into());
-        Diagnostic::new(file, "", format!("internal error (a defect of xsflow, not of this input): {message}"))
-            .with_help("the other runs went on; please report this with the run's files")
-    })
-}
-
 fn read_and_reduce(plan: &Plan, run: &LoadedRun) -> Result<Reduced, Vec<Diagnostic>> {
     if cfg!(debug_assertions) && std::env::var(PANIC_RUN_ENV).is_ok_and(|r| r == run.record.run.0) {
         panic!("{PANIC_RUN_ENV} asked run {} to panic", run.record.run.0);
@@ -137,8 +115,8 @@ fn read_and_reduce(plan: &Plan, run: &LoadedRun) -> Result<Reduced, Vec<Diagnost
         vec![Diagnostic::new(yields, "", format!("{what}: {e}"))]
     })?;
     let (raw, raw_outputs) = if run.data == RunData::Yields {
-        let t = read_table(yields).map_err(|m| {
-            vec![Diagnostic::new(yields, "", m)
+        let t = read_table(yields).map_err(|e| {
+            vec![Diagnostic::new(yields, "", e.to_string())
                 .with_help("a yields table needs columns detector, state, counts_gross (schemas/yields.schema.json)")]
         })?;
         (t, None)
@@ -298,9 +276,6 @@ pub struct Summary {
     pub fits_failed: usize,
 }
 
-/// Folder of the fits inside the output folder.
-pub const FITS_DIR: &str = "fits";
-
 /// Reduce every run of the plan into `out_dir`; failures are returned, not fatal.
 pub fn reduce_all(plan: &Plan, out_dir: &Path) -> (Summary, Vec<RunFailure>) {
     let mut summary = Summary::default();
@@ -342,21 +317,18 @@ pub fn combine_then_fit(
 ) {
     let frames: Vec<DataFrame> = tables.iter().map(|(t, _)| t.clone()).collect();
     let runs: Vec<RunInputs> = tables.iter().map(|(_, r)| r.clone()).collect();
-    match combine_and_write(plan, &frames, &runs, out_dir) {
-        Ok(Some(combined)) => run_fits(plan, &[combined], &runs, out_dir, summary, failures),
-        Ok(None) => run_fits(plan, &frames, &runs, out_dir, summary, failures),
-        Err(d) => failures.push(RunFailure { run: "combination".into(), problems: vec![d] }),
-    }
+    let experiment = plan.experiment();
+    let fitted = match combine_and_write(plan, &frames, &runs, out_dir) {
+        Ok(Some(combined)) => run_fits(&plan.fits, &experiment, &[combined], &runs, out_dir, failures),
+        Ok(None) => run_fits(&plan.fits, &experiment, &frames, &runs, out_dir, failures),
+        Err(d) => {
+            failures.push(RunFailure { run: "combination".into(), problems: vec![d] });
+            FitCounts::default()
+        }
+    };
+    summary.fits_ok += fitted.ok;
+    summary.fits_failed += fitted.failed;
 }
-
-/// File names of the combined distribution in the output folder.
-pub const ANGULAR_DISTRIBUTION_PARQUET: &str = "angular_distribution.parquet";
-/// Its CSV copy.
-pub const ANGULAR_DISTRIBUTION_CSV: &str = "angular_distribution.csv";
-/// Its covariance matrix, long format (i, j, covariance).
-pub const COVARIANCE_CSV: &str = "angular_distribution_covariance.csv";
-/// The provenance record of both (also in the Parquet file's metadata).
-pub const ANGULAR_DISTRIBUTION_PROVENANCE_JSON: &str = "angular_distribution_provenance.json";
 
 /// Combine the reduced tables of the runs into one angular distribution per state
 /// ([`stages::combine`]), write it with its covariance matrix and its provenance record
@@ -462,84 +434,6 @@ pub fn combine_and_write(
     Ok(Some(table))
 }
 
-/// Run the plan's fits on the reduced tables (made from `runs`), counting them in `summary`
-/// and their failures in `failures`.
-pub fn run_fits(
-    plan: &Plan,
-    tables: &[DataFrame],
-    runs: &[RunInputs],
-    out_dir: &Path,
-    summary: &mut Summary,
-    failures: &mut Vec<RunFailure>,
-) {
-    for f in &plan.fits {
-        let _span = info_span!("fit", fit = %f.name).entered();
-        let result = without_panics(&f.loaded.path, || run_fit(plan, f, tables, runs, out_dir)).and_then(|r| r);
-        match result {
-            Ok(true) => summary.fits_ok += 1,
-            Ok(false) => {
-                summary.fits_failed += 1;
-                failures.push(RunFailure {
-                    run: format!("fit {}", f.name),
-                    problems: vec![Diagnostic::new(
-                        &f.loaded.path,
-                        "",
-                        "the fit did not converge; fit.yaml holds its last state and the reason",
-                    )],
-                });
-            }
-            Err(d) => {
-                summary.fits_failed += 1;
-                warn!("fit failed");
-                failures.push(RunFailure { run: format!("fit {}", f.name), problems: vec![d] });
-            }
-        }
-    }
-}
-
-/// Fit the stacked tables of the reduced runs; `Ok(converged)`.
-fn run_fit(
-    plan: &Plan,
-    f: &crate::plan::PlannedFit,
-    tables: &[DataFrame],
-    runs: &[RunInputs],
-    out_dir: &Path,
-) -> Result<bool, Diagnostic> {
-    if tables.is_empty() {
-        return Err(Diagnostic::new(&plan.config_path, &f.key, "no run was reduced, so there is nothing to fit"));
-    }
-    let stacked = crate::fit::stack(tables.to_vec()).map_err(|m| Diagnostic::new(&plan.config_path, &f.key, m))?;
-    let mut output = crate::fit::run(&f.loaded, &stacked, &f.state)
-        .map_err(|m| Diagnostic::new(&f.loaded.path, "", format!("fit of state {}: {m}", f.state)))?;
-    let record = crate::fit::FitProvenance {
-        program: "xsflow",
-        version: env!("CARGO_PKG_VERSION"),
-        // Relative to the config's folder, like the inputs, so that the record does not
-        // depend on where xsflow was started.
-        fit_file: f
-            .loaded
-            .path
-            .strip_prefix(&plan.config_dir)
-            .unwrap_or(&f.loaded.path)
-            .to_string_lossy()
-            .replace('\\', "/"),
-        fit_sha256: crate::provenance::sha256_hex(&f.loaded.bytes),
-        inputs: runs.iter().flat_map(|r| r.inputs.iter().cloned()).collect(),
-        created_utc: rfc3339_utc(record_time_s()),
-    };
-    let json = serde_json::to_string_pretty(&record)
-        .map_err(|e| Diagnostic::new(&f.loaded.path, "", format!("cannot encode the fit's provenance: {e}")))?;
-    let dir = out_dir.join(FITS_DIR).join(&f.name);
-    crate::fit::write(&dir, &mut output, &json)?;
-    let r = &output.report;
-    if r.converged {
-        info!(chi2_per_ndf = r.chi2_per_ndf.unwrap_or(f64::NAN), dir = %dir.display(), "fit done");
-    } else {
-        warn!(termination = %r.termination, "fit did not converge");
-    }
-    Ok(r.converged)
-}
-
 /// Every problem `xsflow check` can find in the runs without reducing them: record problems
 /// and yields-table problems (columns, values, detectors).
 pub fn check_runs(plan: &Plan) -> Vec<RunFailure> {
@@ -551,12 +445,12 @@ pub fn check_runs(plan: &Plan) -> Vec<RunFailure> {
             Ok(run) if run.data != RunData::Yields => match run.raw(plan) {
                 Some(raw) => crate::events::check_file(&run.yields_path, raw, run.data == RunData::Spectra)
                     .err()
-                    .map(|m| vec![Diagnostic::new(&run.yields_path, "", m)])
+                    .map(|e| vec![Diagnostic::new(&run.yields_path, "", e.to_string())])
                     .unwrap_or_default(),
                 None => Vec::new(),
             },
             Ok(run) => match read_table(&run.yields_path) {
-                Err(m) => vec![Diagnostic::new(&run.yields_path, "", m)],
+                Err(e) => vec![Diagnostic::new(&run.yields_path, "", e.to_string())],
                 Ok(raw) => match stages::yields::prepare(&raw, run.setup(plan), &run.record.run.0) {
                     Err(errs) => errs.iter().map(|e| table_diagnostic(&run.yields_path, "", e)).collect(),
                     Ok(prepared) => plan

@@ -11,12 +11,35 @@ use polars::prelude::*;
 /// Table formats by extension.
 const ACCEPTED: &str = ".csv, .parquet (or .pq)";
 
+/// Why a table file (or an event file) could not be read. The messages leave out the
+/// path: the caller's diagnostic names the file.
+#[derive(Debug, thiserror::Error)]
+pub enum TableError {
+    /// The file cannot be opened.
+    #[error("cannot open it: {0}")]
+    Open(#[source] std::io::Error),
+    /// The reader rejects the file.
+    #[error("cannot read it as {format}: {source}")]
+    Decode {
+        /// `CSV`, `Parquet` or `Arrow IPC`.
+        format: &'static str,
+        /// The reader's error.
+        source: PolarsError,
+    },
+    /// An extension that names no table format.
+    #[error("unknown table format `.{extension}`; accepted: {ACCEPTED}")]
+    UnknownFormat {
+        /// The extension found (lower case, empty when there is none).
+        extension: String,
+    },
+}
+
 /// Read a whole table from a CSV (with a header line) or Parquet file.
 ///
 /// # Errors
 /// Unreadable file, unknown extension, or a file the reader rejects; the message says
 /// which.
-pub fn read_table(path: &Path) -> Result<DataFrame, String> {
+pub fn read_table(path: &Path) -> Result<DataFrame, TableError> {
     let ext = path.extension().and_then(|e| e.to_str()).unwrap_or("").to_ascii_lowercase();
     match ext.as_str() {
         "csv" => CsvReadOptions::default()
@@ -24,12 +47,12 @@ pub fn read_table(path: &Path) -> Result<DataFrame, String> {
             .with_infer_schema_length(None)
             .try_into_reader_with_file_path(Some(path.to_path_buf()))
             .and_then(|r| r.finish())
-            .map_err(|e| format!("cannot read it as CSV: {e}")),
+            .map_err(|source| TableError::Decode { format: "CSV", source }),
         "parquet" | "pq" => {
-            let file = File::open(path).map_err(|e| format!("cannot open it: {e}"))?;
-            ParquetReader::new(file).finish().map_err(|e| format!("cannot read it as Parquet: {e}"))
+            let file = File::open(path).map_err(TableError::Open)?;
+            ParquetReader::new(file).finish().map_err(|source| TableError::Decode { format: "Parquet", source })
         }
-        _ => Err(format!("unknown table format `.{ext}`; accepted: {ACCEPTED}")),
+        _ => Err(TableError::UnknownFormat { extension: ext }),
     }
 }
 
@@ -49,6 +72,14 @@ pub fn csv_bytes(table: &mut DataFrame) -> PolarsResult<Vec<u8>> {
     Ok(out)
 }
 
+/// A table as CSV text ([`csv_bytes`]), for printing.
+///
+/// # Errors
+/// The writer's error.
+pub fn csv_text(table: &mut DataFrame) -> PolarsResult<String> {
+    csv_bytes(table).map(|bytes| String::from_utf8_lossy(&bytes).into_owned())
+}
+
 /// A table as Parquet bytes with file-level key-value metadata (zstd, no parallel
 /// encoding, so the bytes depend only on the data).
 ///
@@ -64,18 +95,14 @@ pub fn parquet_bytes(table: &mut DataFrame, metadata: Vec<(String, String)>) -> 
 }
 
 /// A file that could not be written, and why.
-#[derive(Debug)]
+#[derive(Debug, thiserror::Error)]
+#[error("cannot write {}: {error}", .path.display())]
 pub struct WriteError {
     /// The file (or folder) being written.
     pub path: std::path::PathBuf,
     /// The I/O error.
+    #[source]
     pub error: std::io::Error,
-}
-
-impl std::fmt::Display for WriteError {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        write!(f, "cannot write {}: {}", self.path.display(), self.error)
-    }
 }
 
 impl WriteError {
@@ -147,14 +174,38 @@ pub fn write_all_atomic(files: &[(std::path::PathBuf, Vec<u8>)]) -> Result<(), W
 ///
 /// # Errors
 /// An unreadable file or one that is not Parquet.
-pub fn parquet_metadata(path: &Path) -> Result<Vec<(String, String)>, String> {
-    let file = File::open(path).map_err(|e| format!("cannot open it: {e}"))?;
+pub fn parquet_metadata(path: &Path) -> Result<Vec<(String, String)>, TableError> {
+    let file = File::open(path).map_err(TableError::Open)?;
     let mut reader = ParquetReader::new(file);
-    let meta = reader.get_metadata().map_err(|e| format!("cannot read it as Parquet: {e}"))?;
+    let meta = reader.get_metadata().map_err(|source| TableError::Decode { format: "Parquet", source })?;
     Ok(meta
         .key_value_metadata()
         .iter()
         .flatten()
         .map(|kv| (kv.key.clone(), kv.value.clone().unwrap_or_default()))
         .collect())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_table_that_cannot_be_read_says_why_without_the_path() {
+        let tmp = tempfile::tempdir().expect("scratch");
+        let garbage = tmp.path().join("garbage.parquet");
+        std::fs::write(&garbage, "not parquet").expect("write");
+        // (file, the start of the message: the caller's diagnostic names the file)
+        let cases = [
+            (tmp.path().join("yields.txt"), "unknown table format `.txt`; accepted: .csv, .parquet (or .pq)"),
+            (tmp.path().join("yields"), "unknown table format `.`; accepted"),
+            (tmp.path().join("missing.parquet"), "cannot open it: No such file or directory"),
+            (garbage, "cannot read it as Parquet: "),
+        ];
+        for (path, start) in cases {
+            let msg = read_table(&path).expect_err("unreadable").to_string();
+            assert!(msg.starts_with(start), "{}: {msg}", path.display());
+            assert!(!msg.contains(&tmp.path().display().to_string()), "{msg}");
+        }
+    }
 }

@@ -4,11 +4,13 @@
 use std::fmt::Write as _;
 use std::path::Path;
 
+use polars::prelude::{Column, DataFrame, PolarsResult};
 use stages::theory::{Curve, ModelConfig};
 
 use crate::cli::TableFormat;
 use crate::config::YamlFile;
 use crate::error::Diagnostic;
+use crate::tables::csv_text;
 
 /// Read and check a model file, and evaluate it at the CM angles.
 ///
@@ -20,20 +22,30 @@ pub fn curve(path: &Path, angles_deg: &[f64]) -> Result<Curve, Vec<Diagnostic>> 
     model.evaluate(angles_deg).map_err(|problems| problems.iter().map(|p| file.problem(p)).collect())
 }
 
-/// The curve in the chosen format.
-pub fn render(curve: &Curve, format: TableFormat) -> String {
-    match format {
+/// The curve's rows as a table: `theta_cm_deg`, `dsdo_cm_mb_sr`, `ratio_rutherford` (empty
+/// for a neutral projectile).
+///
+/// # Errors
+/// The table library's error.
+pub fn table(curve: &Curve) -> PolarsResult<DataFrame> {
+    let rows = &curve.rows;
+    DataFrame::new_infer_height(vec![
+        Column::new("theta_cm_deg".into(), rows.iter().map(|r| r.theta_cm_deg).collect::<Vec<_>>()),
+        Column::new("dsdo_cm_mb_sr".into(), rows.iter().map(|r| r.dsdo_cm_mb_sr).collect::<Vec<_>>()),
+        Column::new("ratio_rutherford".into(), rows.iter().map(|r| r.ratio_rutherford).collect::<Vec<_>>()),
+    ])
+}
+
+/// The curve in the chosen format; CSV through the one CSV writer ([`csv_text`]).
+///
+/// # Errors
+/// The table library's error (CSV only).
+pub fn render(curve: &Curve, format: TableFormat) -> PolarsResult<String> {
+    Ok(match format {
         TableFormat::Json => {
             serde_json::to_string_pretty(curve).unwrap_or_else(|e| format!("{{\"error\": \"{e}\"}}")) + "\n"
         }
-        TableFormat::Csv => {
-            let mut s = String::from("theta_cm_deg,dsdo_cm_mb_sr,ratio_rutherford\n");
-            for r in &curve.rows {
-                let ratio = r.ratio_rutherford.map(|x| x.to_string()).unwrap_or_default();
-                let _ = writeln!(s, "{},{},{ratio}", r.theta_cm_deg, r.dsdo_cm_mb_sr);
-            }
-            s
-        }
+        TableFormat::Csv => csv_text(&mut table(curve)?)?,
         TableFormat::Table => {
             let mut s = format!(
                 "model: {}  k = {:.6} 1/fm  eta = {:.6}  l_max = {}",
@@ -58,6 +70,44 @@ pub fn render(curve: &Curve, format: TableFormat) -> String {
                 let _ = writeln!(s, "{:>12.3}  {:>16.6e}  {ratio:>16}", r.theta_cm_deg, r.dsdo_cm_mb_sr);
             }
             s
+        }
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use stages::theory::CurveRow;
+
+    use super::*;
+
+    #[test]
+    fn csv_goes_through_the_one_writer_with_an_empty_ratio_for_a_neutral_projectile() {
+        let curve = |ratio_rutherford| Curve {
+            model: "test",
+            rows: vec![
+                CurveRow { theta_cm_deg: 30.0, dsdo_cm_mb_sr: 1500.0, ratio_rutherford },
+                CurveRow { theta_cm_deg: 30.25, dsdo_cm_mb_sr: 0.1 + 0.2, ratio_rutherford },
+            ],
+            sigma_reaction_mb: None,
+            sigma_total_mb: None,
+            sigma_elastic_mb: None,
+            l_max: 0,
+            step_fm: None,
+            matching_radii_fm: None,
+            k_per_fm: 1.0,
+            eta: 0.0,
+        };
+        // (ratio to Rutherford of every row, the CSV: floats in their shortest round-trip
+        // form with a decimal point, a missing ratio as an empty field)
+        let cases = [
+            (
+                Some(0.5),
+                "theta_cm_deg,dsdo_cm_mb_sr,ratio_rutherford\n30.0,1500.0,0.5\n30.25,0.30000000000000004,0.5\n",
+            ),
+            (None, "theta_cm_deg,dsdo_cm_mb_sr,ratio_rutherford\n30.0,1500.0,\n30.25,0.30000000000000004,\n"),
+        ];
+        for (ratio, want) in cases {
+            assert_eq!(render(&curve(ratio), TableFormat::Csv).expect("csv"), want, "{ratio:?}");
         }
     }
 }

@@ -1,0 +1,47 @@
+//! The names in an output folder, in one place for every module that writes or reads one
+//! (runs, the combined distribution, fits, batches), so that none of them imports another
+//! for a file name; and the rule for ids that become folder names (run ids, fit names).
+
+/// One run's cross-section table, in `<out>/<run>/`.
+pub const CROSS_SECTIONS_PARQUET: &str = "cross_sections.parquet";
+/// CSV copy of the same table.
+pub const CROSS_SECTIONS_CSV: &str = "cross_sections.csv";
+/// Provenance record beside the tables of a run or of a fit.
+pub const PROVENANCE_JSON: &str = "provenance.json";
+/// Key of the provenance record in the Parquet file metadata.
+pub const PROVENANCE_KEY: &str = "xsflow.provenance";
+
+/// File names of the combined distribution in the output folder.
+pub const ANGULAR_DISTRIBUTION_PARQUET: &str = "angular_distribution.parquet";
+/// Its CSV copy.
+pub const ANGULAR_DISTRIBUTION_CSV: &str = "angular_distribution.csv";
+/// Its covariance matrix, long format (i, j, covariance).
+pub const COVARIANCE_CSV: &str = "angular_distribution_covariance.csv";
+/// The provenance record of both (also in the Parquet file's metadata).
+pub const ANGULAR_DISTRIBUTION_PROVENANCE_JSON: &str = "angular_distribution_provenance.json";
+
+/// Folder of the fits inside the output folder (`<out>/fits/<name>/`).
+pub const FITS_DIR: &str = "fits";
+/// A fit's report as JSON, in its folder (also `fit.yaml`, `curve.csv`, `curve.parquet`).
+pub const FIT_JSON: &str = "fit.json";
+
+/// Whether an id may name an output folder: letters, digits, '-', '_' and '.', not
+/// starting with '.' (no hidden folders, no `..`, no separators).
+pub fn is_folder_name(id: &str) -> bool {
+    !id.starts_with('.') && id.chars().all(|c| c.is_ascii_alphanumeric() || matches!(c, '-' | '_' | '.'))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn folder_names_are_plain() {
+        // (id, accepted)
+        let cases =
+            [("0101", true), ("run-7_b.2", true), (".hidden", false), ("..", false), ("a/b", false), ("a b", false)];
+        for (id, ok) in cases {
+            assert_eq!(is_folder_name(id), ok, "{id:?}");
+        }
+    }
+}
