@@ -550,3 +550,31 @@ fn issue_17_written_windows_of_a_double_valued_angle_name_their_branch() {
     let yields = std::fs::read_to_string(tmp.path().join("out/h1/yields.csv")).expect("yields");
     assert!(yields.contains("F10,elastic,1,1.0,") && yields.contains("F10,elastic,2,1.0,"), "{yields}");
 }
+
+#[test]
+fn issue_17_check_refuses_what_reduce_refuses_in_a_yields_table() {
+    // A yields table typed by hand for a double-valued angle, without `branch`: `reduce`
+    // cannot tell the two peaks apart, and `check` now runs the stages on the table too and
+    // says the same. An unknown state name likewise.
+    let tmp = tempfile::tempdir().expect("scratch");
+    heavy_on_light(tmp.path(), "", "det,adc\n");
+    std::fs::write(tmp.path().join("run.run.yaml"), "run: h1\nyields_file: yields.csv\ncharge_c: 1.0e-6\n")
+        .expect("record");
+    for (yields, message) in [
+        (
+            "detector,state,counts_gross\nF10,elastic,40\n",
+            "sees state elastic at 55.7149 MeV (branch 1) and 10.3098 MeV (branch 2)",
+        ),
+        ("detector,state,counts_gross\nF10,ground,40\n", "found ground, expected a state of reaction.states (elastic)"),
+    ] {
+        std::fs::write(tmp.path().join("yields.csv"), yields).expect("yields");
+        let check = text(&xsflow(tmp.path(), &["check", "experiment.yaml"]));
+        let reduced = reduce(tmp.path());
+        assert_ne!(reduced.status.code(), Some(0));
+        assert!(
+            check.contains(message) && text(&reduced).contains(message),
+            "check:\n{check}\nreduce:\n{}",
+            text(&reduced)
+        );
+    }
+}

@@ -133,29 +133,7 @@ fn read_and_reduce(plan: &Plan, run: &LoadedRun) -> Result<Reduced, Vec<Diagnost
     for c in &prepared.ignored_columns {
         warn!(run = %run.record.run, column = %c, "yields column is not part of the yields table and is ignored");
     }
-    let ctx = RunContext { setup, run: &run.record };
-    let mut table = prepared.table;
-    for s in &plan.stages {
-        let _span = info_span!("stage", stage = s.stage.name()).entered();
-        let key = format!("{} ({})", s.key, s.stage.name());
-        for need in s.stage.needs() {
-            if table.column(need).is_err() {
-                let e =
-                    StageError::MissingColumn { column: need.to_string(), found: stages::table::column_list(&table) };
-                return Err(vec![table_diagnostic(yields, &key, &e)
-                    .with_help("add the column to the yields table, or a stage that adds it earlier in the config")]);
-            }
-        }
-        table = s.stage.run(table, &ctx).map_err(|e| {
-            let file = match e.origin() {
-                Origin::Table => yields,
-                Origin::RunRecord => &run.record_path,
-                Origin::Config => &plan.config_path,
-            };
-            vec![table_diagnostic(file, &key, &e)]
-        })?;
-        debug!(rows = table.height(), "stage done");
-    }
+    let table = run_stages(plan, run, prepared.table)?;
     let base = &plan.config_dir;
     let provenance = Provenance {
         made_with: MadeWith::new(&plan.config_path, plan.config_sha256.clone()),
@@ -434,8 +412,43 @@ pub fn combine_and_write(
     Ok(Some(table))
 }
 
-/// Every problem `xsflow check` can find in the runs without reducing them: record problems
-/// and yields-table problems (columns, values, detectors).
+/// The configured stages, in order, on a run's first stage table: what `reduce` does to it
+/// and what `check` tries on yields tables (they are small), so that `check` refuses what
+/// `reduce` would.
+///
+/// # Errors
+/// The first stage that cannot run, with the file its problem lies in.
+fn run_stages(plan: &Plan, run: &LoadedRun, mut table: DataFrame) -> Result<DataFrame, Vec<Diagnostic>> {
+    let yields = &run.yields_path;
+    let ctx = RunContext { setup: run.setup(plan), run: &run.record };
+    for s in &plan.stages {
+        let _span = info_span!("stage", stage = s.stage.name()).entered();
+        let key = format!("{} ({})", s.key, s.stage.name());
+        for need in s.stage.needs() {
+            if table.column(need).is_err() {
+                let e =
+                    StageError::MissingColumn { column: need.to_string(), found: stages::table::column_list(&table) };
+                return Err(vec![table_diagnostic(yields, &key, &e)
+                    .with_help("add the column to the yields table, or a stage that adds it earlier in the config")]);
+            }
+        }
+        table = s.stage.run(table, &ctx).map_err(|e| {
+            let file = match e.origin() {
+                Origin::Table => yields,
+                Origin::RunRecord => &run.record_path,
+                Origin::Config => &plan.config_path,
+            };
+            vec![table_diagnostic(file, &key, &e)]
+        })?;
+        debug!(rows = table.height(), "stage done");
+    }
+    Ok(table)
+}
+
+/// Every problem `xsflow check` can find in the runs without writing anything: record
+/// problems; for yields tables, the table's problems and then every stage run on it (so a
+/// state that cannot reach a detector, or a double-valued angle without its branch, is
+/// found); for event and spectrum files, their columns (the files may be large).
 pub fn check_runs(plan: &Plan) -> Vec<RunFailure> {
     let mut failures = Vec::new();
     for planned in &plan.runs {
@@ -453,21 +466,7 @@ pub fn check_runs(plan: &Plan) -> Vec<RunFailure> {
                 Err(e) => vec![Diagnostic::new(&run.yields_path, "", e.to_string())],
                 Ok(raw) => match stages::yields::prepare(&raw, run.setup(plan), &run.record.run.0) {
                     Err(errs) => errs.iter().map(|e| table_diagnostic(&run.yields_path, "", e)).collect(),
-                    Ok(prepared) => plan
-                        .stages
-                        .iter()
-                        .flat_map(|s| s.stage.needs().into_iter().map(move |n| (s, n)))
-                        .filter(|(_, need)| {
-                            stages::yields::OPTIONAL_COLUMNS.contains(need) && prepared.table.column(need).is_err()
-                        })
-                        .map(|(s, need)| {
-                            let e = StageError::MissingColumn {
-                                column: need.to_string(),
-                                found: stages::table::column_list(&prepared.table),
-                            };
-                            table_diagnostic(&run.yields_path, &format!("{} ({})", s.key, s.stage.name()), &e)
-                        })
-                        .collect(),
+                    Ok(prepared) => run_stages(plan, run, prepared.table).err().unwrap_or_default(),
                 },
             },
         };
