@@ -578,3 +578,18 @@ fn issue_17_check_refuses_what_reduce_refuses_in_a_yields_table() {
         );
     }
 }
+
+#[test]
+fn issue_17_a_tail_reaching_a_neighbouring_gate_is_reported() {
+    // 4He on 58Ni at 30°: the elastic peak and the 2+ state 1.454 MeV below, σ = 0.08 MeV;
+    // with 5 % of each peak in a tail of 0.2 MeV the elastic tail puts 0.012 % of its counts
+    // into the 2+ net counts (scipy.stats.exponnorm over the 2+ gates), more than the
+    // 0.01 % reported; without a tail nothing is said.
+    let tmp = tempfile::tempdir().expect("scratch");
+    let states = "{ name: elastic, excitation_mev: 0.0 }, { name: 2+, excitation_mev: 1.454 }";
+    for (tail, reported) in [("    low_energy_tail: { fraction: 0.05, length_mev: 0.2 }\n", true), ("", false)] {
+        one_detector(tmp.path(), states, &format!("  gates:\n    resolution_mev: 0.08\n{tail}"), "det,adc,pu\n");
+        let msg = text(&xsflow(tmp.path(), &["check", "experiment.yaml"]));
+        assert_eq!(msg.contains("of the counts of the elastic peak fall in the net counts of 2+"), reported, "{msg}");
+    }
+}

@@ -268,9 +268,7 @@ fn window_acceptance_matches_scipy_normal_distribution() {
     // other layouts (off-centre peaks, no gap, wide or narrow bands). Tolerance 1e-10:
     // statrs's erfc is good to about 5e-11 relative here (measured: 0.6826894921099 for
     // erf(1/√2) = 0.6826894921371), far below any physics need; scipy's is near 1e-16.
-    use stages::physics::peak_acceptance::{
-        gaussian_fraction, window_acceptance, EnergyInterval, GaussianPeak, WindowLayout,
-    };
+    use stages::physics::peak_acceptance::{peak_fraction, window_acceptance, EnergyInterval, PeakShape, WindowLayout};
     let rows = fixture_rows("window_acceptance.csv");
     assert_eq!(rows.len(), 11);
     for row in rows {
@@ -282,12 +280,8 @@ fn window_acceptance_matches_scipy_normal_distribution() {
             left: iv(-k - gap - width, -k - gap),
             right: iv(k + gap, k + gap + width),
         };
-        let peak = GaussianPeak { centroid_mev: mu, sigma_mev: 1.0, sigma_err_mev: 0.0 };
-        assert_relative_eq!(
-            gaussian_fraction(&layout.window, &peak),
-            num(&row, "window_fraction"),
-            max_relative = 1e-10
-        );
+        let peak = PeakShape { centroid_mev: mu, sigma_mev: 1.0, sigma_err_mev: 0.0, tail: None };
+        assert_relative_eq!(peak_fraction(&layout.window, &peak), num(&row, "window_fraction"), max_relative = 1e-10);
         assert_relative_eq!(window_acceptance(&layout, &peak).value, num(&row, "acceptance"), max_relative = 1e-10);
     }
 }

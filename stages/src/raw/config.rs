@@ -143,6 +143,10 @@ pub struct GatesConfig {
     /// uncertainty of each window's acceptance (`window_acceptance_err`).
     #[serde(default)]
     pub resolution_err_mev: f64,
+    /// A low-energy tail of the peaks, if the detectors show one; the window acceptance
+    /// then includes it. Used with `background: side_bands` only.
+    #[serde(default)]
+    pub low_energy_tail: Option<LowEnergyTailConfig>,
     /// Half width of the peak window in units of σ (default 3).
     #[serde(default = "three")]
     pub window_resolutions: f64,
@@ -159,6 +163,18 @@ pub struct GatesConfig {
     /// Written windows.
     #[serde(default)]
     pub windows: Vec<WindowConfig>,
+}
+
+/// A low-energy tail: a fraction of each peak's counts in the Gaussian convolved with an
+/// exponential towards low energy
+/// ([`peak_acceptance`](crate::physics::peak_acceptance)).
+#[derive(Debug, Clone, Copy, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct LowEnergyTailConfig {
+    /// Fraction of the counts in the tail, in [0, 1).
+    pub fraction: f64,
+    /// Mean length of the exponential in MeV; > 0.
+    pub length_mev: f64,
 }
 
 fn three() -> f64 {

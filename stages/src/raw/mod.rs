@@ -32,7 +32,8 @@ mod plan;
 
 pub use accumulate::{Accumulator, RawResult, Tally, YieldRow, PID_BINS};
 pub use config::{
-    BackgroundMethod, CalibrationConfig, EventColumns, GatesConfig, RawConfig, SpectrumColumns, WindowConfig,
+    BackgroundMethod, CalibrationConfig, EventColumns, GatesConfig, LowEnergyTailConfig, RawConfig, SpectrumColumns,
+    WindowConfig,
 };
 pub use peaks::{FittedPeak, PeakFitRecord, PEAK_FIT_MIN_COUNTS};
 pub use plan::{Gate, Interval, RawPlan, MAX_CHANNELS, UNKNOWN_DETECTOR};

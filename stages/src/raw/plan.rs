@@ -7,12 +7,12 @@
 use serde::Serialize;
 
 use crate::physics::kinematics::{Mode, Solution};
-use crate::physics::peak_acceptance::{window_acceptance, EnergyInterval, GaussianPeak, WindowLayout};
+use crate::physics::peak_acceptance::{window_acceptance, EnergyInterval, LowEnergyTail, PeakShape, WindowLayout};
 use crate::physics::polygon::polygon_problem;
 use crate::problem::Checks;
 use crate::{Problem, Setup};
 
-use super::{CalibrationConfig, GatesConfig, RawConfig, WindowConfig};
+use super::{BackgroundMethod, CalibrationConfig, GatesConfig, RawConfig, WindowConfig};
 
 /// A [low, high) interval in MeV.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
@@ -66,6 +66,9 @@ pub struct Gate {
     pub window_acceptance: f64,
     /// Its standard uncertainty, from `resolution_err_mev`.
     pub window_acceptance_err: f64,
+    /// The peak shape the acceptance is computed for.
+    #[serde(skip)]
+    pub(super) peak: PeakShape,
 }
 
 impl Gate {
@@ -127,6 +130,21 @@ impl RawConfig {
         let g = &self.gates;
         c.positive("gates.resolution_mev", g.resolution_mev);
         c.non_negative("gates.resolution_err_mev", g.resolution_err_mev);
+        if let Some(t) = g.low_energy_tail {
+            c.require(
+                (0.0..1.0).contains(&t.fraction),
+                "gates.low_energy_tail.fraction",
+                t.fraction,
+                "a fraction of the counts in [0, 1)",
+            );
+            c.positive("gates.low_energy_tail.length_mev", t.length_mev);
+            c.require(
+                self.background == BackgroundMethod::SideBands,
+                "gates.low_energy_tail",
+                "a tail with a peak-fit background",
+                "background: side_bands (the peak fit has Gaussian peaks only)",
+            );
+        }
         c.positive("gates.window_resolutions", g.window_resolutions);
         c.non_negative("gates.side_band_gap_resolutions", g.side_band_gap_resolutions);
         c.positive("gates.side_band_width_resolutions", g.side_band_width_resolutions);
@@ -278,6 +296,7 @@ impl RawConfig {
                     }
                 }
             }
+            warn_of_neighbours(&gates);
             let pid = self.pid.get(&det_id).or_else(|| self.pid.get("all")).cloned();
             if let Some(poly) = &pid {
                 if let Some(why) = polygon_problem(poly) {
@@ -357,6 +376,32 @@ fn branches_to_gate(
         }
     }
     branches
+}
+
+/// Fraction of one peak's counts above which its share in another gate's net counts is
+/// reported: 10⁻⁴, a tenth of the statistical error at a million counts.
+const NEIGHBOUR_SHARE_WARNING: f64 = 1e-4;
+
+/// Warn where a peak's width or tail reaches another gate of the same detector: its share
+/// A_jk (the acceptance of gate j for peak k, same formula) goes into that gate's net counts
+/// uncorrected.
+fn warn_of_neighbours(gates: &[(usize, Gate)]) {
+    for (_, gj) in gates {
+        for (_, gk) in gates.iter().filter(|(_, gk)| gk != gj) {
+            let layout =
+                WindowLayout { window: gj.window.energies(), left: gj.left.energies(), right: gj.right.energies() };
+            let share = window_acceptance(&layout, &gk.peak).value;
+            if share.abs() > NEIGHBOUR_SHARE_WARNING {
+                tracing::warn!(
+                    detector = %gj.detector,
+                    "{:.3} % of the counts of the {} peak fall in the net counts of {} (not corrected): move the gates apart, or fit the peaks",
+                    100.0 * share,
+                    gk.name(),
+                    gj.name()
+                );
+            }
+        }
+    }
 }
 
 /// The channels whose energy E(c) lies in `iv`, as the energy interval they cover, or None
@@ -445,7 +490,7 @@ impl GatePlace<'_> {
             format!("{}, {name}: no side-band channel inside the spectrum {spectrum}", self.det),
             "side bands that hold at least one channel",
         );
-        let peak = GaussianPeak {
+        let peak = PeakShape {
             // The kinematic energy for an automatic window (its middle before the snap to
             // whole channels), the written window's middle or its `peak_centroid_mev`.
             centroid_mev: written
@@ -453,6 +498,7 @@ impl GatePlace<'_> {
                 .unwrap_or(0.5 * (nominal.low_mev + nominal.high_mev)),
             sigma_mev: s,
             sigma_err_mev: g.resolution_err_mev,
+            tail: g.low_energy_tail.map(|t| LowEnergyTail { fraction: t.fraction, length_mev: t.length_mev }),
         };
         let layout = WindowLayout { window: window.energies(), left: left.energies(), right: right.energies() };
         let acceptance = window_acceptance(&layout, &peak);
@@ -475,6 +521,7 @@ impl GatePlace<'_> {
             right,
             window_acceptance: acceptance.value,
             window_acceptance_err: acceptance.err,
+            peak,
         })
     }
 }
