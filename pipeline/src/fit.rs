@@ -207,7 +207,7 @@ pub fn run(loaded: &LoadedFit, table: &DataFrame, state: &str) -> Result<FitOutp
     let (min, max) = loaded.fit.angle_range_deg();
     let (lo, hi) = ((first - 2.0).max(min), (last + 2.0).min(max));
     let angles: Vec<f64> = (0..).map(|i| lo + 0.5 * f64::from(i)).take_while(|a| *a <= hi).collect();
-    let rows = loaded.fit.curve(&values, nu, &angles, data.rutherford_convention)?;
+    let rows = loaded.fit.curve(&values, nu, &angles, data.rutherford_convention).map_err(|e| e.to_string())?;
     let has_ratio = rows.iter().any(|r| r.2.is_some());
     let curve = DataFrame::new_infer_height(vec![
         Column::new("theta_cm_deg".into(), rows.iter().map(|r| r.0).collect::<Vec<_>>()),

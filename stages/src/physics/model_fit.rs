@@ -32,6 +32,29 @@ use argmin::solver::brent::BrentRoot;
 use statrs::distribution::{ChiSquared, ContinuousCDF};
 
 use super::least_squares::{inverse_normal_matrix, minimise, LmOptions, Residuals, Termination};
+use super::optical::OpticalError;
+use super::PhysicsError;
+
+/// Why a model curve cannot be evaluated at some parameters.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum ShapeError {
+    /// A parameter outside the range where the model is defined.
+    #[error("{name} must be {expected}, found {value}")]
+    Parameter {
+        /// The parameter's key (e.g. `real.r0_fm`).
+        name: String,
+        /// Its value.
+        value: f64,
+        /// What is accepted.
+        expected: &'static str,
+    },
+    /// A point outside the model's table (no extrapolation is done).
+    #[error(transparent)]
+    Physics(#[from] PhysicsError),
+    /// The optical model could not be solved.
+    #[error(transparent)]
+    Optical(#[from] OpticalError),
+}
 
 /// A model curve: values at the data points for the shape parameters.
 pub trait Shape {
@@ -39,7 +62,7 @@ pub trait Shape {
     ///
     /// # Errors
     /// Parameters where the model cannot be evaluated, with the reason.
-    fn values(&self, p: &[f64], out: &mut [f64]) -> Result<(), String>;
+    fn values(&self, p: &[f64], out: &mut [f64]) -> Result<(), ShapeError>;
     /// Whether the values are linear in the parameters and the start values already solve
     /// the linear least-squares problem (then, with a fixed normalisation, no iteration is
     /// needed).
@@ -111,7 +134,11 @@ pub enum FitError {
     },
     /// The model cannot be evaluated at the start.
     #[error("the model cannot be evaluated at the start values: {0}")]
-    StartFails(String),
+    StartFails(ShapeError),
+    /// The model cannot be evaluated, or gives a non-finite value, at the point where the
+    /// minimiser stopped.
+    #[error("the model cannot be evaluated (or gives a non-finite value) where the minimiser stopped")]
+    EndFails,
 }
 
 /// A parameter's result.
@@ -243,7 +270,7 @@ struct Chi2<'a, S: Shape> {
 
 impl<S: Shape> Chi2<'_, S> {
     /// The shape's values, counted.
-    fn values(&self, p: &[f64], out: &mut [f64]) -> Result<(), String> {
+    fn values(&self, p: &[f64], out: &mut [f64]) -> Result<(), ShapeError> {
         self.calls.set(self.calls.get() + 1);
         self.shape.values(p, out)
     }
@@ -420,7 +447,7 @@ pub fn fit<S: Shape>(
     let (p, nu) = problem.to_external(&result);
     let mut r = vec![0.0; problem.rows()];
     if !problem.residuals_ext(&p, nu, &mut m, &mut r) {
-        return Err(FitError::StartFails("the model failed at the end point".into()));
+        return Err(FitError::EndFails);
     }
     let chi2: f64 = r.iter().map(|x| x * x).sum();
     // Covariance in the external parameters, from central differences.
@@ -538,7 +565,7 @@ struct Held<'a, S: Shape> {
 }
 
 impl<S: Shape> Shape for Held<'_, S> {
-    fn values(&self, p: &[f64], out: &mut [f64]) -> Result<(), String> {
+    fn values(&self, p: &[f64], out: &mut [f64]) -> Result<(), ShapeError> {
         let mut full = self.full.borrow_mut();
         let (before, after) = p.split_at(self.index);
         full[..self.index].copy_from_slice(before);
@@ -665,7 +692,7 @@ mod tests {
     /// y = a·exp(−b x) at fixed x.
     struct Decay(Vec<f64>);
     impl Shape for Decay {
-        fn values(&self, p: &[f64], out: &mut [f64]) -> Result<(), String> {
+        fn values(&self, p: &[f64], out: &mut [f64]) -> Result<(), ShapeError> {
             for (o, x) in out.iter_mut().zip(&self.0) {
                 *o = p[0] * (-p[1] * x).exp();
             }
@@ -724,7 +751,7 @@ mod tests {
     /// y = a + b x.
     struct Line(Vec<f64>);
     impl Shape for Line {
-        fn values(&self, p: &[f64], out: &mut [f64]) -> Result<(), String> {
+        fn values(&self, p: &[f64], out: &mut [f64]) -> Result<(), ShapeError> {
             for (o, x) in out.iter_mut().zip(&self.0) {
                 *o = p[0] + p[1] * x;
             }
@@ -766,5 +793,21 @@ mod tests {
             fit(&shape, &ok, &data, Normalisation::Free, &FitOptions::default()),
             Err(FitError::TooFewPoints { free: 3, points: 2, .. })
         ));
+        // A model that refuses its start says which parameter and why.
+        let e = fit(&Refuses, &[par("r", -1.0, None, None)], &data, Normalisation::Fixed, &FitOptions::default())
+            .expect_err("refused");
+        assert_eq!(e.to_string(), "the model cannot be evaluated at the start values: r must be > 0, found -1");
+    }
+
+    /// A model defined for r > 0 only.
+    struct Refuses;
+    impl Shape for Refuses {
+        fn values(&self, p: &[f64], out: &mut [f64]) -> Result<(), ShapeError> {
+            if p[0] <= 0.0 {
+                return Err(ShapeError::Parameter { name: "r".into(), value: p[0], expected: "> 0" });
+            }
+            out.fill(p[0]);
+            Ok(())
+        }
     }
 }
