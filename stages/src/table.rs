@@ -74,9 +74,15 @@ pub fn str_values(table: &DataFrame, name: &str) -> Result<Vec<String>, StageErr
 /// Add (or replace) `f64` columns.
 ///
 /// # Errors
-/// A column length that differs from the table height.
+/// A column length that differs from the table height (polars would broadcast a single
+/// value; a stage always computes one value per row, so that is a defect, not a shortcut).
 pub fn with_f64_columns(mut table: DataFrame, columns: Vec<(&str, Vec<f64>)>) -> Result<DataFrame, StageError> {
     for (name, values) in columns {
+        if values.len() != table.height() {
+            return Err(StageError::Table(PolarsError::ShapeMismatch(
+                format!("column `{name}` has {} values for a table of {} rows", values.len(), table.height()).into(),
+            )));
+        }
         table.with_column(Column::new(name.into(), values))?;
     }
     Ok(table)
@@ -163,10 +169,12 @@ mod tests {
         let base = || DataFrame::new_infer_height(vec![Column::new("a".into(), [1.0, 2.0])]).expect("table");
         // (columns to add, the table's columns afterwards and the values of `a`; None: refused)
         type Case = (Vec<(&'static str, Vec<f64>)>, Option<(&'static str, Vec<f64>)>);
-        let cases: [Case; 3] = [
+        let cases: [Case; 4] = [
             (vec![("b", vec![3.0, 4.0])], Some(("a, b", vec![1.0, 2.0]))),
             (vec![("a", vec![5.0, 6.0])], Some(("a", vec![5.0, 6.0]))),
             (vec![("b", vec![3.0, 4.0, 5.0])], None),
+            // polars alone would repeat a single value down the table.
+            (vec![("b", vec![3.0])], None),
         ];
         for (columns, want) in cases {
             let got = with_f64_columns(base(), columns.clone()).ok().map(|t| {
