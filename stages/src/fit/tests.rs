@@ -80,6 +80,8 @@ fn curve_tables_are_checked_and_interpolated_in_log_sigma() {
     // ln σ linear in angle: σ = e^{−θ/10} is exact between the points.
     let t: Vec<f64> = (0..5).map(|i| 10.0 * f64::from(i)).collect();
     let c = CurveTable::new(t.clone(), t.iter().map(|x| (-x / 10.0).exp()).collect()).expect("table");
+    // 1e-14: two logarithms, a weighted mean of them and an exponential, a few roundings of
+    // numbers of order 1.
     assert_relative_eq!(c.at(15.0).expect("inside"), (-1.5f64).exp(), max_relative = 1e-14);
     assert!(c.at(41.0).is_none());
 }
@@ -141,6 +143,8 @@ fn a_rutherford_fit_finds_the_scale_of_exact_data_in_either_convention() {
             rutherford_convention: convention,
         };
         let (report, values) = fit.run(&data, "elastic", "rutherford").expect("fit runs");
+        // 1e-9 (both): the relative step xtol = 1e-9 at which the minimiser stops; a scale
+        // alone is a linear problem, solved in one step (measured 2e-16).
         assert_relative_eq!(report.parameters[0].value, 1.1, max_relative = 1e-9);
         let curve = fit.curve(&values, report.parameters[0].value, &[45.0], convention).expect("curve");
         assert_relative_eq!(curve[0].2.expect("ratio"), 1.1, max_relative = 1e-9);
