@@ -420,7 +420,7 @@ mod tests {
             // 1e-14: round-off of the ~30 double-precision operations from masses to dσ/dΩ
             // (each ≤ 1.1e-16; measured ≤ 2.5e-15); the reference has 15 digits.
             assert_relative_eq!(row.dsdo_cm_mb_sr, want, max_relative = 1e-14);
-            // The ratio divides the same amplitude by itself: 1 up to one rounding.
+            // 1e-15: the ratio divides the same amplitude by itself, 1 up to one rounding.
             assert_relative_eq!(row.ratio_rutherford.expect("charged"), 1.0, max_relative = 1e-15);
         }
     }
