@@ -540,7 +540,6 @@ mod tests {
             assert_eq!(curve.sigma_total_mb.is_some(), total, "{yaml}");
             assert_eq!(curve.sigma_elastic_mb.is_some(), total, "{yaml}");
             assert_eq!((curve.step_fm.is_some(), curve.matching_radii_fm.is_some()), (numerics, numerics), "{yaml}");
-            assert_eq!(curve.model, model(&yaml).name());
         }
     }
 }
