@@ -92,8 +92,8 @@ mod tests {
     use crate::setup::testing::setup;
     use crate::yields::{ADDED_COLUMNS, OPTIONAL_COLUMNS, REQUIRED_COLUMNS};
 
-    fn entry(yaml: &str) -> Result<StageConfig, String> {
-        serde_yaml::from_str(yaml).map_err(|e| e.to_string())
+    fn entry(yaml: &str) -> Result<StageConfig, serde_yaml::Error> {
+        serde_yaml::from_str(yaml)
     }
 
     fn demo_setup() -> Setup {
@@ -135,7 +135,7 @@ mod tests {
         let mut available: Vec<&str> =
             REQUIRED_COLUMNS.iter().chain(&OPTIONAL_COLUMNS).chain(&ADDED_COLUMNS).copied().collect();
         for yaml in ENTRIES {
-            let stage = entry(yaml).and_then(|c| c.build(Some(&setup)).map_err(|p| format!("{p:?}"))).expect("builds");
+            let stage = entry(yaml).expect("parses").build(Some(&setup)).expect("builds");
             for need in stage.needs() {
                 assert!(available.contains(&need), "{} needs `{need}`; available: {available:?}", stage.name());
             }
@@ -161,7 +161,7 @@ mod tests {
         ];
         for (yaml, want) in cases {
             match entry(yaml) {
-                Err(message) => assert!(message.contains(want), "{yaml}: {message}"),
+                Err(e) => assert!(e.to_string().contains(want), "{yaml}: {e}"),
                 Ok(config) => {
                     let problems = config.build(Some(&setup)).err().unwrap_or_else(|| panic!("accepted: {yaml}"));
                     let keys: Vec<&str> = problems.iter().map(|p| p.key.as_str()).collect();
