@@ -126,6 +126,8 @@ fn fit_of_the_demo_writes_its_report_and_curve() {
     let curve = std::fs::read_to_string(tmp.path().join("out/curve.csv")).expect("curve");
     let first = curve.lines().nth(1).expect("row");
     let ratio: f64 = first.split(',').nth(2).expect("ratio").parse().expect("number");
+    // 1e-12: the curve is ν times Rutherford divided by the same Rutherford, two roundings,
+    // written with round-trip digits.
     assert!((ratio / nu - 1.0).abs() < 1e-12, "{ratio} vs {nu}");
     for f in ["fit.yaml", "fit.json", "curve.parquet"] {
         assert!(tmp.path().join("out").join(f).is_file(), "{f}");

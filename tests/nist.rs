@@ -163,6 +163,12 @@ fn fitter_reproduces_every_nist_strd_nonlinear_dataset_from_both_starts() {
                 continue;
             }
             // Significant digits agreeing: the log relative error of NIST's own assessments.
+            // Required: 6 for the parameters and the SSR (NIST certifies 11; 6 is what a
+            // careful double-precision solver reaches on the hardest sets), 3 for the standard
+            // deviations (they come from the curvature at the minimum, known to fewer
+            // digits); Lanczos1 2 and 2: its certified SSR is 1.4e-25, residuals at the
+            // round-off of double precision, so the SSR and the deviations built from it carry
+            // round-off only.
             let lre = |got: f64, want: f64| -((got - want).abs() / want.abs()).log10();
             let (sd_digits_needed, ssr_digits_needed) = if d.name == "Lanczos1" { (2.0, 2.0) } else { (3.0, 6.0) };
             let s2 = fit.ssr / (m - n) as f64;
@@ -225,7 +231,9 @@ fn peak_fit_reproduces_nist_gauss1_to_gauss3() {
                 let sd_digits = -((sd - want_sd[j]).abs() / want_sd[j]).log10();
                 assert!(sd_digits >= 3.0, "{name} start {}: sd {j} {sd} vs {}", k + 1, want_sd[j]);
             }
-            assert!((fit.chi2 / d.certified_ssr - 1.0).abs() < 1e-6, "{name}: SSR {}", fit.chi2);
+            // 1e-9 (tightened from 1e-6): NIST gives the SSR to 11 digits, and at the minimum
+            // it is second order in the parameters' error (measured 2.5e-11).
+            assert!((fit.chi2 / d.certified_ssr - 1.0).abs() < 1e-9, "{name}: SSR {}", fit.chi2);
         }
     }
 }

@@ -136,6 +136,8 @@ fn hand_counted_events_give_the_expected_yields_and_tallies() {
     let yields = std::fs::read_to_string(tmp.path().join("out/t1/yields.csv")).expect("yields");
     let row: Vec<f64> =
         yields.lines().nth(1).expect("row").split(',').skip(3).map(|x| x.parse().expect("number")).collect();
+    // 1e-12: whole counts and a background of 3 ± √3 from the side bands' counts times a
+    // width ratio of 1, written with round-trip digits (a few roundings at most).
     assert!((row[0] - 4.0).abs() < 1e-12, "gross {yields}");
     assert!((row[1] - 3.0).abs() < 1e-12 && (row[2] - 3f64.sqrt()).abs() < 1e-12, "background {yields}");
     // The window is channels 2000…2099, [19.995, 20.995) MeV, −5.05σ to +4.95σ about its
@@ -365,7 +367,8 @@ fn issue_11_five_states_in_one_peak_fit_reduce() {
     let fits = &raw_json(tmp.path(), "t1")["peak_fits"];
     assert_eq!(fits[0]["peaks"].as_array().map(Vec::len), Some(5), "{fits}");
     assert_eq!(fits[0]["converged"], true, "{fits}");
-    // Each area is 150 · σ/Δx · √(2π) ≈ 3008 counts filled by rounding, within the fit's error.
+    // Each area is 150 · σ/Δx · √(2π) ≈ 3008 counts filled by rounding, within three of the
+    // fit's standard errors (the rounding of each channel's count acts as noise).
     let want = 150.0 * sigma_mev / gain_mev * (2.0 * std::f64::consts::PI).sqrt();
     for peak in fits[0]["peaks"].as_array().expect("peaks") {
         let (area, err) = (peak["area"].as_f64().expect("area"), peak["area_err"].as_f64().expect("error"));

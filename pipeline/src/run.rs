@@ -358,7 +358,8 @@ pub fn combine_and_write(
     if rows.is_empty() {
         return Ok(None);
     }
-    let (points, cov) = stages::combine::combine(&rows, plan.combine.angle_tolerance_deg).map_err(fail)?;
+    let (points, cov) =
+        stages::combine::combine(&rows, plan.combine.angle_tolerance_deg).map_err(|e| fail(e.to_string()))?;
     let col = |name: &str, f: &dyn Fn(&stages::combine::Point) -> f64| {
         Column::new(name.into(), points.iter().map(f).collect::<Vec<_>>())
     };

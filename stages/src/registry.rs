@@ -85,3 +85,89 @@ impl StageConfig {
         })
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::setup::testing::setup;
+    use crate::yields::{ADDED_COLUMNS, OPTIONAL_COLUMNS, REQUIRED_COLUMNS};
+
+    fn entry(yaml: &str) -> Result<StageConfig, serde_yaml::Error> {
+        serde_yaml::from_str(yaml)
+    }
+
+    fn demo_setup() -> Setup {
+        setup("[{ id: A, theta_lab_deg: 30.0, aperture: { shape: given, solid_angle_msr: 1.0 } }]")
+    }
+
+    /// One entry per stage with the settings it needs, in the order of [`STAGE_TYPES`] (the
+    /// demo config's settings).
+    const ENTRIES: [&str; 8] = [
+        "{ type: subtract_background }",
+        "{ type: correct_dead_time, method: clock_ratio, method_rel_err: 0.002 }",
+        "{ type: compute_kinematics, mode: relativistic }",
+        "{ type: apply_efficiency }",
+        "{ type: compute_solid_angle }",
+        "{ type: normalise, mode: absolute, charge_rel_err: 0.01 }",
+        "{ type: compute_lab_cross_section }",
+        "{ type: transform_to_cm, rutherford: relativistic }",
+    ];
+
+    #[test]
+    fn every_type_parses_names_itself_and_builds_the_stage_of_that_name() {
+        let setup = demo_setup();
+        for (yaml, name) in ENTRIES.iter().zip(STAGE_TYPES) {
+            let config = entry(yaml).unwrap_or_else(|e| panic!("{yaml}: {e}"));
+            assert_eq!(config.type_name(), name, "{yaml}");
+            for with_setup in [Some(&setup), None] {
+                let stage = config.build(with_setup).unwrap_or_else(|p| panic!("{yaml}: {p:?}"));
+                assert_eq!(stage.name(), name, "{yaml}");
+            }
+        }
+    }
+
+    #[test]
+    fn in_the_usual_order_each_stage_finds_the_columns_it_needs() {
+        // Walking STAGE_TYPES in order, every column a stage needs is in the yields table
+        // (required, optional or added on reading) or added by an earlier stage; and every
+        // stage adds at least one column that no earlier one did.
+        let setup = demo_setup();
+        let mut available: Vec<&str> =
+            REQUIRED_COLUMNS.iter().chain(&OPTIONAL_COLUMNS).chain(&ADDED_COLUMNS).copied().collect();
+        for yaml in ENTRIES {
+            let stage = entry(yaml).expect("parses").build(Some(&setup)).expect("builds");
+            for need in stage.needs() {
+                assert!(available.contains(&need), "{} needs `{need}`; available: {available:?}", stage.name());
+            }
+            let adds = stage.adds();
+            assert!(adds.iter().any(|a| !available.contains(a)), "{} adds nothing new: {adds:?}", stage.name());
+            available.extend(adds);
+        }
+        for column in ["dsdo_lab_mb_sr", "dsdo_cm_mb_sr", "stat_err_mb_sr", "sys_err_mb_sr", "ratio_rutherford"] {
+            assert!(available.contains(&column), "`{column}` is never added");
+        }
+    }
+
+    #[test]
+    fn a_bad_entry_is_refused_with_its_key_or_the_accepted_types() {
+        let setup = demo_setup();
+        // (entry, the key of its problem, or a part of the parser's message)
+        let cases = [
+            ("{ type: fit }", "unknown variant `fit`, expected one of `subtract_background`, `correct_dead_time`"),
+            ("{ method: clock_ratio }", "missing field `type`"),
+            ("{ type: correct_dead_time, method: non_paralyzable }", "resolving_time_us"),
+            ("{ type: correct_dead_time, method: clock_ratio, method_rel_err: 1.5 }", "method_rel_err"),
+            ("{ type: normalise, charge_rel_err: -0.1 }", "charge_rel_err"),
+        ];
+        for (yaml, want) in cases {
+            match entry(yaml) {
+                Err(e) => assert!(e.to_string().contains(want), "{yaml}: {e}"),
+                Ok(config) => {
+                    let problems = config.build(Some(&setup)).err().unwrap_or_else(|| panic!("accepted: {yaml}"));
+                    let keys: Vec<&str> = problems.iter().map(|p| p.key.as_str()).collect();
+                    assert_eq!(keys, [want], "{yaml}");
+                }
+            }
+        }
+    }
+}

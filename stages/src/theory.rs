@@ -338,3 +338,208 @@ impl ModelConfig {
         })
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use approx::assert_relative_eq;
+
+    fn model(yaml: &str) -> ModelConfig {
+        serde_yaml::from_str(yaml).expect("the case parses")
+    }
+
+    /// The demo's optical model (invented parameters): 24 MeV ⁴He on ⁵⁸Ni.
+    const OPTICAL: &str = include_str!("../../sample-runs/alpha-ni58/theory-optical.yaml");
+
+    /// [`OPTICAL`] without its nuclear terms: the Coulomb field of a uniformly charged
+    /// sphere of reduced radius `r0_fm`, nothing else.
+    fn coulomb_only(r0_fm: &str) -> String {
+        OPTICAL
+            .replace("depth_mev: 150.0", "depth_mev: 0.0")
+            .replace("depth_mev: 20.0", "depth_mev: 0.0")
+            .replace("coulomb:      { r0_fm: 1.30 }", &format!("coulomb:      {{ r0_fm: {r0_fm} }}"))
+    }
+
+    #[test]
+    fn model_files_are_checked_key_by_key_and_every_problem_is_reported() {
+        let ruth = "model: rutherford\nreaction: { beam: 4He, target: 58Ni, energy_mev: 24.0 }\n";
+        let sphere = "model: hard_sphere\nreaction: { beam: n, target: 58Ni, energy_mev: 1.0 }\nradius_fm: 5.0\n";
+        // (model file, the keys of its problems)
+        let cases: Vec<(String, Vec<&str>)> = vec![
+            (OPTICAL.replace("a_fm: 0.60", "a_fm: -0.60"), vec!["potential.real.a_fm"]),
+            (OPTICAL.replace("20.0,  r0_fm: 1.40", "20.0,  r0_fm: 0.0"), vec!["potential.imag_volume.r0_fm"]),
+            (OPTICAL.replace("depth_mev: 150.0", "depth_mev: .nan"), vec!["potential.real.depth_mev"]),
+            (OPTICAL.replace("r0_fm: 1.30", "r0_fm: -1.30"), vec!["potential.coulomb.r0_fm"]),
+            (
+                format!("{OPTICAL}numerics: {{ step_fm: 0.0, matching_radius_fm: -1.0, accuracy: 0.1 }}\n"),
+                vec!["numerics.step_fm", "numerics.matching_radius_fm", "numerics.accuracy"],
+            ),
+            (OPTICAL.replace("energy_mev: 24.0", "energy_mev: 0.0"), vec!["reaction.energy_mev"]),
+            (
+                OPTICAL.replace("beam: 4He", "beam: 4Xx").replace("target: 58Ni", "target: 580Ni"),
+                vec!["reaction.beam", "reaction.target"],
+            ),
+            (ruth.replace("beam: 4He", "beam: n"), vec!["model"]),
+            (sphere.replace("radius_fm: 5.0", "radius_fm: 0.0"), vec!["radius_fm"]),
+            (sphere.replace("energy_mev: 1.0", "energy_mev: -1.0"), vec!["reaction.energy_mev"]),
+        ];
+        for (yaml, keys) in cases {
+            let problems = model(&yaml).evaluate(&[30.0]).err().unwrap_or_else(|| panic!("accepted:\n{yaml}"));
+            let found: Vec<&str> = problems.iter().map(|p| p.key.as_str()).collect();
+            assert_eq!(found, keys, "{yaml}");
+        }
+        let problems = model(&OPTICAL.replace("a_fm: 0.60", "a_fm: -0.60")).waves().expect_err("refused");
+        assert_eq!((problems[0].found.as_str(), problems[0].expected.as_str()), ("-0.6", "a finite number > 0"));
+        for yaml in [OPTICAL, ruth, sphere] {
+            assert!(model(yaml).evaluate(&[30.0]).is_ok(), "{yaml}");
+        }
+    }
+
+    #[test]
+    fn the_rutherford_model_is_the_rutherford_formula() {
+        // dσ/dΩ = (Z_a Z_A α ħc / (4 E_cm))² / sin⁴(θ/2), E_cm = E_lab m_A/(m_a + m_A) with the
+        // nuclear masses of `nuclide` (AME2020 atomic masses, CODATA 2018 u and m_e, Lunney
+        // et al. electron binding), evaluated independently with mpmath 1.3.0 at 30 digits
+        // (formula: e.g. H. Goldstein, Classical Mechanics, 2nd ed., Eq. (3-102), from memory).
+        // (model file, θ_cm in degrees, mpmath value in mb/sr)
+        let he = "model: rutherford\nreaction: { beam: 4He, target: 58Ni, energy_mev: 24.0 }\n";
+        let o = "model: rutherford\nreaction: { beam: 16O, target: 197Au, energy_mev: 80.0 }\n";
+        let cases = [
+            (he, 10.0, 139_758.762_152_282),
+            (he, 30.0, 1_797.124_465_070_01),
+            (he, 90.0, 32.256_932_846_220_1),
+            (he, 170.0, 8.188_157_253_306_06),
+            (o, 10.0, 1_638_578.046_182_45),
+            (o, 30.0, 21_070.082_829_672_7),
+            (o, 90.0, 378.190_971_249_490),
+            (o, 170.0, 96.000_669_348_643_4),
+        ];
+        for (yaml, theta_deg, want) in cases {
+            let curve = model(yaml).evaluate(&[theta_deg]).expect("evaluates");
+            let row = &curve.rows[0];
+            // 1e-14: round-off of the ~30 double-precision operations from masses to dσ/dΩ
+            // (each ≤ 1.1e-16; measured ≤ 2.5e-15); the reference has 15 digits.
+            assert_relative_eq!(row.dsdo_cm_mb_sr, want, max_relative = 1e-14);
+            // 1e-15: the ratio divides the same amplitude by itself, 1 up to one rounding.
+            assert_relative_eq!(row.ratio_rutherford.expect("charged"), 1.0, max_relative = 1e-15);
+        }
+    }
+
+    #[test]
+    fn a_pure_coulomb_optical_model_is_rutherford_where_the_charge_sphere_is_not_reached() {
+        // No nuclear potential: only the finite size of the charge sphere (R_c = r0·58^(1/3))
+        // can move the ratio to Rutherford away from 1. The sphere changes the partial waves
+        // that reach it, S_L ≠ 1, whose amplitude is at most b = Σ_L (2L+1)|S_L − 1|/(2k); the
+        // Coulomb amplitude is |f_C| = η/(2k sin²(θ/2)), so by the triangle inequality
+        //     |σ/σ_R − 1| ≤ 2b/|f_C| + (b/|f_C|)²,
+        // which vanishes as θ → 0. (θ_cm in degrees, the sphere's r0 in fm)
+        let realistic = [1.0f64, 2.0, 5.0, 10.0].map(|t| (t, "1.30"));
+        // r0 = 0.05 fm: R_c = 0.19 fm, far inside the closest approach of 3.6 fm (head-on,
+        // Z_a Z_A e²/E_cm), so the curve is Rutherford at every angle to the solver's accuracy.
+        let point_like = [1.0, 10.0, 60.0, 90.0, 150.0, 179.0].map(|t| (t, "0.05"));
+        for (theta_deg, r0_fm) in realistic.into_iter().chain(point_like) {
+            let m = model(&coulomb_only(r0_fm));
+            let (waves, _) = m.waves().expect("solves");
+            let b: f64 = waves.s.iter().enumerate().map(|(l, s)| (2 * l + 1) as f64 * (s - 1.0).norm()).sum::<f64>()
+                / (2.0 * waves.k_per_fm);
+            let f_c = waves.eta / (2.0 * waves.k_per_fm * (theta_deg.to_radians() / 2.0).sin().powi(2));
+            // The bound, and never below 1e-6: the relative accuracy the automatic numerics
+            // aim at (NumericsConfig::accuracy default).
+            let bound = (2.0 * b / f_c + (b / f_c).powi(2)).max(1e-6);
+            let ratio = m.evaluate(&[theta_deg]).expect("evaluates").rows[0].ratio_rutherford.expect("charged");
+            assert!((ratio - 1.0).abs() <= bound, "r0 {r0_fm} fm, {theta_deg}°: ratio {ratio}, bound {bound}");
+            if r0_fm == "1.30" {
+                // The bound itself is small here (3e-4 at 1°, 3e-2 at 10°): the check says
+                // something only at forward angles.
+                assert!(bound < 0.05, "{theta_deg}°: bound {bound}");
+            }
+        }
+    }
+
+    #[test]
+    fn the_sum_radius_convention_scales_the_reduced_radii_by_the_sum_of_cube_roots() {
+        // R = r0·58^(1/3) (`target`) and R = r0'·(4^(1/3) + 58^(1/3)) (`sum`) are the same
+        // radii when r0' = r0·58^(1/3)/(4^(1/3) + 58^(1/3)): the curves must agree.
+        let scale = 58f64.cbrt() / (4f64.cbrt() + 58f64.cbrt());
+        let mut sum = OPTICAL.replace("radius: target", "radius: sum");
+        for r0 in ["1.20", "1.40", "1.30"] {
+            sum = sum
+                .replace(&format!("r0_fm: {r0}"), &format!("r0_fm: {}", r0.parse::<f64>().expect("a number") * scale));
+        }
+        let angles_deg = [20.0, 60.0, 120.0, 170.0];
+        let (target, sum) = (model(OPTICAL).evaluate(&angles_deg), model(&sum).evaluate(&angles_deg));
+        let (target, sum) = (target.expect("target"), sum.expect("sum"));
+        assert_eq!((target.l_max, target.step_fm), (sum.l_max, sum.step_fm));
+        for (a, b) in target.rows.iter().zip(&sum.rows) {
+            // 1e-10: the radii agree to round-off (1e-16) and the numerics are the same, but
+            // backward the partial-wave sum cancels down to σ/σ_R ≈ 4e-3, which amplifies the
+            // round-off of ~45 waves (measured 4e-11 at 170°).
+            assert_relative_eq!(a.dsdo_cm_mb_sr, b.dsdo_cm_mb_sr, max_relative = 1e-10);
+        }
+        assert_relative_eq!(
+            target.sigma_reaction_mb.expect("absorptive"),
+            sum.sigma_reaction_mb.expect("absorptive"),
+            max_relative = 1e-10 // as above: the same radii and numerics, round-off only
+        );
+    }
+
+    #[test]
+    fn a_slow_neutron_on_a_hard_sphere_scatters_as_an_s_wave() {
+        // For kR ≪ 1 only L = 0 counts: δ_0 = −kR exactly for an impenetrable sphere, so
+        //     σ_el = 4π sin²(kR)/k²,   dσ/dΩ(90°) = sin²(kR)/k²
+        // (L. I. Schiff, Quantum Mechanics, 3rd ed., section 19, from memory). The L = 1 wave
+        // adds (kR)⁴/3 of that to σ (δ_1 ≈ −(kR)³/3) and nothing at 90° (P_1(0) = 0), the
+        // others less: the tolerance is (kR)⁴. (E_lab in MeV, R in fm)
+        let cases = [(0.01, 1.0), (0.001, 3.0), (0.1, 0.5)];
+        for (energy_mev, radius_fm) in cases {
+            let yaml = format!(
+                "model: hard_sphere\nreaction: {{ beam: n, target: 58Ni, energy_mev: {energy_mev} }}\nradius_fm: {radius_fm}\n"
+            );
+            let curve = model(&yaml).evaluate(&[90.0]).expect("evaluates");
+            let (k, kr) = (curve.k_per_fm, curve.k_per_fm * radius_fm);
+            assert!(kr < 0.05, "kR = {kr}");
+            let tol = kr.powi(4);
+            let s_wave_mb_sr = kr.sin().powi(2) / (k * k) * 10.0; // 10 mb per fm²
+            let elastic = curve.sigma_elastic_mb.expect("neutral");
+            assert_relative_eq!(elastic, 4.0 * std::f64::consts::PI * s_wave_mb_sr, max_relative = tol);
+            assert_relative_eq!(curve.rows[0].dsdo_cm_mb_sr, s_wave_mb_sr, max_relative = tol);
+            // No absorption: the optical theorem's σ_tot equals σ_el. 1e-11: 1 − Re S_L = 2
+            // sin²δ_L is a difference of numbers near 1 that loses log10(1/δ²) ≈ 3–4 of 16
+            // digits.
+            assert_relative_eq!(curve.sigma_total_mb.expect("neutral"), elastic, max_relative = 1e-11);
+            assert_eq!(curve.sigma_reaction_mb, None);
+        }
+    }
+
+    #[test]
+    fn each_model_reports_the_integrated_cross_sections_it_defines() {
+        // (model file, reaction cross section expected (None: not reported; Some(None):
+        // reported and clearly absorptive, > 100 mb, where the demo model gives about
+        // 1000 mb), total and elastic reported, optical numerics reported)
+        let n = "model: hard_sphere\nreaction: { beam: n, target: 58Ni, energy_mev: 1.0 }\nradius_fm: 5.0\n";
+        let ruth = "model: rutherford\nreaction: { beam: 4He, target: 58Ni, energy_mev: 24.0 }\n";
+        let cases = [
+            (OPTICAL.to_string(), Some(None), false, true),
+            // A real potential conserves flux, |S_L| = 1: no reaction cross section.
+            (OPTICAL.replace("depth_mev: 20.0", "depth_mev: 0.0"), Some(Some(0.0)), false, true),
+            (OPTICAL.replace("beam: 4He", "beam: n"), Some(None), true, true),
+            (ruth.to_string(), None, false, false),
+            (n.to_string(), None, true, false),
+        ];
+        for (yaml, reaction, total, numerics) in cases {
+            let curve = model(&yaml).evaluate(&[30.0]).expect("evaluates");
+            match (reaction, curve.sigma_reaction_mb) {
+                (None, got) => assert_eq!(got, None, "{yaml}"),
+                (Some(None), got) => assert!(got.is_some_and(|s| s > 100.0), "{yaml}: {got:?}"),
+                // 1e-10 mb: 1 − |S_L|² is round-off (1e-16) times Σ(2L+1) ≈ 2000 waves'
+                // weight, times π/k² · 10 mb/fm² ≈ 8 mb.
+                (Some(Some(want)), got) => {
+                    assert!(got.is_some_and(|s| (s - want).abs() < 1e-10), "{yaml}: {got:?}");
+                }
+            }
+            assert_eq!(curve.sigma_total_mb.is_some(), total, "{yaml}");
+            assert_eq!(curve.sigma_elastic_mb.is_some(), total, "{yaml}");
+            assert_eq!((curve.step_fm.is_some(), curve.matching_radii_fm.is_some()), (numerics, numerics), "{yaml}");
+        }
+    }
+}

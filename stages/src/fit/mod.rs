@@ -32,7 +32,9 @@ pub use data::{CurveTable, FitData, FIT_COLUMNS, RUTHERFORD_CONVENTION};
 pub use models::{OpticalKey, FIT_ACCURACY};
 pub use report::{FitReport, MinimumReport, NumericsReport, ParameterReport, PointReport, ProfileReport};
 
-use crate::physics::model_fit::{self, FitError, FitOptions, Measured, Normalisation, Parameter, Profile, Shape};
+use crate::physics::model_fit::{
+    self, FitError, FitOptions, Measured, Normalisation, Parameter, Profile, Shape, ShapeError,
+};
 use crate::physics::rutherford::Convention;
 use models::{auto_numerics, fixed_numerics, legendre_start, AtAngles, Model, PointCoulomb};
 use report::minimum_report;
@@ -58,9 +60,35 @@ pub enum FitFailure {
     /// The fit could not start.
     #[error("{0}")]
     Setup(#[from] FitError),
-    /// Settings that do not suit the data.
+    /// The model cannot be evaluated at the parameters where its numerics are chosen.
     #[error("{0}")]
-    Data(String),
+    Model(#[from] ShapeError),
+    /// A normalisation prior without a width: neither the fit nor the rows give one.
+    #[error(
+        "normalisation: prior needs a normalisation error: the rows have norm_rel_err 0; \
+         set fit.normalisation_rel_err or use normalisation: fixed"
+    )]
+    NoPriorWidth,
+    /// The fit's angle range holds no data point.
+    #[error("no data point of state {state} has θ_cm in [{min_deg}, {max_deg}]°")]
+    NoPointsInRange {
+        /// The state fitted.
+        state: String,
+        /// Lower end of the range, degrees.
+        min_deg: f64,
+        /// Upper end of the range, degrees.
+        max_deg: f64,
+    },
+    /// A data angle where a curve model has no value.
+    #[error("data angle {theta_deg}° lies outside the curve ({first_deg}° to {last_deg}°)")]
+    OutsideCurve {
+        /// The data point's CM angle, degrees.
+        theta_deg: f64,
+        /// The curve's first angle, degrees.
+        first_deg: f64,
+        /// The curve's last angle, degrees.
+        last_deg: f64,
+    },
 }
 
 impl Fit {
@@ -86,11 +114,7 @@ impl Fit {
                             .iter()
                             .fold((f64::INFINITY, 0.0f64), |(lo, hi), x| (lo.min(*x), hi.max(*x)));
                         if hi <= 0.0 {
-                            return Err(FitFailure::Data(
-                                "normalisation: prior needs a normalisation error: the rows have norm_rel_err 0; \
-                                 set fit.normalisation_rel_err or use normalisation: fixed"
-                                    .into(),
-                            ));
+                            return Err(FitFailure::NoPriorWidth);
                         }
                         if hi - lo > 1e-9 * hi {
                             warnings.push(format!(
@@ -124,7 +148,7 @@ impl Fit {
                 let keep: Vec<usize> =
                     (0..data.theta_cm_deg.len()).filter(|&i| (a..=b).contains(&data.theta_cm_deg[i])).collect();
                 if keep.is_empty() {
-                    return Err(FitFailure::Data(format!("no data point of state {state} has θ_cm in [{a}, {b}]°")));
+                    return Err(FitFailure::NoPointsInRange { state: state.to_string(), min_deg: a, max_deg: b });
                 }
                 let pick = |v: &Vec<f64>| keep.iter().map(|&i| v[i]).collect::<Vec<f64>>();
                 selected = FitData {
@@ -145,11 +169,11 @@ impl Fit {
         let theta_rad: Vec<f64> = data.theta_cm_deg.iter().map(|d| d.to_radians()).collect();
         if let Model::Curve(c) = &self.model {
             if let Some(t) = data.theta_cm_deg.iter().find(|t| c.at(**t).is_none()) {
-                return Err(FitFailure::Data(format!(
-                    "data angle {t}° lies outside the curve ({}° to {}°)",
-                    c.theta_cm_deg[0],
-                    c.theta_cm_deg[c.theta_cm_deg.len() - 1]
-                )));
+                return Err(FitFailure::OutsideCurve {
+                    theta_deg: *t,
+                    first_deg: c.theta_cm_deg[0],
+                    last_deg: c.theta_cm_deg[c.theta_cm_deg.len() - 1],
+                });
             }
         }
         let mut params = self.params.clone();
@@ -284,7 +308,7 @@ impl Fit {
         nu: f64,
         angles_deg: &[f64],
         convention: Convention,
-    ) -> Result<Vec<(f64, f64, Option<f64>)>, String> {
+    ) -> Result<Vec<(f64, f64, Option<f64>)>, ShapeError> {
         let shape = AtAngles {
             model: &self.model,
             convention,

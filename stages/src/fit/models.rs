@@ -11,10 +11,11 @@ use super::FitFailure;
 use crate::physics::coulomb::legendre;
 use crate::physics::kinematics::{Channel, Masses};
 use crate::physics::least_squares::qr_solve;
-use crate::physics::model_fit::{Measured, Parameter, Shape};
+use crate::physics::model_fit::{Measured, Parameter, Shape, ShapeError};
 use crate::physics::nuclide::Nuclide;
 use crate::physics::optical::{self, ElasticChannel, Numerics, OpticalPotential, WoodsSaxon};
 use crate::physics::rutherford::Convention;
+use crate::physics::PhysicsError;
 use crate::problem::Checks;
 use crate::theory::{NumericsConfig, PotentialConfig, RadiusConvention, TermConfig, TheoryReaction};
 use crate::Problem;
@@ -156,21 +157,22 @@ pub(super) struct OpticalModel {
 
 impl OpticalModel {
     /// The potential at the free parameters `p`.
-    fn potential(&self, p: &[f64]) -> Result<OpticalPotential, String> {
+    ///
+    /// # Errors
+    /// A radius or diffuseness that is not > 0, named by its key.
+    pub(super) fn potential(&self, p: &[f64]) -> Result<OpticalPotential, ShapeError> {
         let mut at = self.potential.clone();
         for (k, v) in self.keys.iter().zip(p) {
             *k.field(&mut at) = *v;
         }
-        let terms = [at.real, at.imag_volume, at.imag_surface];
-        let rc = at.coulomb.r0_fm;
-        for (t, k) in terms.iter().zip(Term::ALL.map(Term::name)) {
-            if !(t.r0_fm > 0.0 && t.a_fm > 0.0) {
-                return Err(format!("{k}: radius and diffuseness must be > 0 (r0 {}, a {})", t.r0_fm, t.a_fm));
+        for key in OpticalKey::all().into_iter().filter(|k| k.is_length()) {
+            let value = key.value(&at);
+            if value.is_nan() || value <= 0.0 {
+                return Err(ShapeError::Parameter { name: key.name(), value, expected: "> 0" });
             }
         }
-        if rc <= 0.0 {
-            return Err(format!("coulomb.r0_fm must be > 0, found {rc}"));
-        }
+        let terms = [at.real, at.imag_volume, at.imag_surface];
+        let rc = at.coulomb.r0_fm;
         let ws = |t: &TermConfig| WoodsSaxon {
             depth_mev: t.depth_mev,
             radius_fm: t.r0_fm * self.a13,
@@ -200,7 +202,7 @@ impl Shape for AtAngles<'_> {
         // The Legendre start is the exact weighted least-squares solution (legendre_start).
         matches!(self.model, Model::Legendre { .. })
     }
-    fn values(&self, p: &[f64], out: &mut [f64]) -> Result<(), String> {
+    fn values(&self, p: &[f64], out: &mut [f64]) -> Result<(), ShapeError> {
         match self.model {
             Model::Rutherford(c) => {
                 for (o, t) in out.iter_mut().zip(&self.theta_rad) {
@@ -214,13 +216,19 @@ impl Shape for AtAngles<'_> {
             }
             Model::Curve(c) => {
                 for (o, t) in out.iter_mut().zip(&self.theta_rad) {
-                    *o = c.at(t.to_degrees()).ok_or_else(|| format!("angle {} outside the curve", t.to_degrees()))?;
+                    let theta_deg = t.to_degrees();
+                    *o = c.at(theta_deg).ok_or_else(|| PhysicsError::OutsideTable {
+                        quantity: "theta_cm_deg".into(),
+                        value: theta_deg,
+                        min: c.theta_cm_deg[0],
+                        max: c.theta_cm_deg[c.theta_cm_deg.len() - 1],
+                    })?;
                 }
             }
             Model::Optical(om) => {
                 let pot = om.potential(p)?;
                 let num = self.numerics.unwrap_or(om.numerics);
-                let sol = optical::solve(&pot, &om.channel, &num).map_err(|e| e.to_string())?;
+                let sol = optical::solve(&pot, &om.channel, &num)?;
                 for (o, (dsdo, _)) in out.iter_mut().zip(sol.waves.curve(&self.theta_rad)) {
                     *o = dsdo;
                 }
@@ -359,10 +367,9 @@ pub const FIT_ACCURACY: f64 = 1e-5;
 
 /// The automatic numerics at `p` (accuracy [`FIT_ACCURACY`] unless set).
 pub(super) fn auto_numerics(om: &OpticalModel, p: &[f64]) -> Result<Numerics, FitFailure> {
-    let pot = om.potential(p).map_err(FitFailure::Data)?;
+    let pot = om.potential(p)?;
     let accuracy = Some(om.numerics.accuracy.unwrap_or(FIT_ACCURACY));
-    let sol = optical::solve(&pot, &om.channel, &Numerics { accuracy, ..om.numerics })
-        .map_err(|e| FitFailure::Data(e.to_string()))?;
+    let sol = optical::solve(&pot, &om.channel, &Numerics { accuracy, ..om.numerics }).map_err(ShapeError::from)?;
     Ok(Numerics {
         accuracy,
         step_fm: Some(sol.step_fm),

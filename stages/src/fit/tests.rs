@@ -80,6 +80,8 @@ fn curve_tables_are_checked_and_interpolated_in_log_sigma() {
     // ln σ linear in angle: σ = e^{−θ/10} is exact between the points.
     let t: Vec<f64> = (0..5).map(|i| 10.0 * f64::from(i)).collect();
     let c = CurveTable::new(t.clone(), t.iter().map(|x| (-x / 10.0).exp()).collect()).expect("table");
+    // 1e-14: two logarithms, a weighted mean of them and an exponential, a few roundings of
+    // numbers of order 1.
     assert_relative_eq!(c.at(15.0).expect("inside"), (-1.5f64).exp(), max_relative = 1e-14);
     assert!(c.at(41.0).is_none());
 }
@@ -141,8 +143,65 @@ fn a_rutherford_fit_finds_the_scale_of_exact_data_in_either_convention() {
             rutherford_convention: convention,
         };
         let (report, values) = fit.run(&data, "elastic", "rutherford").expect("fit runs");
+        // 1e-9 (both): the relative step xtol = 1e-9 at which the minimiser stops; a scale
+        // alone is a linear problem, solved in one step (measured 2e-16).
         assert_relative_eq!(report.parameters[0].value, 1.1, max_relative = 1e-9);
         let curve = fit.curve(&values, report.parameters[0].value, &[45.0], convention).expect("curve");
         assert_relative_eq!(curve[0].2.expect("ratio"), 1.1, max_relative = 1e-9);
     }
+}
+
+/// Data of state `elastic` at `theta_deg`: 100 ± 1 mb/sr, no normalisation error.
+fn flat_data(theta_deg: &[f64]) -> FitData {
+    let n = theta_deg.len();
+    FitData {
+        theta_cm_deg: theta_deg.to_vec(),
+        dsdo_cm_mb_sr: vec![100.0; n],
+        err_mb_sr: vec![1.0; n],
+        norm_rel_err: vec![0.0; n],
+        labels: (0..n).map(|i| format!("p{i}")).collect(),
+        rutherford_convention: Convention::Relativistic,
+    }
+}
+
+#[test]
+fn a_fit_that_cannot_run_says_what_to_change() {
+    let rutherford = "model: rutherford\nreaction: { beam: 4He, target: 58Ni, energy_mev: 24.0 }\n";
+    let table = || CurveTable::new(vec![40.0, 60.0], vec![50.0, 10.0]).expect("table");
+    let curve = || FitModelConfig::Curve { file: "c.csv".into(), fit: FitSettings::default() };
+    // (fit, data angles, the whole message)
+    let cases = [
+        (
+            build(&format!("{rutherford}fit: {{ theta_cm_range_deg: [170.0, 175.0] }}\n")).expect("fit"),
+            vec![30.0, 40.0],
+            "no data point of state elastic has θ_cm in [170, 175]°",
+        ),
+        (
+            build(&format!("{rutherford}fit: {{ normalisation: prior }}\n")).expect("fit"),
+            vec![30.0, 40.0],
+            "normalisation: prior needs a normalisation error: the rows have norm_rel_err 0; \
+             set fit.normalisation_rel_err or use normalisation: fixed",
+        ),
+        (
+            curve().build(Some(table())).expect("fit"),
+            vec![30.0, 50.0],
+            "data angle 30° lies outside the curve (40° to 60°)",
+        ),
+    ];
+    for (fit, theta, message) in cases {
+        let e = fit.run(&flat_data(&theta), "elastic", "case").expect_err(message);
+        assert_eq!(e.to_string(), message);
+    }
+    // The curve of a curve model past its table, and an optical potential with a radius
+    // that is not > 0 (the fit's bounds keep a minimisation away from it).
+    let e = curve().build(Some(table())).expect("fit").curve(&[], 1.0, &[70.0], Convention::Relativistic);
+    assert_eq!(
+        e.expect_err("past the table").to_string(),
+        "theta_cm_deg = 70 lies outside the table range [40, 60]; extend the table (no extrapolation is done)"
+    );
+    let optical =
+        build(&OPTICAL.replace("real.depth_mev: {", "real.r0_fm: {").replace("min: 20.0, max: 400.0", "max: 2.0"))
+            .expect("fit");
+    let Model::Optical(om) = &optical.model else { panic!("an optical model") };
+    assert_eq!(om.potential(&[-0.5]).expect_err("negative radius").to_string(), "real.r0_fm must be > 0, found -0.5");
 }

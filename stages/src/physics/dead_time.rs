@@ -152,9 +152,13 @@ mod tests {
         // w e^w = x is the definition (Corless et al. 1996, Eq. 1.1).
         for x in [-0.3678, -0.3, -0.1, -1e-3, -1e-9] {
             let w = lambert_w0(x).expect("in range");
+            // 1e-13: Halley's iteration stops at a step of 4ε|w|, and w e^w rounds twice
+            // more: a few ε in all (measured exact), with room for the cases near −1/e.
             assert_relative_eq!(w * w.exp(), x, max_relative = 1e-13);
         }
-        // W_0(-1/e) = -1 at the branch point (Corless et al. 1996, section 4).
+        // W_0(-1/e) = -1 at the branch point (Corless et al. 1996, section 4). 1e-7: −1/e is
+        // rounded by ~1e-16, and W has a square-root branch point there, w + 1 ≈
+        // √(2(e x + 1)) ≈ √(2 · 2e-16) ≈ 2e-8.
         assert_relative_eq!(lambert_w0(-1.0 / std::f64::consts::E).expect("branch point"), -1.0, epsilon = 1e-7);
         assert_eq!(lambert_w0(-0.4), None);
     }
@@ -164,8 +168,10 @@ mod tests {
         // At m τ → 0 both models give f = 1 - m τ to first order (Knoll ch. 4).
         let (f_np, _) = non_paralyzable(100.0, 1e-6).expect("valid");
         let (f_p, _) = paralyzable(100.0, 1e-6).expect("valid");
+        // 1e-15: one subtraction.
         assert_relative_eq!(f_np, 1.0 - 1e-4, max_relative = 1e-15);
-        assert_relative_eq!(f_p, f_np, max_relative = 1e-7);
+        // 1e-8: the two models differ at second order, (m τ)²/2 = 5e-9 here.
+        assert_relative_eq!(f_p, f_np, max_relative = 1e-8);
         // At m τ = 0.3 the paralyzable system has lost more (f = e^{-nτ} with nτ > mτ/(1-mτ)).
         let (f_np, _) = non_paralyzable(3e5, 1e-6).expect("valid");
         let (f_p, _) = paralyzable(3e5, 1e-6).expect("valid");
@@ -177,7 +183,9 @@ mod tests {
         let (m, tau, h) = (2e5, 1.5e-6, 1e-12);
         let (_, d) = paralyzable(m, tau).expect("valid");
         let fd = (paralyzable(m, tau + h).expect("valid").0 - paralyzable(m, tau - h).expect("valid").0) / (2.0 * h);
-        assert_relative_eq!(d, fd, max_relative = 1e-6);
+        // 1e-9: round-off of the difference quotient, ε f/(h |f'|) ≈ 1.1e-16 · 0.6/(1e-12 ·
+        // 4e5) ≈ 2e-10; its truncation, h² |f'''/f'|/6 ≈ h² n²/6, is ~2e-14 (measured 3e-11).
+        assert_relative_eq!(d, fd, max_relative = 1e-9);
     }
 
     #[test]
@@ -204,6 +212,7 @@ mod tests {
     fn count_ratio_is_binomial() {
         // 900 of 1000 kept: f = 0.9, u = sqrt(0.9 · 0.1 / 1000) (binomial, common practice).
         let f = count_ratio(900, 1000);
+        // 1e-15: one division, and a square root of a product.
         assert_relative_eq!(f.value, 0.9, max_relative = 1e-15);
         assert_relative_eq!(f.err, (0.09f64 / 1000.0).sqrt(), max_relative = 1e-15);
     }

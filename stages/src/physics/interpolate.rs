@@ -41,6 +41,7 @@ mod tests {
         let xs = [1.0, 2.0, 4.0];
         let ys = [10.0, 20.0, 0.0];
         for (x, y) in [(1.0, 10.0), (1.5, 15.0), (2.0, 20.0), (3.0, 10.0), (4.0, 0.0)] {
+            // 1e-15: one weight and one product-sum, exact or rounded once.
             assert_relative_eq!(linear(&xs, &ys, x, "e").expect("inside"), y, max_relative = 1e-15);
         }
         for x in [0.999, 4.001, f64::NAN] {

@@ -452,6 +452,8 @@ mod tests {
         for deg in [5.0f64, 20.0, 45.0, 70.0, 85.0] {
             let sols = ch.at_lab_angle(deg.to_radians(), Detect::Ejectile, Mode::NonRelativistic);
             assert_eq!(sols.len(), 1, "{deg}");
+            // 1e-12 (the three checks): the Galilean map is a few trigonometric functions and
+            // a square root, each good to an ulp or two (measured 1.4e-15).
             assert_relative_eq!(sols[0].theta_cm_rad, 2.0 * deg.to_radians(), max_relative = 1e-12);
             assert_relative_eq!(
                 sols[0].domega_lab_per_domega_cm,
@@ -468,13 +470,22 @@ mod tests {
         // Galilean elastic heavy-on-light: sin θ_max = m_A/m_a (common practice).
         let ch = elastic(11174.86, 938.272, 60.0);
         let theta_max = ch.max_lab_angle_rad(Detect::Ejectile, Mode::NonRelativistic);
-        assert_relative_eq!(theta_max.sin(), 938.272 / 11174.86, max_relative = 1e-10);
+        // 1e-12 (tightened from 1e-10): an arcsine and a sine of the mass ratio, ~10 ulps
+        // (measured 8.5e-14).
+        assert_relative_eq!(theta_max.sin(), 938.272 / 11174.86, max_relative = 1e-12);
         let below = ch.at_lab_angle(0.9 * theta_max, Detect::Ejectile, Mode::NonRelativistic);
         assert_eq!(below.iter().map(|s| s.branch).collect::<Vec<_>>(), [1, 2]);
         assert!(below[0].energy_lab_mev > below[1].energy_lab_mev);
         assert!(ch.at_lab_angle(1.1 * theta_max, Detect::Ejectile, Mode::NonRelativistic).is_empty());
-        // Relativistic maximum is close to the Galilean one at 5 MeV/u.
-        assert_relative_eq!(ch.max_lab_angle_rad(Detect::Ejectile, Mode::Relativistic), theta_max, max_relative = 1e-3);
+        // The relativistic maximum is the same: tan θ_max = 1/(γ_cm √(β_cm²/β*² − 1)), and
+        // with s = m_a² + m_A² + 2 E m_A one finds γ_cm² (β_cm²/β*² − 1) = (m_a² − m_A²)/m_A²
+        // at every energy (worked by hand), so sin θ_max = m_A/m_a exactly. 1e-12 (tightened
+        // from 1e-3, which only said "close"): ~20 more operations (measured 3e-13).
+        assert_relative_eq!(
+            ch.max_lab_angle_rad(Detect::Ejectile, Mode::Relativistic),
+            theta_max,
+            max_relative = 1e-12
+        );
     }
 
     #[test]
@@ -491,11 +502,14 @@ mod tests {
                     let fwd = ch.at_cm_angle(deg.to_radians(), detect, mode);
                     let back = ch.at_lab_angle(fwd.theta_lab_rad, detect, mode);
                     let hit = back.iter().find(|s| s.branch == fwd.branch).expect("same branch");
-                    assert_relative_eq!(hit.theta_cm_rad, deg.to_radians(), max_relative = 1e-9);
+                    // 1e-12 (both; tightened from 1e-9): there and back is ~100 operations
+                    // (measured 1.1e-14); no case is near the maximum angle, where the
+                    // inversion would lose half the digits.
+                    assert_relative_eq!(hit.theta_cm_rad, deg.to_radians(), max_relative = 1e-12);
                     assert_relative_eq!(
                         hit.domega_lab_per_domega_cm,
                         fwd.domega_lab_per_domega_cm,
-                        max_relative = 1e-9
+                        max_relative = 1e-12
                     );
                 }
             }
@@ -508,7 +522,9 @@ mod tests {
         let (t, h) = (40f64.to_radians(), 1e-7);
         let at = |x: f64| ch.at_lab_angle(x, Detect::Ejectile, Mode::Relativistic)[0].theta_cm_rad;
         let s = ch.at_lab_angle(t, Detect::Ejectile, Mode::Relativistic)[0];
-        assert_relative_eq!(s.dtheta_cm_per_dtheta_lab, (at(t + h) - at(t - h)) / (2.0 * h), max_relative = 1e-6);
+        // 1e-8 (tightened from 1e-6): round-off of the central difference, ε θ_cm/h ≈
+        // 1.1e-16 · 0.7/1e-7 ≈ 8e-10; truncation h² |θ'''|/6 ≈ 2e-15 (measured 3.9e-10).
+        assert_relative_eq!(s.dtheta_cm_per_dtheta_lab, (at(t + h) - at(t - h)) / (2.0 * h), max_relative = 1e-8);
     }
 
     #[test]

@@ -34,15 +34,18 @@ mod tests {
 
     #[test]
     fn one_microcoulomb_of_alpha_particles() {
-        // 1 µC of He2+: 1e-6 / (2 × 1.602176634e-19) = 3.1207548e12 ions; worked by hand
-        // from the CODATA 2018 value of e.
+        // 1 µC of He2+: 1e-6 / (2 × 1.602176634e-19) = 3.12075454e12 ions; worked by hand
+        // from the CODATA 2018 value of e. 1e-15: one product and one division.
         assert_relative_eq!(beam_particles(1e-6, 2), 1e-6 / (2.0 * 1.602_176_634e-19), max_relative = 1e-15);
-        assert_relative_eq!(beam_particles(1e-6, 2), 3.120_754_7e12, max_relative = 1e-7);
+        // 2e-9 (tightened from 1e-7; the old value, 3.1207547e12, was 5.2e-8 off): the hand
+        // value has 9 digits, half a unit in the last is 1.6e-9.
+        assert_relative_eq!(beam_particles(1e-6, 2), 3.120_754_54e12, max_relative = 2e-9);
     }
 
     #[test]
     fn one_mole_per_cm2_is_avogadro_atoms_and_tilt_lengthens_the_path() {
         // 12 g/cm² of carbon-12 (M = 12 g/mol) holds N_A atoms per cm² (definition of the mole).
+        // 1e-15: a product and a division; 1e-14 below: the cosine of 60° is 0.5 to 1e-16.
         assert_relative_eq!(target_atoms_per_cm2(12.0, 12.0, 1.0, 0.0), 6.022_140_76e23, max_relative = 1e-15);
         // At 60° tilt the path doubles (cos 60° = 1/2).
         assert_relative_eq!(

@@ -406,9 +406,11 @@ mod tests {
     #[test]
     fn no_nuclear_potential_gives_rutherford() {
         // With the nuclear terms off and a charge radius shrunk to 0.05 fm the potential is
-        // point Coulomb, and the ratio to Rutherford is 1 (invariant of the method, 1e-8).
-        // (With R_C = 1.3 A^{1/3} fm the 24 MeV alpha particles, above the barrier, feel the
-        // finite charge sphere: a real effect of 5e-4 at backward angles.)
+        // point Coulomb, and the ratio to Rutherford is 1. 1e-8: what remains is the
+        // integration error of S_L, which the step chosen for 1e-6 accuracy keeps far below
+        // that without a nuclear potential (measured 4e-11). (With R_C = 1.3 A^{1/3} fm the
+        // 24 MeV alpha particles, above the barrier, feel the finite charge sphere: a real
+        // effect, +16 % at 60° and −82 % at 170°; see the tests of `crate::theory`.)
         let (mut pot, ch) = alpha_ni58(0.0, 0.0, 0.0);
         pot.coulomb_radius_fm = 0.05;
         let sol = solve(&pot, &ch, &Numerics::default()).expect("solves");
@@ -423,13 +425,17 @@ mod tests {
 
     #[test]
     fn real_potential_conserves_flux_and_absorption_is_positive() {
-        // A real potential gives |S_L| = 1 (flux conservation, to 1e-10).
+        // A real potential gives |S_L| = 1 (flux conservation). 1e-13 (tightened from 1e-10):
+        // S_L from a real logarithmic derivative is a ratio of complex conjugates, of modulus
+        // 1 up to a few roundings, whatever the integration error (measured 2.2e-16).
         let (pot, ch) = alpha_ni58(150.0, 0.0, 0.0);
         let sol = solve(&pot, &ch, &Numerics::default()).expect("solves");
-        assert!(sol.waves.s.iter().all(|s| (s.norm() - 1.0).abs() < 1e-10), "{:?}", sol.waves.s);
+        assert!(sol.waves.s.iter().all(|s| (s.norm() - 1.0).abs() < 1e-13), "{:?}", sol.waves.s);
         let (pot, ch) = alpha_ni58(150.0, 20.0, 5.0);
         let sol = solve(&pot, &ch, &Numerics::default()).expect("solves");
-        assert!(sol.waves.s.iter().all(|s| s.norm() <= 1.0 + 1e-12));
+        // 1e-14 (tightened from 1e-12): absorption gives |S_L| < 1; the high waves it barely
+        // reaches have |S_L| within a rounding of 1 (measured at most 1 − 3e-16).
+        assert!(sol.waves.s.iter().all(|s| s.norm() <= 1.0 + 1e-14));
         assert!(sol.waves.sigma_reaction_mb() > 100.0, "{}", sol.waves.sigma_reaction_mb());
     }
 

@@ -27,14 +27,16 @@ mod tests {
 
     #[test]
     fn quadrature_of_three_four_is_five() {
-        // 3-4-5 triangle, common practice.
+        // 3-4-5 triangle, common practice. 1e-15: exact in binary (√25), one rounding at most;
+        // the empty sum is 0 exactly (approx's default tolerance, f64::EPSILON).
         assert_relative_eq!(quadrature(&[3.0, 4.0]), 5.0, max_relative = 1e-15);
         assert_relative_eq!(quadrature(&[]), 0.0);
     }
 
     #[test]
     fn propagate_weights_each_input_by_its_derivative() {
-        // y = 2a + 3b with u(a) = 1, u(b) = 2: u(y) = sqrt(4 + 36), GUM Eq. (10).
+        // y = 2a + 3b with u(a) = 1, u(b) = 2: u(y) = sqrt(4 + 36), GUM Eq. (10). 1e-15:
+        // exact products and sum, one rounded square root on each side.
         assert_relative_eq!(propagate(&[2.0, 3.0], &[1.0, 2.0]), 40f64.sqrt(), max_relative = 1e-15);
     }
 }

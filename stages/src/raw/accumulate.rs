@@ -48,6 +48,14 @@ impl Tally {
     }
 }
 
+/// A spectrum row whose count is not a whole number ≥ 0.
+#[derive(Debug, Clone, Copy, PartialEq, thiserror::Error)]
+#[error("counts {counts}: expected a whole number ≥ 0")]
+pub struct BadCount {
+    /// The count found.
+    pub counts: f64,
+}
+
 /// Accumulates one run's events.
 pub struct Accumulator<'a> {
     plan: &'a RawPlan,
@@ -171,9 +179,9 @@ impl Accumulator<'_> {
     ///
     /// # Errors
     /// A negative, fractional or non-finite count (the row is named by the caller).
-    pub fn add_spectrum_row(&mut self, detector: u16, channel: f64, counts: f64) -> Result<(), String> {
+    pub fn add_spectrum_row(&mut self, detector: u16, channel: f64, counts: f64) -> Result<(), BadCount> {
         if !(counts.is_finite() && counts >= 0.0 && counts.fract() == 0.0) {
-            return Err(format!("counts {counts}: expected a whole number ≥ 0"));
+            return Err(BadCount { counts });
         }
         let n = counts as u64;
         self.tally.events += n;
@@ -316,5 +324,30 @@ impl Accumulator<'_> {
             .map(|i| (i / (PID_BINS * PID_BINS), (i / PID_BINS) % PID_BINS, i % PID_BINS, self.pid_hist[i]))
             .collect();
         RawResult { yields, tally: self.tally, spectra, pid, peak_fits, warnings }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use crate::raw::testing::raw;
+    use crate::setup::testing::setup;
+
+    #[test]
+    fn a_spectrum_count_must_be_a_whole_number() {
+        let setup = setup("[{ id: A, theta_lab_deg: 30.0, aperture: { shape: given, solid_angle_msr: 1.0 } }]");
+        let plan = raw("window_mev: [20.0, 20.5]", "side_bands").build(&setup).expect("the plan builds");
+        let mut acc = plan.accumulator();
+        // (count, accepted)
+        let cases = [(3.0, true), (0.0, true), (-1.0, false), (1.5, false), (f64::NAN, false), (f64::INFINITY, false)];
+        for (counts, accepted) in cases {
+            match acc.add_spectrum_row(0, 161.0, counts) {
+                Ok(()) => assert!(accepted, "{counts} accepted"),
+                Err(e) => {
+                    assert!(!accepted, "{counts} refused: {e}");
+                    assert_eq!(e.to_string(), format!("counts {counts}: expected a whole number ≥ 0"));
+                }
+            }
+        }
+        assert_eq!(acc.finish().tally.events, 3);
     }
 }

@@ -30,10 +30,29 @@ mod config;
 mod peaks;
 mod plan;
 
-pub use accumulate::{Accumulator, RawResult, Tally, YieldRow, PID_BINS};
+pub use accumulate::{Accumulator, BadCount, RawResult, Tally, YieldRow, PID_BINS};
 pub use config::{
     BackgroundMethod, CalibrationConfig, EventColumns, GatesConfig, LowEnergyTailConfig, RawConfig, SpectrumColumns,
     WindowConfig,
 };
-pub use peaks::{FittedPeak, PeakFitRecord, PEAK_FIT_MIN_COUNTS};
+pub use peaks::{FittedPeak, PeakFitRecord, PeakFitSkipped, PEAK_FIT_MIN_COUNTS};
 pub use plan::{Gate, Interval, RawPlan, MAX_CHANNELS, UNKNOWN_DETECTOR};
+
+/// Helpers for the unit tests of this folder.
+#[cfg(test)]
+pub(crate) mod testing {
+    use super::RawConfig;
+
+    /// A `raw:` section with calibration E = 0.125 MeV × channel (exact in binary, so the
+    /// bins of a region are counted exactly) and one written window for `elastic` with its
+    /// side bands; `background` the method.
+    pub fn raw(window: &str, background: &str) -> RawConfig {
+        serde_yaml::from_str(&format!(
+            "{{ columns: {{ detector: det, energy: adc }}, overflow_channel: 1024,
+               calibration: {{ all: {{ offset_mev: 0.0, gain_mev_per_channel: 0.125 }} }},
+               gates: {{ resolution_mev: 0.1, windows: [{{ detector: A, state: elastic, {window} }}] }},
+               background: {background} }}"
+        ))
+        .expect("the case parses")
+    }
+}

@@ -48,25 +48,59 @@ pub struct FittedPeak {
 /// Fewest counts in a detector's fit region for a peak fit; below it the side bands serve.
 pub const PEAK_FIT_MIN_COUNTS: f64 = 50.0;
 
+/// Why a detector's peaks were not fitted (its side bands serve instead).
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum PeakFitSkipped {
+    /// The detector has no state to fit.
+    #[error("no state has a window in this detector")]
+    NoStates,
+    /// Fewer bins in the fit region than parameters plus one.
+    #[error("{bins} bins in the fit region; fitting {peaks} state(s) needs at least {needed}")]
+    TooFewBins {
+        /// Bins (channels) in the fit region.
+        bins: usize,
+        /// Peaks (states) to fit.
+        peaks: usize,
+        /// Bins needed: the 2 + 3 × peaks parameters, plus one.
+        needed: usize,
+    },
+    /// Too few counts to fit.
+    #[error("{counts} counts in {bins} bins of the fit region (a fit needs {PEAK_FIT_MIN_COUNTS})")]
+    TooFewCounts {
+        /// Counts in the fit region.
+        counts: f64,
+        /// Bins (channels) in the fit region.
+        bins: usize,
+    },
+}
+
 /// Fit every state of one detector at once: Gaussians on a background over the region from
 /// the lowest side band to the highest, bins = channels.
+///
+/// # Errors
+/// No state, fewer bins than parameters plus one, or fewer than [`PEAK_FIT_MIN_COUNTS`]
+/// counts in the fit region: the side bands serve.
 pub(super) fn fit_detector(
     det: &DetectorPlan,
     method: BackgroundMethod,
     n_ch: usize,
     spectrum: &dyn Fn(usize) -> f64,
     resolution_mev: f64,
-) -> Result<PeakFitRecord, String> {
+) -> Result<PeakFitRecord, PeakFitSkipped> {
     let lo = det.gates.iter().map(|(_, g)| g.left.low_mev).fold(f64::INFINITY, f64::min);
     let hi = det.gates.iter().map(|(_, g)| g.right.high_mev).fold(f64::NEG_INFINITY, f64::max);
     let (x, y): (Vec<f64>, Vec<f64>) =
         (0..n_ch).map(|ch| (det.cal.energy_mev(ch as f64), spectrum(ch))).filter(|(e, _)| *e >= lo && *e < hi).unzip();
     let total: f64 = y.iter().sum();
-    if det.gates.is_empty() || x.len() < 2 + 3 * det.gates.len() + 1 || total < PEAK_FIT_MIN_COUNTS {
-        return Err(format!(
-            "{total} counts in {} bins of the fit region (a fit needs {PEAK_FIT_MIN_COUNTS})",
-            x.len()
-        ));
+    let (peaks, bins) = (det.gates.len(), x.len());
+    if peaks == 0 {
+        return Err(PeakFitSkipped::NoStates);
+    }
+    if bins < 2 + 3 * peaks + 1 {
+        return Err(PeakFitSkipped::TooFewBins { bins, peaks, needed: 2 + 3 * peaks + 1 });
+    }
+    if total < PEAK_FIT_MIN_COUNTS {
+        return Err(PeakFitSkipped::TooFewCounts { counts: total, bins });
     }
     let background =
         if method == BackgroundMethod::PeakFitExponential { Background::Exponential } else { Background::Linear };
@@ -116,4 +150,44 @@ pub(super) fn fit_detector(
             })
             .collect(),
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use crate::raw::testing::raw;
+    use crate::setup::testing::setup;
+
+    #[test]
+    fn a_detector_too_poor_for_a_peak_fit_says_why_and_keeps_its_side_bands() {
+        let wide = "window_mev: [20.0, 20.5], left_mev: [19.5, 20.0], right_mev: [20.5, 21.0]";
+        let narrow = "window_mev: [20.0, 20.25], left_mev: [19.75, 20.0], right_mev: [20.25, 20.375]";
+        // (window and side bands, counts in channel 161 (20.125 MeV, inside the window),
+        // the warning; the fit region runs from the left band's low end to the right band's
+        // high end: 156..167 is 12 bins, 158..162 is 5)
+        let cases = [
+            (
+                wide,
+                10,
+                "A: 10 counts in 12 bins of the fit region (a fit needs 50); side bands used instead of a peak fit",
+            ),
+            (
+                narrow,
+                1000,
+                "A: 5 bins in the fit region; fitting 1 state(s) needs at least 6; side bands used instead of a \
+                 peak fit",
+            ),
+        ];
+        let setup = setup("[{ id: A, theta_lab_deg: 30.0, aperture: { shape: given, solid_angle_msr: 1.0 } }]");
+        for (window, counts, warning) in cases {
+            let plan = raw(window, "peak_fit_linear").build(&setup).expect("the plan builds");
+            let mut acc = plan.accumulator();
+            acc.add_spectrum_row(0, 161.0, f64::from(counts)).expect("a whole count");
+            let result = acc.finish();
+            assert_eq!(result.warnings, [warning]);
+            assert!(result.peak_fits.is_empty());
+            // The side bands hold nothing: the yield is the window's counts.
+            assert_eq!(result.yields.len(), 1);
+            assert_eq!(result.yields[0].counts_gross.to_bits(), f64::from(counts).to_bits(), "{window}");
+        }
+    }
 }

@@ -144,6 +144,8 @@ mod tests {
         let angles: Vec<f64> = turned.detectors.iter().map(|d| d.theta_lab_deg).collect();
         assert_eq!(angles.len(), 3);
         for (got, want) in angles.iter().zip([25.0, 45.0, 150.0]) {
+            // 1e-12 deg: a sum of two angles in degrees (the ulp of 150 is 3e-14; measured
+            // exact).
             assert!((got - want).abs() < 1e-12, "{angles:?}");
         }
         // At its config angle, or not named: the plan's set-up.

@@ -263,7 +263,9 @@ mod tests {
             .expect("valid");
         // 57.9353417 u in the table (AME2020); the override lowers the mass by 0.0353417 u.
         let du = (table.target.mass_mev - over.target.mass_mev) / crate::physics::constants::ATOMIC_MASS_UNIT_MEV;
-        assert!((du - 0.035_341_7).abs() < 1e-9, "{du}");
+        // 1e-12 u (tightened from 1e-9): the two masses, ~5.4e4 MeV, round at ~1e-11 MeV each,
+        // 1e-14 u (measured 3.5e-15).
+        assert!((du - 0.035_341_7).abs() < 1e-12, "{du}");
         let bad = reaction("{ beam: 4He, target: 58Ni, energy_mev: 24.0, atomic_masses_u: { 58Nx: 57.9 } }")
             .resolve()
             .expect_err("unknown name");

@@ -107,6 +107,7 @@ mod tests {
             let out = stage.run(table, &RunContext { setup: &setup, run: &run });
             match (out, want) {
                 (Ok(t), Some((eff, err))) => {
+                    // 1e-12 (both): at most one linear interpolation, a few roundings.
                     assert_relative_eq!(f64_values(&t, "efficiency").expect("column")[0], eff, max_relative = 1e-12);
                     assert_relative_eq!(
                         f64_values(&t, "efficiency_err").expect("column")[0],

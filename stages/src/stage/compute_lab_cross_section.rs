@@ -196,6 +196,8 @@ mod tests {
                 live_fraction,
                 luminosity_per_cm2: 1e30,
             });
+            // 1e-12: a product of five factors and a quadrature sum, some tens of roundings;
+            // epsilon 1e-15 for the cases without a systematic error (exactly 0).
             assert_relative_eq!(got.dsdo_mb_sr, dsdo, max_relative = 1e-12);
             assert_relative_eq!(got.stat_err_mb_sr, stat, max_relative = 1e-12);
             assert_relative_eq!(got.sys_err_mb_sr, sys, max_relative = 1e-12, epsilon = 1e-15);

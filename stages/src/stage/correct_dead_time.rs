@@ -522,6 +522,8 @@ mod tests {
         ];
         for (settings, run, value, err) in cases {
             let f = stage(settings).live_fraction(&record(run)).expect("a live fraction");
+            // 1e-12: a ratio, a product and a square root, a few roundings; epsilon 1e-15 for
+            // the exact clock ratio, whose error is 0.
             assert_relative_eq!(f.value, value, max_relative = 1e-12);
             assert_relative_eq!(f.err, err, max_relative = 1e-12, epsilon = 1e-15);
         }
