@@ -5,9 +5,9 @@
 //!
 //! Accuracy, measured against pycatima 1.982 (total stopping; its low-energy electronic
 //! stopping is the SRIM proton fits scaled by an effective charge), see
-//! `tests/stopping.rs`: at 0.1 MeV/u within +3 %/−75 % for 1H (C to Au), −15 %/−70 %
-//! for 4He, 0/−50 % for 16O and +40 %/−15 % for 58Ni; at 1 MeV/u within 5 % in targets up
-//! to Ni but −30 % in Au. The errors grow with the target's Z because the held shell
+//! `tests/stopping.rs`: at 0.1 MeV/u from +9 % to −74 % for 1H (C, Al, Ni, Au, C10H8O4),
+//! −11 %/−69 % for 4He, +4 %/−48 % for 16O and +48 %/−13 % for 58Ni; at 1 MeV/u within
+//! 9 % in targets up to Ni but −34 % in Au. The errors grow with the target's Z because the held shell
 //! correction of [`super::bethe`] is too large for heavy targets below about 5 MeV/u.
 //! Good enough to finish a range integral (the part of a range below 1 MeV/u is a few per
 //! cent of the range of a beam above 5 MeV/u), not for stopping powers at these energies.
