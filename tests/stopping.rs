@@ -120,3 +120,28 @@ fn energy_loss_and_straggling_agree_with_pycatima() {
         );
     }
 }
+
+#[test]
+fn stopping_verb_prints_json_and_exits_by_outcome() {
+    use crate::common::{repo_root, text, xsflow};
+    let args = ["stopping", "--ion", "4He", "--material", "58Ni", "--energy-mev", "24", "--format", "json"];
+    let out = xsflow(&repo_root(), &[&args[..], &["--thickness-ug-cm2", "1000"]].concat());
+    assert_eq!(out.status.code(), Some(0), "{}", text(&out));
+    let doc: serde_json::Value = serde_json::from_slice(&out.stdout).expect("one JSON object");
+    for key in ["stopping_total_mev_cm2_g", "range_mg_cm2", "energy_loss_mev", "energy_out_mev", "straggling_mev"] {
+        assert!(doc[key].as_f64().is_some_and(|v| v > 0.0), "{key}: {doc}");
+    }
+    // The loss through 1 mg/cm² is S·t to 0.5 % (S changes by about 0.3 % over the loss).
+    let loss = doc["energy_loss_mev"].as_f64().expect("number");
+    assert!((loss / (doc["stopping_total_mev_cm2_g"].as_f64().expect("number") * 1e-3) - 1.0).abs() < 5e-3);
+    // An ion that stops: the range is printed, exit 1, and stderr says so.
+    let out = xsflow(&repo_root(), &[&args[..], &["--thickness-ug-cm2", "1e6"]].concat());
+    assert_eq!(out.status.code(), Some(1), "{}", text(&out));
+    assert!(text(&out).contains("stops inside the layer: its range is"), "{}", text(&out));
+    let doc: serde_json::Value = serde_json::from_slice(&out.stdout).expect("one JSON object");
+    assert_eq!(doc["stops_inside"], true);
+    // Bad input: exit 2 naming the flag.
+    let out = xsflow(&repo_root(), &["stopping", "--ion", "4He", "--material", "C2H4)", "--energy-mev", "24"]);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(text(&out).contains("--material: material `C2H4)`: unbalanced parentheses"), "{}", text(&out));
+}

@@ -40,7 +40,7 @@ fn bethe_positive_mev_cm2_g(ion: &Ion, target: &Component, energy_mev: f64) -> f
 ///     1/S = 1/S_H(E) + 1/S_L(E),   S_L = k √E
 /// of a velocity-proportional low-energy stopping S_L (J. Lindhard, M. Scharff, Phys. Rev.
 /// 124 (1961) 128: S ∝ v for v < v₀ Z₁^(2/3)) and the positive Bethe-like S_H
-/// ([`bethe_positive_mev_cm2_g`]), the form of H. H. Andersen, J. F. Ziegler (Pergamon
+/// (`bethe_positive_mev_cm2_g`), the form of H. H. Andersen, J. F. Ziegler (Pergamon
 /// 1977) and of J. F. Ziegler, J. P. Biersack, U. Littmark, The Stopping and Range of Ions
 /// in Solids (Pergamon 1985) after A. Varelas, J. P. Biersack, Nucl. Instrum. Methods 79
 /// (1970) 213. Their per-element fit coefficients are not used: k is fixed by continuity

@@ -112,7 +112,7 @@ pub enum StoppingError {
         value: f64,
     },
     /// The ion stops inside the layer: its range is shorter than the layer.
-    #[error("the ion stops inside the layer: its range is {range_ug_cm2:.4} µg/cm², the layer is {thickness_ug_cm2} µg/cm² thick")]
+    #[error("the ion stops inside the layer: its range is {range_ug_cm2:.4} µg/cm², the layer is {thickness_ug_cm2:.4} µg/cm² thick")]
     StopsInside {
         /// The ion's range in the material, µg/cm².
         range_ug_cm2: f64,
