@@ -50,6 +50,15 @@ pub enum ReportFormat {
     Yaml,
 }
 
+/// How `xsflow stopping` prints its result.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum StoppingFormat {
+    /// Aligned lines with units.
+    Table,
+    /// One JSON object, units in the keys.
+    Json,
+}
+
 /// The detected particle, on the command line.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
 pub enum DetectArg {
@@ -168,6 +177,27 @@ pub enum Command {
         /// Output format.
         #[arg(long, value_enum, default_value_t = TableFormat::Table)]
         format: TableFormat,
+    },
+    /// Stopping power (electronic, nuclear, total) and range of an ion in a material, and
+    /// with --thickness-ug-cm2 the energy loss, exit energy and straggling of a layer.
+    /// Sources and validity: README, section "Energy loss in matter". Exit 1 when the ion
+    /// stops inside the layer (its range is printed instead).
+    Stopping {
+        /// The ion: 4He, alpha, p, 16O, 58Ni, ...
+        #[arg(long)]
+        ion: String,
+        /// The material: an element (Ni), a nuclide (58Ni) or a formula (C2H4, Al2O3).
+        #[arg(long)]
+        material: String,
+        /// Kinetic energy of the ion in MeV.
+        #[arg(long = "energy-mev", allow_negative_numbers = true)]
+        energy_mev: f64,
+        /// Areal density of a layer in µg/cm²: adds energy loss, exit energy, straggling.
+        #[arg(long = "thickness-ug-cm2", allow_negative_numbers = true)]
+        thickness_ug_cm2: Option<f64>,
+        /// Output format.
+        #[arg(long, value_enum, default_value_t = StoppingFormat::Table)]
+        format: StoppingFormat,
     },
     /// A model curve at CM angles: optical model (Woods–Saxon, computed here), Rutherford,
     /// or hard sphere, from a model file (`xsflow schema model` shows its form).

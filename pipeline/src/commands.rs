@@ -12,7 +12,7 @@ use stages::setup::DetectConfig;
 use tracing_subscriber::EnvFilter;
 
 use crate::batch::{BatchOptions, BatchSummary};
-use crate::cli::{Command, DetectArg, Format, ReportFormat, TableFormat};
+use crate::cli::{Command, DetectArg, Format, ReportFormat, StoppingFormat, TableFormat};
 use crate::error::{render, Diagnostic, RunFailure};
 use crate::plan::{plan, plan_with};
 use crate::run::{check_runs, reduce_all};
@@ -170,6 +170,9 @@ pub fn execute(command: Command) -> Report {
             };
             kinematics_table(&request, &angles, format)
         }
+        Command::Stopping { ion, material, energy_mev, thickness_ug_cm2, format } => {
+            stopping(&ion, &material, energy_mev, thickness_ug_cm2, format)
+        }
         Command::Theory { model, angles, format } => theory_curve(&model, &angles, format),
         Command::Fit { data, model, state, out, format } => {
             fit_command(&data, &model, state.as_deref(), out.as_deref(), format)
@@ -285,6 +288,26 @@ fn kinematics_table(request: &kinematics::Request<'_>, angles_text: &str, format
     let mode = if request.non_relativistic { Mode::NonRelativistic } else { Mode::Relativistic };
     let rows = kinematics::rows(&reaction, &angles, mode);
     printed_table(kinematics::render(&reaction, &rows, format, mode))
+}
+
+fn stopping(
+    ion: &str,
+    material: &str,
+    energy_mev: f64,
+    thickness_ug_cm2: Option<f64>,
+    format: StoppingFormat,
+) -> Report {
+    match crate::stopping::compute(ion, material, energy_mev, thickness_ug_cm2) {
+        Ok((result, warnings)) => {
+            let report = warnings
+                .iter()
+                .fold(Report::new().out(&crate::stopping::render(&result, format == StoppingFormat::Json)), |r, w| {
+                    r.err(format_args!("warning: {w}"))
+                });
+            report.end(failed_if(result.stops_inside))
+        }
+        Err(lines) => lines.iter().fold(Report::new(), Report::err).end(Outcome::BadInput),
+    }
 }
 
 fn theory_curve(model: &Path, angles_text: &str, format: TableFormat) -> Report {

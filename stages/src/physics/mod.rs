@@ -20,6 +20,7 @@ pub mod peak_fit;
 pub mod polygon;
 pub mod rutherford;
 pub mod solid_angle;
+pub mod stopping;
 pub mod synthetic;
 pub mod uncertainty;
 
