@@ -378,3 +378,22 @@ fn inverse_kinematics_branches_come_from_the_yields_table() {
         text(&out)
     );
 }
+
+#[test]
+fn issue_18_an_elastic_recoil_stops_at_90_degrees() {
+    // 58Ni recoils from 4He elastic scattering never move backward: the table and its
+    // warning said 180°, and a rounding root gave a spurious row of 1e-21 MeV just past 90°.
+    let args = ["kinematics", "--beam", "4He", "--target", "58Ni", "--energy-mev", "24", "--detect", "recoil"];
+    let out = xsflow(&crate::common::repo_root(), &[&args[..], &["--angles", "80,90.6,95"]].concat());
+    assert_eq!(out.status.code(), Some(0), "{}", text(&out));
+    let msg = text(&out);
+    assert!(
+        msg.contains("max lab angle: 90.0000 deg") && msg.contains("beyond the maximum lab angle 90.0000 deg"),
+        "{msg}"
+    );
+    assert_eq!(
+        String::from_utf8_lossy(&out.stdout).lines().filter(|l| l.trim_start().starts_with("9")).count(),
+        0,
+        "{msg}"
+    );
+}

@@ -149,6 +149,12 @@ impl Frame {
         self.beta > self.beta_star() * (1.0 + 1e-10)
     }
 
+    /// Whether β = β* within the same margin (an elastic recoil): the particle's lab angle
+    /// then stops at 90°, and the root p = 0 (no scattering) is not a solution.
+    fn on_boundary(&self) -> bool {
+        (self.beta - self.beta_star()).abs() <= self.beta_star() * 1e-10
+    }
+
     /// Lab momenta (speeds) at lab angle θ, largest first.
     ///
     /// Relativistic: E* = γ(E − β p cos θ) with E = √(p² + m²) gives
@@ -386,12 +392,14 @@ impl Channel {
     }
 
     /// Largest lab angle the detected particle reaches, in rad: π when every lab angle has a
-    /// solution; else tan θ_max = β* / (γ √(β² − β*²)) (relativistic; Galilean:
-    /// sin θ_max = v*/V), with β the CM velocity and β* the particle's velocity in the CM.
+    /// solution (β < β*); π/2 on the boundary β = β* (an elastic recoil moves in the CM as
+    /// fast as the CM moves, so its lab angle (π − θ_cm)/2 never goes backward); else tan θ_max = β* / (γ √(β² − β*²)) (relativistic;
+    /// Galilean: sin θ_max = v*/V), with β the CM velocity and β* the particle's velocity in
+    /// the CM.
     pub fn max_lab_angle_rad(&self, detect: Detect, mode: Mode) -> f64 {
         let f = self.frame(detect, mode);
         if !f.double_valued() {
-            return PI;
+            return if f.on_boundary() { PI / 2.0 } else { PI };
         }
         let bs = f.beta_star();
         (bs / (f.gamma * (f.beta * f.beta - bs * bs).sqrt())).atan()
@@ -402,6 +410,9 @@ impl Channel {
     /// energy first) where it is double valued.
     pub fn at_lab_angle(&self, theta_lab_rad: f64, detect: Detect, mode: Mode) -> Vec<Solution> {
         let f = self.frame(detect, mode);
+        if f.on_boundary() && theta_lab_rad > PI / 2.0 {
+            return Vec::new();
+        }
         let mut roots = f.lab_roots(theta_lab_rad);
         if !f.double_valued() {
             roots.truncate(1);
@@ -486,6 +497,30 @@ mod tests {
             theta_max,
             max_relative = 1e-12
         );
+    }
+
+    #[test]
+    fn maximum_lab_angles_by_particle() {
+        // (beam, target masses in MeV, detected, mode, θ_max): an elastic recoil never goes
+        // past 90° (issue 18: the table said 180°), a light ejectile reaches every angle, a
+        // heavy one stops at arcsin(m_A/m_a) (common practice).
+        let light = elastic(3727.379, 53_952.0, 24.0);
+        let heavy = elastic(11174.86, 938.272, 60.0);
+        let half = std::f64::consts::FRAC_PI_2;
+        let cases = [
+            (&light, Detect::Recoil, Mode::Relativistic, half),
+            (&light, Detect::Recoil, Mode::NonRelativistic, half),
+            (&heavy, Detect::Recoil, Mode::Relativistic, half),
+            (&light, Detect::Ejectile, Mode::Relativistic, PI),
+            (&heavy, Detect::Ejectile, Mode::NonRelativistic, (938.272f64 / 11174.86).asin()),
+        ];
+        for (ch, detect, mode, expected) in cases {
+            // 1e-12: exact cases, or an arcsine of a mass ratio (see the test above).
+            assert_relative_eq!(ch.max_lab_angle_rad(detect, mode), expected, max_relative = 1e-12);
+        }
+        // Past 90° an elastic recoil has no solution (at 90.6°).
+        let past = light.at_lab_angle(half + 0.01, Detect::Recoil, Mode::Relativistic);
+        assert!(past.is_empty(), "{past:?}");
     }
 
     #[test]
