@@ -212,3 +212,31 @@ fn a_live_clock_given_for_some_detectors_only_is_refused_naming_those_with_and_w
            run's live_time_s then holds for all)"],
     );
 }
+
+#[test]
+fn issue_18_bytes_that_are_not_utf8_are_refused_with_their_place() {
+    // A Latin-1 "é" (0xe9) in a comment of the config, then in run 0101's record: both were
+    // read as U+FFFD and accepted without a word.
+    let tmp = demo_copy();
+    let config = tmp.path().join("experiment.yaml");
+    let mut bytes = b"# caf\xe9\n".to_vec();
+    bytes.extend(std::fs::read(&config).expect("config"));
+    std::fs::write(&config, bytes).expect("config");
+    let (code, msg) = reduce(tmp.path());
+    assert_eq!(code, Some(2), "{msg}");
+    assert!(
+        msg.contains("experiment.yaml:1:6 byte 0xe9 is not UTF-8 text") && msg.contains("save the file as UTF-8"),
+        "{msg}"
+    );
+    assert!(files_below(&tmp.path().join("out")).is_empty(), "a config error wrote outputs");
+
+    let tmp = demo_copy();
+    let record = tmp.path().join("runs/run0101.run.yaml");
+    let mut bytes = std::fs::read(&record).expect("record");
+    bytes.extend(b"# \xff\n");
+    std::fs::write(&record, bytes).expect("record");
+    let (code, msg) = reduce(tmp.path());
+    assert_eq!(code, Some(1), "{msg}");
+    assert!(msg.contains("run0101.run.yaml") && msg.contains("byte 0xff is not UTF-8 text"), "{msg}");
+    assert!(msg.contains("3 run(s) reduced, 1 failed"), "{msg}");
+}

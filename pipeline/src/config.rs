@@ -78,13 +78,26 @@ impl YamlFile {
     /// Read and parse a YAML file.
     ///
     /// # Errors
-    /// A diagnostic for an unreadable file or a YAML syntax error (with its position).
+    /// A diagnostic for an unreadable file, bytes that are not UTF-8, or a YAML syntax error
+    /// (with its position).
     pub fn read(path: &Path) -> Result<Self, Diagnostic> {
         let bytes = std::fs::read(path).map_err(|e| {
             Diagnostic::new(path, "", format!("cannot read the file: {e}"))
                 .with_help("check the path; relative paths are relative to the file that names them")
         })?;
-        let text = String::from_utf8_lossy(&bytes).into_owned();
+        let text = match String::from_utf8(bytes.clone()) {
+            Ok(text) => text,
+            Err(e) => {
+                // Line and column of the first bad byte, counted in the valid part before it.
+                let valid = &bytes[..e.utf8_error().valid_up_to()];
+                let line = 1 + valid.iter().filter(|b| **b == b'\n').count();
+                let column = 1 + valid.iter().rev().take_while(|b| **b != b'\n').count();
+                let byte = bytes[valid.len()];
+                return Err(Diagnostic::new(path, "", format!("byte 0x{byte:02x} is not UTF-8 text"))
+                    .at(Some((line, column)))
+                    .with_help("save the file as UTF-8 (YAML files are UTF-8 text)"));
+            }
+        };
         let value: Value = serde_yaml::from_str(&text).map_err(|e| {
             let place = e.location().map(|l| (l.line(), l.column()));
             Diagnostic::new(path, "", format!("is not valid YAML: {e}")).at(place)
