@@ -240,3 +240,24 @@ fn issue_18_bytes_that_are_not_utf8_are_refused_with_their_place() {
     assert!(msg.contains("run0101.run.yaml") && msg.contains("byte 0xff is not UTF-8 text"), "{msg}");
     assert!(msg.contains("3 run(s) reduced, 1 failed"), "{msg}");
 }
+
+#[test]
+fn issue_18_background_beyond_the_gross_counts_is_reported() {
+    // D01's 2+ row with a background of 20000 for 16079 gross counts: net −3921 ± 142, far
+    // below −3 standard errors. The run is reduced (the row is kept) and the warning names
+    // the row and the counts.
+    let tmp = demo_copy();
+    edit(
+        &tmp.path().join("runs/run0101.yields.csv"),
+        "D01,2+_1.454,16079,36.0,6.0000",
+        "D01,2+_1.454,16079,20000.0,141.4",
+    );
+    let (code, msg) = reduce(tmp.path());
+    assert_eq!(code, Some(0), "{msg}");
+    assert!(
+        msg.contains("background 20000 is more than the gross counts 16079")
+            && msg.contains("detector=D01")
+            && msg.contains("state=2+_1.454"),
+        "{msg}"
+    );
+}

@@ -7,7 +7,7 @@ use polars::prelude::DataFrame;
 use schemars::JsonSchema;
 use serde::Deserialize;
 
-use crate::table::{f64_values, with_f64_columns};
+use crate::table::{f64_values, str_values, with_f64_columns};
 use crate::{Problem, RunContext, Stage, StageError};
 
 /// Settings of `subtract_background`. The background comes from the yields table (side
@@ -59,6 +59,44 @@ pub fn net_counts(gross: f64, background: f64, background_err: f64) -> (f64, f64
     (gross - background, (gross_var + background_err * background_err).sqrt())
 }
 
+/// Net counts below −3 standard errors: more background than gross counts, beyond what a
+/// fluctuation of a true zero gives (a 0.13 % one-sided chance, common practice), which
+/// points at a wrong background, not at statistics.
+const EXCESS_BACKGROUND_SIGMAS: f64 = 3.0;
+
+/// Whether the net counts are impossibly negative (see [`EXCESS_BACKGROUND_SIGMAS`]).
+pub fn excess_background(net: f64, net_err: f64) -> bool {
+    net < -EXCESS_BACKGROUND_SIGMAS * net_err
+}
+
+/// Warn, naming detector, state and counts, of every row whose background exceeds its gross
+/// counts beyond statistics; the row is kept (its cross section is negative).
+fn warn_of_excess_background(
+    table: &DataFrame,
+    gross: &[f64],
+    background: &[f64],
+    net: &[f64],
+    err: &[f64],
+) -> Result<(), StageError> {
+    let bad: Vec<usize> = (0..net.len()).filter(|&i| excess_background(net[i], err[i])).collect();
+    if bad.is_empty() {
+        return Ok(());
+    }
+    let (detectors, states) = (str_values(table, "detector")?, str_values(table, "state")?);
+    for i in bad {
+        tracing::warn!(
+            detector = %detectors[i],
+            state = %states[i],
+            "background {} is more than the gross counts {}: net {:.1} ± {:.1}, below −3 standard errors; check the background",
+            background[i],
+            gross[i],
+            net[i],
+            err[i]
+        );
+    }
+    Ok(())
+}
+
 impl Stage for SubtractBackground {
     fn name(&self) -> &'static str {
         "subtract_background"
@@ -86,6 +124,7 @@ impl Stage for SubtractBackground {
         };
         let (net, err): (Vec<f64>, Vec<f64>) =
             gross.iter().zip(&background).zip(&background_err).map(|((g, b), u)| net_counts(*g, *b, *u)).unzip();
+        warn_of_excess_background(&table, &gross, &background, &net, &err)?;
         with_f64_columns(table, vec![("counts_net", net), ("counts_net_err", err)])
     }
 }
@@ -111,6 +150,22 @@ mod tests {
             // 1e-15: one difference and one square root of a sum, rounded once each.
             assert_relative_eq!(y, net, max_relative = 1e-15);
             assert_relative_eq!(u, err, max_relative = 1e-15);
+        }
+    }
+
+    #[test]
+    fn excess_background_beyond_three_standard_errors() {
+        // (gross, background, background_err, warned): −3σ is the line.
+        let cases = [
+            (100.0, 100.0, 10.0, false),
+            (100.0, 130.0, 10.0, false), // net −30 ± 14.1: −2.1σ
+            (100.0, 150.0, 10.0, true),  // net −50 ± 14.1: −3.5σ
+            (0.0, 8.0, 2.0, false),      // −8 ± √(1.841² + 2²) = −8 ± 2.72: −2.94σ
+            (0.0, 10.0, 2.0, true),      // −10 ± 2.72: −3.7σ
+        ];
+        for (g, b, ub, warned) in cases {
+            let (net, err) = net_counts(g, b, ub);
+            assert_eq!(excess_background(net, err), warned, "{g} {b} {ub}: {net} ± {err}");
         }
     }
 
