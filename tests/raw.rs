@@ -596,3 +596,20 @@ fn issue_17_a_tail_reaching_a_neighbouring_gate_is_reported() {
         assert_eq!(msg.contains("of the counts of the elastic peak fall in the net counts of 2+"), reported, "{msg}");
     }
 }
+
+#[test]
+fn issue_18_events_none_of_which_is_usable_fail_the_run() {
+    // Well-formed CSV with detector values no mapping knows and channels past the overflow:
+    // zero yields with exit 0 before; now the run fails with the tallies.
+    let tmp = tempfile::tempdir().expect("scratch");
+    tiny(tmp.path(), "", "det,adc,pu\nZ,2000,0\nQ,2050,0\nA,99999,0\nA,-5,0\n");
+    let out = reduce(tmp.path());
+    let msg = text(&out);
+    assert_eq!(out.status.code(), Some(1), "{msg}");
+    assert!(
+        msg.contains("none of its 4 events is usable: 2 with an unknown detector, 2 with an invalid value")
+            && msg.contains("check raw.columns, raw.detector_ids and raw.overflow_channel"),
+        "{msg}"
+    );
+    assert!(!tmp.path().join("out/t1").exists());
+}

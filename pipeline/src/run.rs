@@ -65,8 +65,20 @@ fn reduce_raw(plan: &Plan, run: &LoadedRun) -> Result<(DataFrame, RawOutputs), V
         _ => crate::events::reduce_events(path, raw),
     }
     .map_err(|e| vec![Diagnostic::new(path, "", e.to_string())])?;
-    if result.tally.events == 0 {
+    let t = &result.tally;
+    if t.events == 0 {
         warn!(run = %run.record.run, file = %path.display(), "the file holds no events: every yield is zero");
+    } else if t.unknown_detector + t.invalid_value == t.events {
+        // Not one usable event: the file is not what the `raw:` section describes.
+        return Err(vec![Diagnostic::new(
+            path,
+            "",
+            format!(
+                "none of its {} events is usable: {} with an unknown detector, {} with an invalid value",
+                t.events, t.unknown_detector, t.invalid_value
+            ),
+        )
+        .with_help("check raw.columns, raw.detector_ids and raw.overflow_channel against the file")]);
     }
     for w in &result.warnings {
         warn!("{w}");
