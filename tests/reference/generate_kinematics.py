@@ -266,12 +266,14 @@ class Reaction:
         return 1 if cos_star > -self.beta_star(particle) / self.beta_cm else 2
 
     def theta_max(self, particle):
-        """Maximum lab angle [rad] of 'b' or 'B' when double valued, else pi.
+        """Maximum lab angle [rad] of 'b' or 'B' when double valued, pi/2 on the boundary, else pi.
 
         Closed form tan theta_max = beta* / (gamma_cm sqrt(beta_cm^2 - beta*^2))
         (from d theta_lab / d theta* = 0, i.e. cos theta* = -beta*/beta_cm; common
         practice), checked against a golden-section maximisation of theta_lab(theta*).
         """
+        if relativistically_equal(self.beta_cm, self.beta_star(particle)):
+            return mpmath.pi / 2  # theta_lab = (pi - theta*)/2 for the recoil: never backward
         if not self.double_valued(particle):
             return mpmath.pi
         b_star = self.beta_star(particle)
@@ -373,7 +375,7 @@ def kinematics_rows():
                     r.m_a, r.m_A, r.m_b, r.m_B,
                     float(energy), float(excitation),
                     theta_lab_deg, r.branch(d, cos_star),
-                    theta_max_deg if r.double_valued(d) else 180.0,
+                    theta_max_deg if r.double_valued(d) else float(theta_max_deg),
                     float(theta_cm_deg), energy_lab, jac,
                     mpmath.degrees(lab_angle_of(oth4)), oth4[0] - r.mass_of(other),
                 ])
@@ -410,8 +412,8 @@ def write_kinematics(out_dir):
             " valued; branch 1 when cos theta* > -beta*/beta_cm (higher lab energy), else 2;"
             " single valued: 1. theta_max_lab_deg: tan = beta*/(gamma_cm sqrt(beta_cm^2 - beta*^2))"
             " when double valued, else 180.0.",
-            "beta_cm = beta* (elastic recoil; equal masses) counts as single valued (branch 1,"
-            " theta_max_lab_deg 180.0) although theta_lab then stays below 90 deg.",
+            "beta_cm = beta* (elastic recoil; equal masses) counts as single valued (branch 1)"
+            " with theta_max_lab_deg 90.0: theta_lab = (180 - theta*)/2 never passes 90 deg.",
             "m_recoil_mev is the ground-state mass of B. case numbers each (reaction, detect) pair."
             f" Grid theta_cm = 5, 15, ..., 175 deg; {skipped} points skipped (lab angle within"
             f" {EDGE_SKIP_DEG} deg of 0 or 180, or Jacobian not finite).",
