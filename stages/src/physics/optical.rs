@@ -142,10 +142,33 @@ pub enum OpticalError {
     /// The Coulomb functions at the matching radius failed.
     #[error("matching: {0}")]
     Coulomb(#[from] CoulombError),
+    /// The radial grid the numerics ask for exceeds [`MAX_GRID_POINTS`].
+    #[error("the radial grid would have {points} points (outer matching radius {radius_fm:.4} fm in steps of {step_fm:.3e} fm), more than the {MAX_GRID_POINTS} allowed: give a larger step_fm, a smaller matching_radius_fm or a lower accuracy, or check the potential depths")]
+    GridTooLarge {
+        /// Points asked for.
+        points: f64,
+        /// Outer matching radius, fm.
+        radius_fm: f64,
+        /// Step, fm.
+        step_fm: f64,
+    },
+    /// The partial-wave sum did not converge within [`L_CAP`] waves.
+    #[error("the partial-wave sum did not converge by L = {L_CAP} (k r = {k_r:.0} at the matching radius): the energy is beyond what this solver sums")]
+    NotConverged {
+        /// k times the inner matching radius.
+        k_r: f64,
+    },
 }
 
+/// The most points of the radial grid (32 MB of complex values per array): the automatic
+/// numerics need a few thousand at most for any accuracy the solver accepts.
+pub const MAX_GRID_POINTS: usize = 2_000_000;
+/// The largest depth of a potential term accepted, MeV: optical potentials are below a few
+/// hundred MeV (common practice); far beyond, the grid only grows.
+pub const MAX_DEPTH_MEV: f64 = 1e4;
+
 /// Partial waves up to this many are the most the solver sums.
-const L_CAP: usize = 2000;
+pub const L_CAP: usize = 2000;
 /// |1 − S_L| below this fraction of the accuracy for three L in a row (beyond the grazing
 /// wave) ends the sum.
 const S_CONVERGED_PER_ACCURACY: f64 = 1e-6;
@@ -231,7 +254,7 @@ fn solve_recording(
     for (name, ws) in [("real", &pot.real), ("imag_volume", &pot.imag_volume), ("imag_surface", &pot.imag_surface)] {
         check(name, ws.radius_fm, ws.radius_fm > 0.0, "a radius > 0 fm")?;
         check(name, ws.diffuseness_fm, ws.diffuseness_fm > 0.0, "a diffuseness > 0 fm")?;
-        check(name, ws.depth_mev, true, "a finite depth")?;
+        check(name, ws.depth_mev, ws.depth_mev.abs() <= MAX_DEPTH_MEV, "a depth within ±10000 MeV")?;
     }
     check("coulomb radius", pot.coulomb_radius_fm, pot.coulomb_radius_fm > 0.0, "a radius > 0 fm")?;
     check("reduced mass", ch.reduced_mass_mev, ch.reduced_mass_mev > 0.0, "> 0 MeV")?;
@@ -247,12 +270,25 @@ fn solve_recording(
         + coulomb(0.0).abs();
     let k_local = (k * k + c2m * depth_sum).sqrt();
     let acc = numerics.accuracy.unwrap_or(DEFAULT_ACCURACY);
-    check("accuracy", acc, acc > 0.0 && acc <= 1e-2, "a relative accuracy in (0, 0.01]")?;
+    // 1e-12: Numerov's h⁴ error meets f64 round-off near there.
+    check("accuracy", acc, (1e-12..=1e-2).contains(&acc), "a relative accuracy in [1e-12, 0.01]")?;
     let h = numerics.step_fm.unwrap_or((2.5 * acc.powf(0.25)).min(0.35) / k_local);
     check("step", h, h > 0.0, "a step > 0 fm")?;
     let nuclear_range =
         [pot.real, pot.imag_volume, pot.imag_surface].iter().map(|t| t.range_fm(1e-5 * acc)).fold(rc + 1.0, f64::max);
     let r_a = numerics.matching_radius_fm.unwrap_or(nuclear_range);
+    check("matching radius", r_a, r_a > 0.0, "a radius > 0 fm")?;
+    if let Some(l) = numerics.l_max.filter(|l| *l > L_CAP) {
+        return Err(OpticalError::Invalid { what: "l_max", value: l as f64, expected: "at most 2000 partial waves" });
+    }
+    let points = (r_a + std::f64::consts::FRAC_PI_2 / k) / h;
+    if points > MAX_GRID_POINTS as f64 {
+        return Err(OpticalError::GridTooLarge { points, radius_fm: r_a + std::f64::consts::FRAC_PI_2 / k, step_fm: h });
+    }
+    // The sum needs L past the grazing wave k r_a: beyond the cap it cannot converge.
+    if numerics.l_max.is_none() && k * r_a > L_CAP as f64 {
+        return Err(OpticalError::NotConverged { k_r: k * r_a });
+    }
     let n_a = (r_a / h).ceil() as usize;
     let n_b = n_a + ((std::f64::consts::FRAC_PI_2 / k / h).ceil() as usize).max(10);
     let (r_a, r_b) = (n_a as f64 * h, n_b as f64 * h);
@@ -301,6 +337,9 @@ fn solve_recording(
         if numerics.l_max.is_none() && quiet >= 3 {
             break;
         }
+    }
+    if numerics.l_max.is_none() && quiet < 3 {
+        return Err(OpticalError::NotConverged { k_r: k * r_a });
     }
     let l_max = s.len() - 1;
     Ok(OpticalSolution {
@@ -401,6 +440,35 @@ mod tests {
                 charge_product: 56.0,
             },
         )
+    }
+
+    #[test]
+    fn absurd_numerics_are_refused_before_any_work() {
+        // Issue 18: these asked for gigabytes or minutes, or cut the sum silently.
+        // (numerics, depth, lab energy, what the error says)
+        let numerics = |f: fn(&mut Numerics)| {
+            let mut n = Numerics::default();
+            f(&mut n);
+            n
+        };
+        let cases = [
+            (numerics(|n| n.accuracy = Some(1e-30)), 150.0, 24.0, "a relative accuracy in [1e-12, 0.01]"),
+            (numerics(|n| n.step_fm = Some(1e-9)), 150.0, 24.0, "the radial grid would have"),
+            (numerics(|n| n.matching_radius_fm = Some(1e9)), 150.0, 24.0, "the radial grid would have"),
+            (numerics(|n| n.l_max = Some(10_000_000)), 150.0, 24.0, "at most 2000 partial waves"),
+            (Numerics::default(), 1e12, 24.0, "a depth within ±10000 MeV"),
+            (Numerics::default(), 150.0, 1e6, "did not converge by L = 2000"),
+        ];
+        for (n, depth, e_lab, message) in cases {
+            let (mut pot, mut ch) = alpha_ni58(depth, 20.0, 0.0);
+            pot.real.depth_mev = depth;
+            ch.e_cm_mev *= e_lab / 24.0;
+            let started = std::time::Instant::now();
+            let err = solve(&pot, &ch, &n).expect_err("refused").to_string();
+            assert!(err.contains(message), "{err}");
+            // A refusal, not a long computation (generous: a debug build on a busy machine).
+            assert!(started.elapsed().as_secs_f64() < 5.0, "{message}: {:?}", started.elapsed());
+        }
     }
 
     #[test]
