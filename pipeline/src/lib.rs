@@ -17,5 +17,6 @@ pub mod plan;
 pub mod provenance;
 pub mod run;
 pub mod schema;
+pub mod simulate;
 pub mod tables;
 pub mod theory;
