@@ -15,4 +15,5 @@ mod provenance;
 mod raw;
 mod reference;
 mod regression;
+mod simulate;
 mod theory;
