@@ -499,12 +499,19 @@ fn write_events(
                 w.finish()
             })
         } else {
-            ParquetWriter::new(file).with_row_group_size(Some(BATCH)).set_parallel(false).batched(&schema).and_then(
-                |mut w| {
+            // zstd at level 1, not the default 3: the encoding is most of the time.
+            polars::polars_utils::compression::ZstdLevel::try_new(1)
+                .and_then(|level| {
+                    ParquetWriter::new(file)
+                        .with_compression(ParquetCompression::Zstd(Some(level)))
+                        .with_row_group_size(Some(BATCH))
+                        .set_parallel(false)
+                        .batched(&schema)
+                })
+                .and_then(|mut w| {
                     write(&mut |df| w.write_batch(df))?;
                     w.finish().map(|_| ())
-                },
-            )
+                })
         };
         result.map(|()| (all - lost, lost))
     });
