@@ -15,5 +15,6 @@ mod provenance;
 mod raw;
 mod reference;
 mod regression;
+mod simulate;
 mod stopping;
 mod theory;

@@ -68,6 +68,15 @@ pub enum DetectArg {
     Recoil,
 }
 
+/// A dead-time model, on the command line.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum DeadTimeArg {
+    /// Each recorded event blocks the acquisition for the resolving time.
+    NonParalyzable,
+    /// Every arriving event extends the blocked time.
+    Paralyzable,
+}
+
 /// The verbs.
 #[derive(Debug, Subcommand)]
 pub enum Command {
@@ -231,6 +240,56 @@ pub enum Command {
         /// How the report is printed.
         #[arg(long, value_enum, default_value_t = ReportFormat::Text)]
         format: ReportFormat,
+    },
+    /// Synthetic runs with known truth, from an experiment config and a true cross section:
+    /// writes into --out the run records and data files (list-mode events, spectra or
+    /// yields, in the formats `reduce` reads), experiment.yaml (the config, its runs pointing
+    /// at them) and truth.parquet (per run, detector, state and branch: expected counts,
+    /// true lab and CM cross sections, live fraction, solid angle). Deterministic for a seed.
+    Simulate {
+        /// The experiment config (YAML), as `reduce` reads it.
+        config: PathBuf,
+        /// The elastic state's true cross section: a model file of `xsflow theory` for the
+        /// config's beam, target and energy.
+        #[arg(long)]
+        truth: PathBuf,
+        /// Another state's true CM cross section: STATE=MB_SR (a constant, mb/sr) or
+        /// STATE=MODEL (a model file); repeat for each state that is not elastic.
+        #[arg(long = "state-truth", value_name = "STATE=VALUE")]
+        state_truth: Vec<String>,
+        /// Output folder (new, or without experiment.yaml and runs/).
+        #[arg(long)]
+        out: PathBuf,
+        /// Seed of the random numbers.
+        #[arg(long, default_value_t = 1)]
+        seed: u64,
+        /// Number of runs (1 to 9999).
+        #[arg(long, default_value_t = 1)]
+        runs: u32,
+        /// Expected events arriving at the detectors per run, before dead time (1 to 2^40;
+        /// 1e8 is accepted); the beam charge follows from it.
+        #[arg(long, default_value_t = 1e6)]
+        events: f64,
+        /// The run files' format; default `events` with a `raw:` section, else `yields`.
+        #[arg(long, value_enum)]
+        data: Option<crate::simulate::DataKind>,
+        /// Real time of each run in s.
+        #[arg(long = "real-time-s", default_value_t = 3600.0)]
+        real_time_s: f64,
+        /// The acquisition's dead-time model; default the config's correct_dead_time model,
+        /// else non-paralyzable.
+        #[arg(long = "dead-time", value_enum)]
+        dead_time: Option<DeadTimeArg>,
+        /// Resolving time of the acquisition in µs; default the config's, else 2.
+        #[arg(long = "resolving-time-us")]
+        resolving_time_us: Option<f64>,
+        /// Flat background in each detector: its counts over all channels as a fraction of
+        /// the detector's peak counts (raw data only).
+        #[arg(long = "background-fraction", default_value_t = 0.01)]
+        background_fraction: f64,
+        /// Pulser rate in 1/s (its recorded signals follow the live fraction).
+        #[arg(long = "pulser-rate-per-s", default_value_t = 10.0)]
+        pulser_rate_per_s: f64,
     },
     /// Print a JSON Schema: the config (default), a run record, or a table.
     Schema {

@@ -9,10 +9,11 @@ use std::path::Path;
 
 use stages::physics::kinematics::Mode;
 use stages::setup::DetectConfig;
+use stages::simulate::{DeadTimeModel, SimulateOptions};
 use tracing_subscriber::EnvFilter;
 
 use crate::batch::{BatchOptions, BatchSummary};
-use crate::cli::{Command, DetectArg, Format, ReportFormat, StoppingFormat, TableFormat};
+use crate::cli::{Command, DeadTimeArg, DetectArg, Format, ReportFormat, StoppingFormat, TableFormat};
 use crate::error::{render, Diagnostic, RunFailure};
 use crate::plan::{plan, plan_with};
 use crate::run::{check_runs, reduce_all};
@@ -176,6 +177,45 @@ pub fn execute(command: Command) -> Report {
         Command::Theory { model, angles, format } => theory_curve(&model, &angles, format),
         Command::Fit { data, model, state, out, format } => {
             fit_command(&data, &model, state.as_deref(), out.as_deref(), format)
+        }
+        Command::Simulate {
+            config,
+            truth,
+            state_truth,
+            out,
+            seed,
+            runs,
+            events,
+            data,
+            real_time_s,
+            dead_time,
+            resolving_time_us,
+            background_fraction,
+            pulser_rate_per_s,
+        } => {
+            let request = crate::simulate::Request {
+                config,
+                truth,
+                state_truths: state_truth,
+                out,
+                data,
+                dead_time: dead_time.map(|d| match d {
+                    DeadTimeArg::NonParalyzable => DeadTimeModel::NonParalyzable,
+                    DeadTimeArg::Paralyzable => DeadTimeModel::Paralyzable,
+                }),
+                resolving_time_us,
+                options: SimulateOptions {
+                    seed,
+                    runs,
+                    events,
+                    real_time_s,
+                    dead_time: DeadTimeModel::NonParalyzable,
+                    resolving_time_us: 0.0,
+                    background_fraction,
+                    pulser_rate_per_s,
+                },
+            };
+            simulate_runs(&request)
         }
         Command::Schema { name } => match crate::schema::schema_json(&name) {
             Some(s) => Report::new().out(&s),
@@ -357,6 +397,19 @@ fn fit_command(data: &Path, model: &Path, state: Option<&str>, out: Option<&Path
                 out_dir.display()
             ))
             .end(Outcome::Failed)
+    }
+}
+
+fn simulate_runs(request: &crate::simulate::Request) -> Report {
+    match crate::simulate::simulate(request) {
+        Ok(s) => Report::new().err(format_args!(
+            "{} run(s) simulated, {} events recorded at live fraction {:.4}; reduce them with: xsflow reduce {}",
+            s.runs,
+            s.recorded,
+            s.live_fraction,
+            s.config.display()
+        )),
+        Err(diags) => Report::diagnostics(&diags),
     }
 }
 

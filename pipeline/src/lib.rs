@@ -17,6 +17,7 @@ pub mod plan;
 pub mod provenance;
 pub mod run;
 pub mod schema;
+pub mod simulate;
 pub mod stopping;
 pub mod tables;
 pub mod theory;

@@ -16,6 +16,7 @@ mod problem;
 pub mod raw;
 pub mod registry;
 pub mod setup;
+pub mod simulate;
 pub mod stage;
 pub mod table;
 pub mod theory;

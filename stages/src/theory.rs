@@ -10,7 +10,7 @@ use crate::physics::nuclide::{self, Nuclide};
 use crate::physics::optical::{self, ElasticChannel, Numerics, OpticalPotential, WoodsSaxon};
 use crate::physics::partial_waves::{hard_sphere, PartialWaves};
 use crate::problem::Checks;
-use crate::Problem;
+use crate::{Problem, Setup};
 
 /// Beam, target and beam energy of a theory curve.
 #[derive(Debug, Clone, Deserialize, JsonSchema)]
@@ -207,7 +207,57 @@ impl TheoryReaction {
     }
 }
 
+impl TheoryReaction {
+    /// Where this reaction is not the one of the experiment `setup` describes: another beam
+    /// or target, another beam energy (relative difference above 1e-9), or a nuclear mass
+    /// the experiment overrides (`atomic_masses_u`; model files use AME2020 masses). Keys as
+    /// in the model file; the messages say what the file is for (`it fits`, `it
+    /// simulates`, and `verb` the experiment); nothing for a set-up without a reaction or a
+    /// reaction with problems of its own (reported where it is built).
+    pub fn differences(&self, setup: &Setup, it: &str, verb: &str) -> Vec<Problem> {
+        let Some(resolved) = setup.resolved.as_ref() else { return Vec::new() };
+        let Ok((_, beam, target)) = self.channel() else { return Vec::new() };
+        let mut problems = Vec::new();
+        let experiment = &setup.reaction;
+        for (key, name, model, measured) in [
+            ("reaction.beam", &self.beam, beam, &resolved.beam),
+            ("reaction.target", &self.target, target, &resolved.target),
+        ] {
+            if (model.z, model.a) != (measured.z, measured.a) {
+                problems.push(Problem::new(key, name, format!("{} as in the experiment it {it}", measured.name)));
+            } else if (model.nuclear_mass_mev() - measured.mass_mev).abs() > 1e-9 * measured.mass_mev {
+                problems.push(Problem::new(
+                    key,
+                    format!("{name} with the AME2020 nuclear mass {} MeV", model.nuclear_mass_mev()),
+                    format!(
+                        "the experiment's mass {} MeV (its atomic_masses_u); {verb} files take AME2020 masses, so \
+                         {verb} this experiment with its masses left at AME2020",
+                        measured.mass_mev
+                    ),
+                ));
+            }
+        }
+        if (self.energy_mev - experiment.energy_mev).abs() > 1e-9 * experiment.energy_mev {
+            problems.push(Problem::new(
+                "reaction.energy_mev",
+                self.energy_mev,
+                format!("{} MeV, the beam energy of the experiment it {it}", experiment.energy_mev),
+            ));
+        }
+        problems
+    }
+}
+
 impl ModelConfig {
+    /// The reaction of the model.
+    pub fn reaction(&self) -> &TheoryReaction {
+        match self {
+            ModelConfig::Optical { reaction, .. }
+            | ModelConfig::Rutherford { reaction }
+            | ModelConfig::HardSphere { reaction, .. } => reaction,
+        }
+    }
+
     /// The model's `model:` name.
     pub fn name(&self) -> &'static str {
         match self {

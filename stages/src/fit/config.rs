@@ -163,40 +163,7 @@ impl FitModelConfig {
     /// experiment overrides (`atomic_masses_u`; a fit file uses AME2020 masses). Keys as in
     /// the fit file; nothing for models without a reaction or a set-up without one.
     pub fn check_against(&self, setup: &Setup) -> Vec<Problem> {
-        let (Some(reaction), Some(resolved)) = (self.reaction(), setup.resolved.as_ref()) else {
-            return Vec::new();
-        };
-        let Ok((_, beam, target)) = reaction.channel() else {
-            return Vec::new(); // build reports the fit file's own problems
-        };
-        let mut problems = Vec::new();
-        let experiment = &setup.reaction;
-        for (key, fitted, measured) in
-            [("reaction.beam", beam, &resolved.beam), ("reaction.target", target, &resolved.target)]
-        {
-            let name = if key.ends_with("beam") { &reaction.beam } else { &reaction.target };
-            if (fitted.z, fitted.a) != (measured.z, measured.a) {
-                problems.push(Problem::new(key, name, format!("{} as in the experiment it fits", measured.name)));
-            } else if (fitted.nuclear_mass_mev() - measured.mass_mev).abs() > 1e-9 * measured.mass_mev {
-                problems.push(Problem::new(
-                    key,
-                    format!("{name} with the AME2020 nuclear mass {} MeV", fitted.nuclear_mass_mev()),
-                    format!(
-                        "the experiment's mass {} MeV (its atomic_masses_u); fit files take AME2020 masses, so \
-                         fit this experiment with its masses left at AME2020",
-                        measured.mass_mev
-                    ),
-                ));
-            }
-        }
-        if (reaction.energy_mev - experiment.energy_mev).abs() > 1e-9 * experiment.energy_mev {
-            problems.push(Problem::new(
-                "reaction.energy_mev",
-                reaction.energy_mev,
-                format!("{} MeV, the beam energy of the experiment it fits", experiment.energy_mev),
-            ));
-        }
-        problems
+        self.reaction().map(|r| r.differences(setup, "fits", "fit")).unwrap_or_default()
     }
 
     /// Check the file and build the fit; `curve` is the table of a `curve` model (read by

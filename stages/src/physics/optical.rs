@@ -283,7 +283,11 @@ fn solve_recording(
     }
     let points = (r_a + std::f64::consts::FRAC_PI_2 / k) / h;
     if points > MAX_GRID_POINTS as f64 {
-        return Err(OpticalError::GridTooLarge { points, radius_fm: r_a + std::f64::consts::FRAC_PI_2 / k, step_fm: h });
+        return Err(OpticalError::GridTooLarge {
+            points,
+            radius_fm: r_a + std::f64::consts::FRAC_PI_2 / k,
+            step_fm: h,
+        });
     }
     // The sum needs L past the grazing wave k r_a: beyond the cap it cannot converge.
     if numerics.l_max.is_none() && k * r_a > L_CAP as f64 {

@@ -553,6 +553,11 @@ impl RawPlan {
         self.detectors.iter().position(|d| d.id == id).map_or(UNKNOWN_DETECTOR, |i| i as u16)
     }
 
+    /// The calibration of detector `d` (config order).
+    pub fn calibration(&self, d: usize) -> &CalibrationConfig {
+        &self.detectors[d].cal
+    }
+
     /// The energy of every channel of detector `d`, MeV.
     pub fn channel_energies_mev(&self, d: usize) -> Vec<f64> {
         (0..self.n_channels).map(|c| self.detectors[d].cal.energy_mev(c as f64)).collect()
