@@ -62,7 +62,7 @@ pub fn net_counts(gross: f64, background: f64, background_err: f64) -> (f64, f64
 /// Net counts below −3 standard errors: more background than gross counts, beyond what a
 /// fluctuation of a true zero gives (a 0.13 % one-sided chance, common practice), which
 /// points at a wrong background, not at statistics.
-const EXCESS_BACKGROUND_SIGMAS: f64 = 3.0;
+pub const EXCESS_BACKGROUND_SIGMAS: f64 = 3.0;
 
 /// Whether the net counts are impossibly negative (see [`EXCESS_BACKGROUND_SIGMAS`]).
 pub fn excess_background(net: f64, net_err: f64) -> bool {
