@@ -140,3 +140,47 @@ fn an_empty_table_gives_a_plot_that_says_so_and_a_missing_column_an_error() {
     assert!(text(&o).contains("column `dsdo_cm_mb_sr`: not found"), "{}", text(&o));
     assert!(!tmp.path().join("bad.svg").exists(), "nothing written on an error");
 }
+
+#[test]
+fn reduce_draws_the_expected_angular_distribution_unless_the_config_says_no() {
+    // Byte equality: the SVG has integer coordinates and fixed tick labels, so the committed
+    // expected plot is what any machine draws from the same tables.
+    let tmp = crate::common::demo_copy();
+    let o = xsflow(tmp.path(), &["reduce", "experiment.yaml", "--out", "out", "-q"]);
+    assert_eq!(o.status.code(), Some(0), "{}", text(&o));
+    let name = xsflow::layout::ANGULAR_DISTRIBUTION_SVG;
+    let got = std::fs::read(tmp.path().join("out").join(name)).expect("reduce draws the plot");
+    let want = std::fs::read(demo_dir().join("expected").join(name)).expect("expected plot committed");
+    assert!(got == want, "the plot differs from the committed expected one");
+
+    let config = tmp.path().join("experiment.yaml");
+    let mut yaml = std::fs::read_to_string(&config).expect("config");
+    yaml.push_str("report: { plots: false }\n");
+    std::fs::write(&config, yaml).expect("write");
+    let o = xsflow(tmp.path(), &["reduce", "experiment.yaml", "--out", "off", "--run", "0101", "-q"]);
+    assert_eq!(o.status.code(), Some(0), "{}", text(&o));
+    assert!(tmp.path().join("off/angular_distribution.csv").is_file(), "the tables are still written");
+    assert!(!tmp.path().join("off").join(name).exists(), "plots: false draws nothing");
+}
+
+#[test]
+fn a_reduction_where_every_run_failed_draws_nothing_and_says_why() {
+    // Nothing reduced means nothing written (DESIGN: outputs appear whole or not at all);
+    // the summary says so instead of a plot.
+    let tmp = crate::common::demo_copy();
+    for entry in std::fs::read_dir(tmp.path().join("runs")).expect("runs") {
+        let path = entry.expect("entry").path();
+        if path.to_string_lossy().ends_with(".run.yaml") {
+            let record = std::fs::read_to_string(&path).expect("record");
+            let broken: String = record
+                .lines()
+                .map(|l| if l.starts_with("charge_c:") { "charge_c: 0\n".into() } else { format!("{l}\n") })
+                .collect();
+            std::fs::write(&path, broken).expect("write");
+        }
+    }
+    let o = xsflow(tmp.path(), &["reduce", "experiment.yaml", "--out", "out", "-q"]);
+    assert_eq!(o.status.code(), Some(1), "{}", text(&o));
+    assert!(text(&o).contains("0 run(s) reduced, 4 failed"), "{}", text(&o));
+    assert!(!tmp.path().join("out").join(xsflow::layout::ANGULAR_DISTRIBUTION_SVG).exists());
+}

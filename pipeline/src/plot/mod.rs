@@ -95,6 +95,11 @@ pub fn draw(
         Kind::RatioRutherford => ratio_rutherford(input)?,
         Kind::Spectrum => spectrum(input, detector)?,
     };
+    write_svg(out, &svg)
+}
+
+/// Write an SVG atomically.
+fn write_svg(out: &Path, svg: &str) -> Result<(), Diagnostic> {
     write_atomic(out, svg.as_bytes()).map_err(|e| Diagnostic::new(out, "", format!("cannot write the plot: {e}")))
 }
 
