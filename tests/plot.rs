@@ -184,3 +184,20 @@ fn a_reduction_where_every_run_failed_draws_nothing_and_says_why() {
     assert!(text(&o).contains("0 run(s) reduced, 4 failed"), "{}", text(&o));
     assert!(!tmp.path().join("out").join(xsflow::layout::ANGULAR_DISTRIBUTION_SVG).exists());
 }
+
+#[test]
+fn points_at_zero_neither_crash_nor_stretch_the_log_axis() {
+    // A state whose net counts are about zero: a point at 0 and one at 1e-14 mb/sr. They get
+    // error bars from the axis bottom but no marker, and the axis stays within six decades
+    // below the highest point (1000 mb/sr), with its 1.6 margin.
+    let tmp = tempfile::tempdir().expect("tmp");
+    let table = "state,theta_cm_deg,dsdo_cm_mb_sr,stat_err_mb_sr,sys_err_mb_sr\n\
+                 elastic,20,1000,10,5\nelastic,30,0,1,0\nelastic,40,1e-14,1,0\n";
+    std::fs::write(tmp.path().join("zero.csv"), table).expect("write");
+    let svg = plot(tmp.path(), &["angular-distribution", "zero.csv"], "zero.svg");
+    assert_eq!(elements(&svg, "circle").len(), 1, "a marker only for the point on the axis");
+    assert_eq!(lines(&svg, STAT_BAR, "3").len(), 3, "every row keeps its error bar");
+    // The positive labels are the log axis's (the pull panel's are -2, 0, 2).
+    let y = tick_values(&svg, "end");
+    assert!(y.iter().filter(|v| **v > 0.0).all(|v| *v >= 1e-4), "y ticks {y:?}");
+}

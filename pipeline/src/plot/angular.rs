@@ -83,6 +83,9 @@ impl FitCurve {
     }
 }
 
+/// The most decades the dσ/dΩ axis spans.
+const DECADES: i32 = 6;
+
 /// One measured point.
 #[derive(Debug, Clone, Copy)]
 struct Point {
@@ -187,6 +190,10 @@ fn state_panel<DB: DrawingBackend>(
     let curve_values: Vec<f64> = curves.iter().flat_map(in_range).filter(|y| *y > 0.0).collect();
     let positive = lows.chain(highs).chain(curve_values.iter().copied()).filter(|y| *y > 0.0);
     let (y_lo, y_hi) = positive.fold((f64::INFINITY, 0.0_f64), |(l, h), y| (l.min(y), h.max(y)));
+    // At most DECADES below the highest value: a point whose net counts are about zero
+    // would otherwise stretch the axis over many empty decades. Such a point (and one at or
+    // below zero) gets no marker; its error bars start at the bottom of the axis.
+    let y_lo = y_lo.max(y_hi * 10f64.powi(-DECADES));
     let (y_lo, y_hi) = if y_lo.is_finite() && y_hi > y_lo { (y_lo / 1.6, y_hi * 1.6) } else { (0.1, 10.0) };
 
     let mut chart = ChartBuilder::on(&top)
@@ -202,7 +209,7 @@ fn state_panel<DB: DrawingBackend>(
     let bars = |err_mb_sr: fn(&Point) -> f64, style: ShapeStyle| {
         points.iter().map(move |p| {
             let (y, e) = (p.dsdo_cm_mb_sr, err_mb_sr(p));
-            error_bar(p.theta_cm_deg, (y - e).max(y_lo), y + e, style)
+            error_bar(p.theta_cm_deg, (y - e).max(y_lo), (y + e).max(y_lo), style)
         })
     };
     chart
@@ -219,7 +226,7 @@ fn state_panel<DB: DrawingBackend>(
         .draw_series(
             points
                 .iter()
-                .filter(|p| p.dsdo_cm_mb_sr > 0.0)
+                .filter(|p| p.dsdo_cm_mb_sr >= y_lo)
                 .map(|p| Circle::new((p.theta_cm_deg, p.dsdo_cm_mb_sr), 3, INK.filled())),
         )
         .map_err(drawing)?;
@@ -280,7 +287,11 @@ fn state_panel<DB: DrawingBackend>(
     if curves.is_empty() {
         let style = TextStyle::from((FONT, 13).into_font()).color(&INK);
         pull_chart
-            .draw_series(std::iter::once(Text::new("no fit for this state", (x_lo, p_max * 0.6), style)))
+            .draw_series(std::iter::once(Text::new(
+                "no fit for this state",
+                (x_lo + 0.03 * (x_hi - x_lo), p_max * 0.6),
+                style,
+            )))
             .map_err(drawing)?;
     }
     Ok(())
