@@ -91,8 +91,10 @@ fn angular_distribution_has_a_marker_and_both_error_bars_per_row_and_every_fit()
     assert!(min(&x) <= min(&theta) + 20.0 && max(&x) >= max(&theta) - 20.0, "x ticks {x:?}");
     assert!(min(&y) <= min(&dsdo) * 10.0 && max(&y) >= max(&dsdo) / 10.0, "y ticks {y:?}");
     assert!(svg.contains("θ_cm (deg)") && svg.contains("dσ/dΩ_cm (mb/sr)"), "units in the axis titles");
-    // The same input gives the same bytes (no timestamps, fixed number formatting).
-    let again = plot(tmp.path(), &["angular-distribution", &table.to_string_lossy()], "again.svg");
+    // The same input gives the same bytes (no timestamps, fixed number formatting), and the
+    // output folder stands for its combined table and fits.
+    let folder = demo_dir().join("expected");
+    let again = plot(tmp.path(), &["angular-distribution", &folder.to_string_lossy()], "again.svg");
     assert!(svg == again, "the plot is byte-deterministic");
 }
 
@@ -104,6 +106,19 @@ fn ratio_to_rutherford_has_a_marker_per_row_with_a_ratio() {
     let with_ratio = csv_rows(&table).iter().filter(|r| !r["ratio_rutherford"].is_empty()).count();
     assert!(with_ratio > 0, "the demo run compares its elastic rows with Rutherford");
     assert_eq!(elements(&svg, "circle").len(), with_ratio);
+    // A reduce output folder: every run's rows with a ratio.
+    let folder = demo_dir().join("expected");
+    let svg = plot(tmp.path(), &["ratio-rutherford", &folder.to_string_lossy()], "all.svg");
+    let all: usize = ["0101", "0102", "0103", "0104"]
+        .iter()
+        .map(|r| {
+            csv_rows(&folder.join(r).join("cross_sections.csv"))
+                .iter()
+                .filter(|r| !r["ratio_rutherford"].is_empty())
+                .count()
+        })
+        .sum();
+    assert_eq!(elements(&svg, "circle").len(), all);
 }
 
 #[test]

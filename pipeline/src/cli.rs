@@ -239,7 +239,8 @@ pub enum Command {
         #[arg(value_enum)]
         kind: crate::plot::Kind,
         /// The table: angular_distribution.* (angular-distribution), cross_sections.*
-        /// (ratio-rutherford) or a run's spectra.parquet (spectrum).
+        /// (ratio-rutherford) or a run's spectra.parquet (spectrum); for the first two also
+        /// a `reduce` output folder (its combined table, or every run's table).
         input: PathBuf,
         /// The SVG file to write.
         #[arg(long)]

@@ -6,7 +6,7 @@ use std::path::{Path, PathBuf};
 use plotters::prelude::*;
 
 use super::{
-    axes, distinct, drawing, empty_page, error_bar, floats, legend, padded, read, series_colour, strings, FONT, INK,
+    axes, cm_columns, distinct, drawing, empty_page, error_bar, floats, legend, padded, read, series_colour, FONT, INK,
     PAGE_PX, STAT_BAR, TOTAL_BAR,
 };
 use crate::error::Diagnostic;
@@ -123,11 +123,8 @@ fn pull(p: &Point, curve: &FitCurve) -> Option<f64> {
 /// # Errors
 /// An unreadable table or a missing column, naming the file.
 pub fn angular_distribution(input: &Path, fits: &[FitCurve]) -> Result<String, Diagnostic> {
-    let table = read(input)?;
-    let states = strings(&table, "state", input)?;
-    let theta = floats(&table, "theta_cm_deg", input)?;
-    let dsdo = floats(&table, "dsdo_cm_mb_sr", input)?;
-    let stat = floats(&table, "stat_err_mb_sr", input)?;
+    let (table, cm) = cm_columns(input)?;
+    let (states, theta, dsdo, stat) = (cm.state, cm.theta_cm_deg, cm.dsdo_cm_mb_sr, cm.stat_err_mb_sr);
     let sys = floats(&table, "sys_err_mb_sr", input)?;
     if states.is_empty() {
         return empty_page("no data points: the angular distribution is empty");

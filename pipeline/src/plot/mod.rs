@@ -82,15 +82,21 @@ pub fn draw(
 ) -> Result<(), Diagnostic> {
     let svg = match kind {
         Kind::AngularDistribution => {
+            // A `reduce` output folder stands for its combined table.
+            let table = if input.is_dir() {
+                input.join(crate::layout::ANGULAR_DISTRIBUTION_PARQUET)
+            } else {
+                input.to_path_buf()
+            };
             let fits = match fits {
                 Some(f) => find_fits(f)?,
-                None => input
+                None => table
                     .parent()
                     .map(|d| d.join(crate::layout::FITS_DIR))
                     .filter(|d| d.is_dir())
                     .map_or_else(|| Ok(Vec::new()), |d| find_fits(&d))?,
             };
-            angular_distribution(input, &fits)?
+            angular_distribution(&table, &fits)?
         }
         Kind::RatioRutherford => ratio_rutherford(input)?,
         Kind::Spectrum => spectrum(input, detector)?,
@@ -149,6 +155,26 @@ fn strings(table: &DataFrame, name: &str, file: &Path) -> Result<Vec<String>, Di
     let values =
         cast.str().map_err(|e| Diagnostic::new(file, format!("column `{name}`"), format!("expected text: {e}")))?;
     Ok(values.iter().map(|v| v.unwrap_or("").to_string()).collect())
+}
+
+/// The CM cross sections of a reduced or combined table, row by row.
+struct CmColumns {
+    state: Vec<String>,
+    theta_cm_deg: Vec<f64>,
+    dsdo_cm_mb_sr: Vec<f64>,
+    stat_err_mb_sr: Vec<f64>,
+}
+
+/// Read a table and its CM cross-section columns; the table is returned for the others.
+fn cm_columns(file: &Path) -> Result<(DataFrame, CmColumns), Diagnostic> {
+    let table = read(file)?;
+    let columns = CmColumns {
+        state: strings(&table, "state", file)?,
+        theta_cm_deg: floats(&table, "theta_cm_deg", file)?,
+        dsdo_cm_mb_sr: floats(&table, "dsdo_cm_mb_sr", file)?,
+        stat_err_mb_sr: floats(&table, "stat_err_mb_sr", file)?,
+    };
+    Ok((table, columns))
 }
 
 /// The distinct values of `keys` in order of first appearance.

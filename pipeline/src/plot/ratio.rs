@@ -1,36 +1,60 @@
 //! The ratio to Rutherford versus θ_cm on a linear axis, one colour per state, with the
 //! statistical error of each point (σ_stat / σ_Ruth).
 
-use std::path::Path;
+use std::path::{Path, PathBuf};
 
 use plotters::prelude::*;
 
 use super::{
-    axes, distinct, drawing, empty_page, error_bar, floats, legend, optional_floats, padded, read, series_colour,
-    strings, PAGE_PX,
+    axes, cm_columns, distinct, drawing, empty_page, error_bar, legend, optional_floats, padded, series_colour, PAGE_PX,
 };
 use crate::error::Diagnostic;
 
-/// The SVG of the ratio to Rutherford of the rows of `input` that have one (rows of
-/// states not compared with Rutherford have an empty cell and are left out).
-///
-/// # Errors
-/// An unreadable table or a missing column, naming the file.
-pub fn ratio_rutherford(input: &Path) -> Result<String, Diagnostic> {
-    let table = read(input)?;
-    let states = strings(&table, "state", input)?;
-    let theta = floats(&table, "theta_cm_deg", input)?;
-    let dsdo = floats(&table, "dsdo_cm_mb_sr", input)?;
-    let stat = floats(&table, "stat_err_mb_sr", input)?;
-    let ratio = optional_floats(&table, "ratio_rutherford", input)?;
-    // (state, θ_cm, ratio, its statistical error): the error scales with the ratio.
-    let points: Vec<(String, f64, f64, f64)> = (0..states.len())
+/// (state, θ_cm in degrees, ratio to Rutherford, its statistical error) of one row.
+type RatioPoint = (String, f64, f64, f64);
+
+/// The rows of one cross_sections table that have a ratio to Rutherford (rows of states
+/// not compared with Rutherford have an empty cell and are left out).
+fn ratio_points(file: &Path) -> Result<Vec<RatioPoint>, Diagnostic> {
+    let (table, cm) = cm_columns(file)?;
+    let (states, theta, dsdo, stat) = (cm.state, cm.theta_cm_deg, cm.dsdo_cm_mb_sr, cm.stat_err_mb_sr);
+    let ratio = optional_floats(&table, "ratio_rutherford", file)?;
+    // The statistical error scales with the ratio: σ_stat / σ_Ruth = ratio · σ_stat / σ.
+    Ok((0..states.len())
         .filter_map(|i| {
             let r = ratio[i].filter(|r| r.is_finite())?;
             let err = if dsdo[i] > 0.0 { r * stat[i] / dsdo[i] } else { 0.0 };
             Some((states[i].clone(), theta[i], r, err))
         })
+        .collect())
+}
+
+/// The cross_sections tables of `input`: the file itself, or for a `reduce` output folder
+/// each run's `<run>/cross_sections.parquet`, in name order.
+fn tables_of(input: &Path) -> Result<Vec<PathBuf>, Diagnostic> {
+    if !input.is_dir() {
+        return Ok(vec![input.to_path_buf()]);
+    }
+    let entries = std::fs::read_dir(input).map_err(|e| Diagnostic::new(input, "", format!("cannot list it: {e}")))?;
+    let mut files: Vec<PathBuf> = entries
+        .filter_map(Result::ok)
+        .map(|e| e.path().join(crate::layout::CROSS_SECTIONS_PARQUET))
+        .filter(|p| p.is_file())
         .collect();
+    files.sort();
+    Ok(files)
+}
+
+/// The SVG of the ratio to Rutherford of the rows of `input` (a cross_sections table or a
+/// `reduce` output folder) that have one.
+///
+/// # Errors
+/// An unreadable table or a missing column, naming the file.
+pub fn ratio_rutherford(input: &Path) -> Result<String, Diagnostic> {
+    let mut points = Vec::new();
+    for file in tables_of(input)? {
+        points.extend(ratio_points(&file)?);
+    }
     if points.is_empty() {
         return empty_page("no data points with a ratio to Rutherford");
     }
@@ -59,7 +83,7 @@ pub fn ratio_rutherford(input: &Path) -> Result<String, Diagnostic> {
             .map_err(fail)?;
         for (i, name) in names.iter().enumerate() {
             let colour = series_colour(i);
-            let mine: Vec<&(String, f64, f64, f64)> = points.iter().filter(|p| &p.0 == name).collect();
+            let mine: Vec<&RatioPoint> = points.iter().filter(|p| &p.0 == name).collect();
             chart
                 .draw_series(mine.iter().map(|p| error_bar(p.1, p.2 - p.3, p.2 + p.3, colour.stroke_width(2))))
                 .map_err(drawing)
