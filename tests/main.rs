@@ -11,6 +11,7 @@ mod dead_time;
 mod fitting;
 mod kinematics;
 mod nist;
+mod plot;
 mod provenance;
 mod raw;
 mod reference;

@@ -116,8 +116,9 @@ fn identical_inputs_give_identical_bytes() {
     let files_a = files_below(&a.path().join("out"));
     assert_eq!(
         files_a.len(),
-        26,
-        "three files for each of four runs, four for the combined distribution, five for each of two fits: {files_a:?}"
+        27,
+        "three files for each of four runs, four for the combined distribution and its plot, five for each of two \
+         fits: {files_a:?}"
     );
     for fa in files_a {
         let rel = fa.strip_prefix(a.path()).expect("below the scratch folder");
@@ -183,6 +184,7 @@ fn run_filter_reduces_only_the_named_run() {
             "0102",
             "angular_distribution.csv",
             "angular_distribution.parquet",
+            "angular_distribution.svg",
             "angular_distribution_covariance.csv",
             "angular_distribution_provenance.json",
             "fits"

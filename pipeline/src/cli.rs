@@ -291,6 +291,27 @@ pub enum Command {
         #[arg(long = "pulser-rate-per-s", default_value_t = 10.0)]
         pulser_rate_per_s: f64,
     },
+    /// Draw a plot (SVG) from output tables alone: the angular distribution with its fits
+    /// and pulls, the ratio to Rutherford, or a run's energy spectrum with its gates.
+    Plot {
+        /// What to draw.
+        #[arg(value_enum)]
+        kind: crate::plot::Kind,
+        /// The table: angular_distribution.* (angular-distribution), cross_sections.*
+        /// (ratio-rutherford) or a run's spectra.parquet (spectrum); for the first two also
+        /// a `reduce` output folder (its combined table, or every run's table).
+        input: PathBuf,
+        /// The SVG file to write.
+        #[arg(long)]
+        out: PathBuf,
+        /// A fit folder, or a folder of them, whose curves are drawn; default the `fits`
+        /// folder beside the input, when there is one.
+        #[arg(long)]
+        fits: Option<PathBuf>,
+        /// The spectrum's detector; default the first in the table.
+        #[arg(long)]
+        detector: Option<String>,
+    },
     /// Print a JSON Schema: the config (default), a run record, or a table.
     Schema {
         /// Which schema.

@@ -217,6 +217,12 @@ pub fn execute(command: Command) -> Report {
             };
             simulate_runs(&request)
         }
+        Command::Plot { kind, input, out, fits, detector } => {
+            match crate::plot::draw(kind, &input, &out, fits.as_deref(), detector.as_deref()) {
+                Ok(()) => Report::new().err(format_args!("plot written to {}", out.display())),
+                Err(d) => Report::diagnostics(&[d]),
+            }
+        }
         Command::Schema { name } => match crate::schema::schema_json(&name) {
             Some(s) => Report::new().out(&s),
             None => Report::new().end(Outcome::BadInput),

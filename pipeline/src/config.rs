@@ -57,10 +57,33 @@ pub struct ExperimentConfig {
     /// fit file and the state it fits (optional).
     #[serde(default)]
     pub fits: Option<Vec<stages::fit::FitEntryConfig>>,
+    /// What is drawn beside the tables (optional; plots are drawn by default).
+    #[serde(default)]
+    pub report: Option<ReportConfig>,
 }
 
-const SECTIONS: [&str; 10] =
-    ["experiment", "reaction", "target", "detectors", "arms", "runs", "stages", "raw", "combine", "fits"];
+/// What `reduce` and `batch` draw into the output folder beside the tables.
+#[derive(Debug, Clone, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct ReportConfig {
+    /// Draw the plots (SVG): the combined angular distribution with its fits and pulls,
+    /// `angular_distribution.svg`. Default true; `false` draws nothing.
+    #[serde(default = "yes")]
+    pub plots: bool,
+}
+
+impl Default for ReportConfig {
+    fn default() -> Self {
+        ReportConfig { plots: true }
+    }
+}
+
+fn yes() -> bool {
+    true
+}
+
+const SECTIONS: [&str; 11] =
+    ["experiment", "reaction", "target", "detectors", "arms", "runs", "stages", "raw", "combine", "fits", "report"];
 
 /// A YAML file read into text, its parsed value and its key locations.
 pub struct YamlFile {
@@ -190,6 +213,8 @@ pub struct PartialConfig {
     pub combine: Option<stages::combine::CombineConfig>,
     /// `fits:`, when present and every item parsed.
     pub fits: Option<Vec<stages::fit::FitEntryConfig>>,
+    /// `report:`, when present and parsed.
+    pub report: Option<ReportConfig>,
 }
 
 /// Parse an experiment config section by section and list item by list item, so that every
@@ -248,6 +273,7 @@ pub fn parse_experiment(file: &YamlFile) -> (PartialConfig, Vec<Diagnostic>) {
         raw: map.get("raw").and_then(|v| keep(file.parse("raw", v), &mut diags)),
         combine: map.get("combine").and_then(|v| keep(file.parse("combine", v), &mut diags)),
         fits: map.get("fits").and_then(|v| parse_list(file, "fits", v, &mut diags)),
+        report: map.get("report").and_then(|v| keep(file.parse("report", v), &mut diags)),
     };
     (config, diags)
 }

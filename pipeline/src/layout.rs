@@ -19,6 +19,8 @@ pub const ANGULAR_DISTRIBUTION_CSV: &str = "angular_distribution.csv";
 pub const COVARIANCE_CSV: &str = "angular_distribution_covariance.csv";
 /// The provenance record of both (also in the Parquet file's metadata).
 pub const ANGULAR_DISTRIBUTION_PROVENANCE_JSON: &str = "angular_distribution_provenance.json";
+/// Its plot with the fits and pulls (unless `report: { plots: false }`).
+pub const ANGULAR_DISTRIBUTION_SVG: &str = "angular_distribution.svg";
 
 /// Folder of the fits inside the output folder (`<out>/fits/<name>/`).
 pub const FITS_DIR: &str = "fits";

@@ -14,6 +14,7 @@ pub mod kinematics;
 pub mod layout;
 pub mod locate;
 pub mod plan;
+pub mod plot;
 pub mod provenance;
 pub mod run;
 pub mod schema;

@@ -149,6 +149,8 @@ pub struct Plan {
     pub raw: Option<stages::raw::RawPlan>,
     /// How runs are combined.
     pub combine: stages::combine::CombineConfig,
+    /// What is drawn beside the tables.
+    pub report: crate::config::ReportConfig,
     /// Runs in record-path order.
     pub runs: Vec<PlannedRun>,
 }
@@ -270,6 +272,7 @@ pub fn plan_with(config_path: &Path, empty_patterns_warn: bool) -> Result<Plan, 
                 fits,
                 raw,
                 combine: config.combine.clone().unwrap_or_default(),
+                report: config.report.clone().unwrap_or_default(),
                 runs,
             };
             plan.check_unique_runs().map(|()| plan)

@@ -318,6 +318,25 @@ pub fn combine_then_fit(
     };
     summary.fits_ok += fitted.ok;
     summary.fits_failed += fitted.failed;
+    if plan.report.plots {
+        draw_plots(out_dir);
+    }
+}
+
+/// Draw the combined angular distribution, with the fits in the output folder, into
+/// angular_distribution.svg. With no run reduced there is no distribution and nothing is
+/// drawn (an output folder holds nothing when nothing was reduced; the summary line says
+/// why). A plot that cannot be drawn is a warning: the tables are the results, the plot
+/// only shows them.
+fn draw_plots(out_dir: &Path) {
+    let table = out_dir.join(ANGULAR_DISTRIBUTION_PARQUET);
+    if !table.is_file() {
+        return;
+    }
+    let svg = out_dir.join(crate::layout::ANGULAR_DISTRIBUTION_SVG);
+    if let Err(d) = crate::plot::draw(crate::plot::Kind::AngularDistribution, &table, &svg, None, None) {
+        warn!(file = %d.file.display(), "plot not drawn: {}", d.message);
+    }
 }
 
 /// Combine the reduced tables of the runs into one angular distribution per state
