@@ -397,3 +397,12 @@ fn issue_18_an_elastic_recoil_stops_at_90_degrees() {
         "{msg}"
     );
 }
+
+#[test]
+fn issue_18_a_negative_angle_is_an_angle_not_a_flag() {
+    // `--angles -10,0,180` was taken for an unknown flag; it is a value with a clear error.
+    let args = ["kinematics", "--beam", "4He", "--target", "58Ni", "--energy-mev", "24", "--angles", "-10,0,180"];
+    let out = xsflow(&crate::common::repo_root(), &args);
+    assert_eq!(out.status.code(), Some(2), "{}", text(&out));
+    assert!(text(&out).contains("--angles -10,0,180: -10 is outside (0, 180)"), "{}", text(&out));
+}

@@ -168,8 +168,9 @@ pub enum Command {
         /// Beam kinetic energy in MeV.
         #[arg(long = "energy-mev", allow_negative_numbers = true)]
         energy_mev: f64,
-        /// Lab angles in degrees: A:B:STEP or a comma list.
-        #[arg(long)]
+        /// Lab angles in degrees: A:B:STEP or a comma list (a leading minus is read as a
+        /// value, so that a negative angle gets a clear error).
+        #[arg(long, allow_hyphen_values = true)]
         angles: String,
         /// Excitation energy of the residual nucleus in MeV.
         #[arg(long = "excitation-mev", default_value_t = 0.0, allow_negative_numbers = true)]
@@ -213,8 +214,9 @@ pub enum Command {
     Theory {
         /// The model file (YAML).
         model: PathBuf,
-        /// CM angles in degrees: A:B:STEP or a comma list.
-        #[arg(long, default_value = "10:170:10")]
+        /// CM angles in degrees: A:B:STEP or a comma list (a leading minus is read as a
+        /// value, so that a negative angle gets a clear error).
+        #[arg(long, default_value = "10:170:10", allow_hyphen_values = true)]
         angles: String,
         /// Output format.
         #[arg(long, value_enum, default_value_t = TableFormat::Table)]
