@@ -613,3 +613,13 @@ fn issue_18_events_none_of_which_is_usable_fail_the_run() {
     );
     assert!(!tmp.path().join("out/t1").exists());
 }
+
+#[test]
+fn issue_18_one_bad_shared_calibration_is_reported_once() {
+    // The list-mode demo's twelve detectors share `calibration.all`: a falling gain was
+    // reported twelve times.
+    let tmp = listmode_copy();
+    edit(&tmp.path().join("experiment.yaml"), "gain_mev_per_channel: 0.01,", "gain_mev_per_channel: -0.01,");
+    let msg = text(&xsflow(tmp.path(), &["check", "experiment.yaml"]));
+    assert_eq!(msg.matches("raw.calibration.all: found gain -0.01 MeV/ch").count(), 1, "{msg}");
+}

@@ -55,10 +55,14 @@ pub struct Checks {
 }
 
 impl Checks {
-    /// Record a problem unless `ok`.
+    /// Record a problem unless `ok`; the same problem again (one `calibration.all` checked
+    /// for every detector, say) is recorded once.
     pub fn require(&mut self, ok: bool, key: &str, found: impl fmt::Display, expected: &str) {
         if !ok {
-            self.problems.push(Problem::new(key, found, expected));
+            let p = Problem::new(key, found, expected);
+            if !self.problems.contains(&p) {
+                self.problems.push(p);
+            }
         }
     }
 
