@@ -31,7 +31,7 @@
 use statrs::function::erf::erfc;
 
 /// An energy interval [low, high) in MeV.
-#[derive(Debug, Clone, Copy, PartialEq)]
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
 pub struct EnergyInterval {
     /// Low edge, MeV.
     pub low_mev: f64,
@@ -40,7 +40,8 @@ pub struct EnergyInterval {
 }
 
 impl EnergyInterval {
-    fn width_mev(&self) -> f64 {
+    /// Its width in MeV.
+    pub fn width_mev(&self) -> f64 {
         self.high_mev - self.low_mev
     }
 }

@@ -300,7 +300,7 @@ impl Accumulator<'_> {
                         (n, 0.0, (e * e - n).max(0.0).sqrt(), (1.0, 0.0))
                     }
                     None => {
-                        let scale = g.window.width() / (g.left.width() + g.right.width());
+                        let scale = g.window.width_mev() / (g.left.width_mev() + g.right.width_mev());
                         (gross, side * scale, side.sqrt() * scale, (g.window_acceptance, g.window_acceptance_err))
                     }
                 };

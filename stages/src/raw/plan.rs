@@ -7,21 +7,15 @@
 use serde::Serialize;
 
 use crate::physics::kinematics::{Mode, Solution};
-use crate::physics::peak_acceptance::{window_acceptance, EnergyInterval, LowEnergyTail, PeakShape, WindowLayout};
+use crate::physics::peak_acceptance::{window_acceptance, LowEnergyTail, PeakShape, WindowLayout};
 use crate::physics::polygon::polygon_problem;
 use crate::problem::Checks;
 use crate::{Problem, Setup};
 
 use super::{BackgroundMethod, CalibrationConfig, GatesConfig, RawConfig, WindowConfig};
 
-/// A [low, high) interval in MeV.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
-pub struct Interval {
-    /// Low edge.
-    pub low_mev: f64,
-    /// High edge.
-    pub high_mev: f64,
-}
+/// A gate's [low, high) interval in MeV: the physics' energy interval.
+pub use crate::physics::peak_acceptance::EnergyInterval as Interval;
 
 impl Interval {
     fn new(a: [f64; 2]) -> Self {
@@ -32,12 +26,6 @@ impl Interval {
     }
     fn overlaps(&self, o: &Interval) -> bool {
         self.low_mev < o.high_mev && o.low_mev < self.high_mev
-    }
-    pub(super) fn width(&self) -> f64 {
-        self.high_mev - self.low_mev
-    }
-    fn energies(&self) -> EnergyInterval {
-        EnergyInterval { low_mev: self.low_mev, high_mev: self.high_mev }
     }
 }
 
@@ -74,11 +62,16 @@ pub struct Gate {
 impl Gate {
     /// The state's name, with the branch where it is the second (lower-energy) peak.
     pub fn name(&self) -> String {
-        if self.branch == 1 {
-            self.state.clone()
-        } else {
-            format!("{} (branch {})", self.state, self.branch)
-        }
+        state_label(&self.state, self.branch)
+    }
+}
+
+/// A state's name, with the branch where it is the second (lower-energy) peak.
+fn state_label(state: &str, branch: u8) -> String {
+    if branch == 1 {
+        state.to_string()
+    } else {
+        format!("{state} (branch {branch})")
     }
 }
 
@@ -388,8 +381,7 @@ const NEIGHBOUR_SHARE_WARNING: f64 = 1e-4;
 fn warn_of_neighbours(gates: &[(usize, Gate)]) {
     for (_, gj) in gates {
         for (_, gk) in gates.iter().filter(|(_, gk)| gk != gj) {
-            let layout =
-                WindowLayout { window: gj.window.energies(), left: gj.left.energies(), right: gj.right.energies() };
+            let layout = WindowLayout { window: gj.window, left: gj.left, right: gj.right };
             let share = window_acceptance(&layout, &gk.peak).value;
             if share.abs() > NEIGHBOUR_SHARE_WARNING {
                 tracing::warn!(
@@ -466,8 +458,7 @@ impl GatePlace<'_> {
         let right = written
             .and_then(|w| WindowConfig::interval(w.right_mev, w.right_channels, cal))
             .unwrap_or(Interval { low_mev: nominal.high_mev + gap * s, high_mev: nominal.high_mev + (gap + bw) * s });
-        let name =
-            if self.branch == 1 { self.state.to_string() } else { format!("{} branch {}", self.state, self.branch) };
+        let name = state_label(self.state, self.branch);
         let spectrum = format!("[{:.4}, {:.4}) MeV", cal.energy_mev(-0.5), cal.energy_mev(n_ch as f64 - 0.5));
         let Some(window) = snap_to_channels(nominal, cal, n_ch) else {
             c.require(
@@ -485,7 +476,7 @@ impl GatePlace<'_> {
         let left = snap_to_channels(left, cal, n_ch).unwrap_or(empty(window.low_mev));
         let right = snap_to_channels(right, cal, n_ch).unwrap_or(empty(window.high_mev));
         c.require(
-            left.width() + right.width() > 0.0,
+            left.width_mev() + right.width_mev() > 0.0,
             "gates",
             format!("{}, {name}: no side-band channel inside the spectrum {spectrum}", self.det),
             "side bands that hold at least one channel",
@@ -500,14 +491,14 @@ impl GatePlace<'_> {
             sigma_err_mev: g.resolution_err_mev,
             tail: g.low_energy_tail.map(|t| LowEnergyTail { fraction: t.fraction, length_mev: t.length_mev }),
         };
-        let layout = WindowLayout { window: window.energies(), left: left.energies(), right: right.energies() };
+        let layout = WindowLayout { window, left, right };
         let acceptance = window_acceptance(&layout, &peak);
         c.require(
             acceptance.value > 0.0,
             "gates",
             format!(
-                "{}, {} branch {}: window acceptance {:.4} (the side bands hold more of the peak than the window)",
-                self.det, self.state, self.branch, acceptance.value
+                "{}, {name}: window acceptance {:.4} (the side bands hold more of the peak than the window)",
+                self.det, acceptance.value
             ),
             "a window around the peak with side bands clear of it",
         );
