@@ -623,3 +623,31 @@ fn issue_18_one_bad_shared_calibration_is_reported_once() {
     let msg = text(&xsflow(tmp.path(), &["check", "experiment.yaml"]));
     assert_eq!(msg.matches("raw.calibration.all: found gain -0.01 MeV/ch").count(), 1, "{msg}");
 }
+
+#[test]
+fn issue_17_gates_without_channels_or_without_acceptance_are_refused() {
+    // (written window, what `check` says): a window beyond the 4096 channels of 0.01 MeV; a
+    // window beside the peak, whose narrow left side band sits on the peak.
+    let cases = [
+        (
+            "window_mev: [50.0, 51.0], left_mev: [49.0, 49.5], right_mev: [51.5, 52.0]",
+            "A, elastic: the window [50.0000, 51.0000) MeV holds no channel of the spectrum [-0.0050, 40.9550) MeV",
+        ),
+        (
+            "window_mev: [21.0, 21.5], left_mev: [19.9, 20.1], right_mev: [21.5, 21.6], peak_centroid_mev: 20.0",
+            "A, elastic: window acceptance",
+        ),
+    ];
+    for (window, message) in cases {
+        let tmp = tempfile::tempdir().expect("scratch");
+        tiny(tmp.path(), "", "det,adc,pu\n");
+        edit(
+            &tmp.path().join("experiment.yaml"),
+            "window_mev: [20.0, 21.0], left_mev: [19.0, 19.5], right_mev: [21.5, 22.0]",
+            window,
+        );
+        let out = xsflow(tmp.path(), &["check", "experiment.yaml"]);
+        assert_eq!(out.status.code(), Some(2), "{}", text(&out));
+        assert!(text(&out).contains(message), "{window}:\n{}", text(&out));
+    }
+}
