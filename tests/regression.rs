@@ -116,9 +116,9 @@ fn identical_inputs_give_identical_bytes() {
     let files_a = files_below(&a.path().join("out"));
     assert_eq!(
         files_a.len(),
-        27,
-        "three files for each of four runs, four for the combined distribution and its plot, five for each of two \
-         fits: {files_a:?}"
+        32,
+        "three files for each of four runs, five for the combined distribution and its plot, five for each of two \
+         fits, and the report's index and four run pages: {files_a:?}"
     );
     for fa in files_a {
         let rel = fa.strip_prefix(a.path()).expect("below the scratch folder");
@@ -187,9 +187,10 @@ fn run_filter_reduces_only_the_named_run() {
             "angular_distribution.svg",
             "angular_distribution_covariance.csv",
             "angular_distribution_provenance.json",
-            "fits"
+            "fits",
+            "report"
         ],
-        "one run, and the distribution and fits of that run alone"
+        "one run, and the distribution, fits and report of that run alone"
     );
 }
 

@@ -19,13 +19,13 @@ use std::time::Instant;
 use polars::prelude::DataFrame;
 use tracing::{info, info_span, warn};
 
-use crate::catalogue::{Catalogue, CatalogueError, RunEntry, RunStatus, CATALOGUE_FILE};
+use crate::catalogue::{Catalogue, CatalogueError, RunStatus, CATALOGUE_FILE};
 use crate::config::YamlFile;
 use crate::error::{Diagnostic, RunFailure};
 use crate::layout::{ANGULAR_DISTRIBUTION_PARQUET, CROSS_SECTIONS_PARQUET, FITS_DIR, FIT_JSON, PROVENANCE_JSON};
 use crate::plan::{Plan, PlannedRun};
-use crate::provenance::{record_time_s, rfc3339_utc, sha256_hex, RunInputs};
-use crate::run::{output_files, reduce_run, Summary};
+use crate::provenance::{sha256_hex, RunInputs};
+use crate::run::{output_files, reduce_run, run_entry, Summary};
 use crate::tables::{write_all_atomic, WriteError};
 
 /// Settings of a batch.
@@ -247,7 +247,7 @@ pub fn batch(plan: &Plan, opts: &BatchOptions) -> Result<(BatchSummary, Vec<RunF
                     },
                     Err(problems) => Err(problems),
                 };
-                let entry = catalogue_entry(run, hash, &config_sha, start, &result);
+                let entry = run_entry(run, hash, &config_sha, start, &result);
                 if let Err(e) = lock(&catalogue).and_then(|mut c| c.put(&entry)) {
                     stop(format!("cannot record run {label} in {CATALOGUE_FILE}: {e}"));
                     break;
@@ -314,49 +314,13 @@ pub fn batch(plan: &Plan, opts: &BatchOptions) -> Result<(BatchSummary, Vec<RunF
                 guard.set_meta("combined_key", &key).map_err(|e| fail(&e))?;
             }
         }
+        // The report of every run the catalogue knows; each shard's report comes with
+        // `merge`.
+        let entries = guard.list(false).map_err(|e| fail(&e))?;
+        drop(guard);
+        crate::run::write_report(plan, &opts.out, &entries);
     }
     Ok((summary, failures, lines))
-}
-
-/// The catalogue entry of a processed run.
-fn catalogue_entry(
-    run: &PlannedRun,
-    hash: &str,
-    config_sha: &str,
-    start: Instant,
-    result: &Result<crate::run::Reduced, Vec<Diagnostic>>,
-) -> RunEntry {
-    let loaded = run.loaded.as_ref().ok();
-    let mut entry = RunEntry {
-        run: run.label(),
-        record_file: run.record_path.to_string_lossy().into_owned(),
-        data_file: loaded.map(|l| l.yields_path.to_string_lossy().into_owned()).unwrap_or_default(),
-        input_sha256: hash.to_string(),
-        config_sha256: config_sha.to_string(),
-        status: RunStatus::Ok,
-        error: String::new(),
-        processed_utc: rfc3339_utc(record_time_s()),
-        seconds: start.elapsed().as_secs_f64(),
-        events: None,
-        charge_c: loaded.and_then(|l| l.record.charge_c()),
-        live_fraction: None,
-        warnings: String::new(),
-    };
-    match result {
-        Ok(reduced) => {
-            entry.events = reduced.raw.as_ref().map(|r| r.result.tally.events as i64);
-            entry.warnings = reduced.raw.as_ref().map(|r| r.result.warnings.join("\n")).unwrap_or_default();
-            entry.live_fraction = stages::table::f64_values(&reduced.table, "live_fraction")
-                .ok()
-                .filter(|v| !v.is_empty())
-                .map(|v| v.iter().sum::<f64>() / v.len() as f64);
-        }
-        Err(problems) => {
-            entry.status = RunStatus::Failed;
-            entry.error = problems.iter().map(ToString::to_string).collect::<Vec<_>>().join("\n");
-        }
-    }
-    entry
 }
 
 /// Whether the output folder takes a new file: an empty one is written and removed, so
@@ -526,6 +490,8 @@ pub fn merge(dirs: &[PathBuf], out: &Path) -> Result<(BatchSummary, Vec<RunFailu
     crate::run::combine_then_fit(&plan, &tables, out, &mut s, &mut failures);
     summary.fits_ok = s.fits_ok;
     summary.fits_failed = s.fits_failed;
+    let merged_entries = merged.list(false).map_err(|e| fail(out, &e))?;
+    crate::run::write_report(&plan, out, &merged_entries);
     Ok((summary, failures))
 }
 

@@ -300,8 +300,9 @@ pub enum Command {
         #[arg(value_enum)]
         kind: crate::plot::Kind,
         /// The table: angular_distribution.* (angular-distribution), cross_sections.*
-        /// (ratio-rutherford) or a run's spectra.parquet (spectrum); for the first two also
-        /// a `reduce` output folder (its combined table, or every run's table).
+        /// (ratio-rutherford), a run's spectra.parquet (spectrum) or a `batch` output folder
+        /// (run-health); for the first two also a `reduce` output folder (its combined
+        /// table, or every run's table).
         input: PathBuf,
         /// The SVG file to write.
         #[arg(long)]
@@ -310,9 +311,13 @@ pub enum Command {
         /// folder beside the input, when there is one.
         #[arg(long)]
         fits: Option<PathBuf>,
-        /// The spectrum's detector; default the first in the table.
+        /// The spectrum's detector (default the first in the table), or the detector whose
+        /// net counts per µC run health shows.
         #[arg(long)]
         detector: Option<String>,
+        /// Run health marks runs farther than this many standard deviations from the median.
+        #[arg(long, default_value_t = 3.0)]
+        outlier_sigmas: f64,
     },
     /// Print a JSON Schema: the config (default), a run record, or a table.
     Schema {

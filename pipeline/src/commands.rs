@@ -217,8 +217,8 @@ pub fn execute(command: Command) -> Report {
             };
             simulate_runs(&request)
         }
-        Command::Plot { kind, input, out, fits, detector } => {
-            match crate::plot::draw(kind, &input, &out, fits.as_deref(), detector.as_deref()) {
+        Command::Plot { kind, input, out, fits, detector, outlier_sigmas } => {
+            match crate::plot::draw(kind, &input, &out, fits.as_deref(), detector.as_deref(), outlier_sigmas) {
                 Ok(()) => Report::new().err(format_args!("plot written to {}", out.display())),
                 Err(d) => Report::diagnostics(&[d]),
             }

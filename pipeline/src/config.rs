@@ -70,11 +70,50 @@ pub struct ReportConfig {
     /// `angular_distribution.svg`. Default true; `false` draws nothing.
     #[serde(default = "yes")]
     pub plots: bool,
+    /// Write the HTML report, `report/index.html` and a page per run. Default true.
+    #[serde(default = "yes")]
+    pub html: bool,
+    /// Run health marks a run whose charge, live fraction or counts per µC lies farther
+    /// than this many robust standard deviations from the median of the runs. Default 3.
+    #[serde(default = "three")]
+    pub outlier_sigmas: f64,
+    /// The detector whose net counts per µC run health shows (a detector id of
+    /// `detectors:`); none by default.
+    #[serde(default)]
+    pub health_detector: Option<String>,
+}
+
+fn three() -> f64 {
+    3.0
 }
 
 impl Default for ReportConfig {
     fn default() -> Self {
-        ReportConfig { plots: true }
+        ReportConfig { plots: true, html: true, outlier_sigmas: three(), health_detector: None }
+    }
+}
+
+impl ReportConfig {
+    /// Its problems; `detectors` are the ids of the config's detectors.
+    pub fn validate(&self, detectors: &[&str]) -> Vec<Problem> {
+        let mut problems = Vec::new();
+        if !(self.outlier_sigmas.is_finite() && self.outlier_sigmas > 0.0) {
+            problems.push(Problem::new(
+                "report.outlier_sigmas",
+                self.outlier_sigmas.to_string(),
+                "a number of standard deviations above 0, e.g. 3",
+            ));
+        }
+        if let Some(d) = &self.health_detector {
+            if !detectors.contains(&d.as_str()) {
+                problems.push(Problem::new(
+                    "report.health_detector",
+                    d.clone(),
+                    format!("a detector id of `detectors:` ({})", detectors.join(", ")),
+                ));
+            }
+        }
+        problems
     }
 }
 

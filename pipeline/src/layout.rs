@@ -27,6 +27,17 @@ pub const FITS_DIR: &str = "fits";
 /// A fit's report as JSON, in its folder (also `fit.yaml`, `curve.csv`, `curve.parquet`).
 pub const FIT_JSON: &str = "fit.json";
 
+/// Folder of the HTML report inside the output folder.
+pub const REPORT_DIR: &str = "report";
+/// The report's first page, in its folder.
+pub const REPORT_INDEX: &str = "index.html";
+/// Folder of the run pages inside the report folder (`report/runs/<run>.html`).
+pub const REPORT_RUNS_DIR: &str = "runs";
+/// A run's spectra with their gates (list-mode and spectrum runs), in `<out>/<run>/`.
+pub const SPECTRA_PARQUET: &str = "spectra.parquet";
+/// A run's event tallies and gates (list-mode and spectrum runs), in `<out>/<run>/`.
+pub const RAW_JSON: &str = "raw.json";
+
 /// Whether an id may name an output folder: letters, digits, '-', '_' and '.', not
 /// starting with '.' (no hidden folders, no `..`, no separators).
 pub fn is_folder_name(id: &str) -> bool {

@@ -16,6 +16,7 @@ pub mod locate;
 pub mod plan;
 pub mod plot;
 pub mod provenance;
+pub mod report;
 pub mod run;
 pub mod schema;
 pub mod simulate;

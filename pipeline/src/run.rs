@@ -2,19 +2,21 @@
 //! run's failure is reported and the others go on.
 
 use std::path::{Path, PathBuf};
+use std::time::Instant;
 
 use polars::prelude::{Column, DataFrame, PolarsResult};
 use stages::setup::RunData;
 use stages::{Origin, RunContext, StageError};
 use tracing::{debug, info, info_span, warn};
 
+use crate::catalogue::{RunEntry, RunStatus};
 use crate::error::{without_panics, Diagnostic, RunFailure};
 use crate::fit::{run_fits, FitCounts};
 use crate::layout::{
     ANGULAR_DISTRIBUTION_CSV, ANGULAR_DISTRIBUTION_PARQUET, ANGULAR_DISTRIBUTION_PROVENANCE_JSON, COVARIANCE_CSV,
     CROSS_SECTIONS_CSV, CROSS_SECTIONS_PARQUET, PROVENANCE_JSON, PROVENANCE_KEY,
 };
-use crate::plan::{LoadedRun, Plan};
+use crate::plan::{LoadedRun, Plan, PlannedRun};
 use crate::provenance::{record_time_s, rfc3339_utc, CombinedProvenance, MadeWith, Provenance, RunInputs};
 use crate::tables::{csv_bytes, is_csv, parquet_bytes, read_table, write_all_atomic};
 
@@ -234,8 +236,11 @@ fn raw_files(raw: &RawOutputs, provenance: &str) -> PolarsResult<Vec<(&'static s
     ])?;
     let mut files = vec![
         ("yields.csv", csv_bytes(&mut yields)?),
-        ("raw.json", format!("{}\n", serde_json::to_string_pretty(&json).unwrap_or_default()).into_bytes()),
-        ("spectra.parquet", parquet_bytes(&mut spectra, meta(("xsflow.gates", gates)))?),
+        (
+            crate::layout::RAW_JSON,
+            format!("{}\n", serde_json::to_string_pretty(&json).unwrap_or_default()).into_bytes(),
+        ),
+        (crate::layout::SPECTRA_PARQUET, parquet_bytes(&mut spectra, meta(("xsflow.gates", gates)))?),
     ];
     if !r.pid.is_empty() {
         let mut pid = DataFrame::new_infer_height(vec![
@@ -253,6 +258,48 @@ fn raw_files(raw: &RawOutputs, provenance: &str) -> PolarsResult<Vec<(&'static s
     Ok(files)
 }
 
+/// The catalogue entry of a processed run (`hash` and `config_sha` empty for `reduce`,
+/// which keeps no catalogue), started at `start`.
+pub fn run_entry(
+    run: &PlannedRun,
+    hash: &str,
+    config_sha: &str,
+    start: Instant,
+    result: &Result<Reduced, Vec<Diagnostic>>,
+) -> RunEntry {
+    let loaded = run.loaded.as_ref().ok();
+    let mut entry = RunEntry {
+        run: run.label(),
+        record_file: run.record_path.to_string_lossy().into_owned(),
+        data_file: loaded.map(|l| l.yields_path.to_string_lossy().into_owned()).unwrap_or_default(),
+        input_sha256: hash.to_string(),
+        config_sha256: config_sha.to_string(),
+        status: RunStatus::Ok,
+        error: String::new(),
+        processed_utc: rfc3339_utc(record_time_s()),
+        seconds: start.elapsed().as_secs_f64(),
+        events: None,
+        charge_c: loaded.and_then(|l| l.record.charge_c()),
+        live_fraction: None,
+        warnings: String::new(),
+    };
+    match result {
+        Ok(reduced) => {
+            entry.events = reduced.raw.as_ref().map(|r| r.result.tally.events as i64);
+            entry.warnings = reduced.raw.as_ref().map(|r| r.result.warnings.join("\n")).unwrap_or_default();
+            entry.live_fraction = stages::table::f64_values(&reduced.table, "live_fraction")
+                .ok()
+                .filter(|v| !v.is_empty())
+                .map(|v| v.iter().sum::<f64>() / v.len() as f64);
+        }
+        Err(problems) => {
+            entry.status = RunStatus::Failed;
+            entry.error = problems.iter().map(ToString::to_string).collect::<Vec<_>>().join("\n");
+        }
+    }
+    entry
+}
+
 /// Counts of a reduction.
 #[derive(Debug, Default, Clone, Copy, PartialEq, Eq)]
 pub struct Summary {
@@ -266,24 +313,28 @@ pub struct Summary {
     pub fits_failed: usize,
 }
 
-/// Reduce every run of the plan into `out_dir`; failures are returned, not fatal.
+/// Reduce every run of the plan into `out_dir`, combine, fit, and write the report;
+/// failures are returned, not fatal.
 pub fn reduce_all(plan: &Plan, out_dir: &Path) -> (Summary, Vec<RunFailure>) {
     let mut summary = Summary::default();
     let mut failures = Vec::new();
     let mut tables = Vec::new();
+    let mut entries = Vec::new();
     for planned in &plan.runs {
         let label = planned.label();
         let _span = info_span!("run", run = %label).entered();
+        let start = Instant::now();
         let result = planned.loaded.as_ref().map_err(Clone::clone).and_then(|run| {
             let mut reduced = reduce_run(plan, run)?;
             let files = write_outputs(out_dir, &mut reduced).map_err(|d| vec![d])?;
-            tables.push((reduced.table, reduced.provenance.run_inputs()));
-            Ok(files)
+            info!(files = files.len(), dir = %out_dir.join(&label).display(), "run reduced");
+            Ok(reduced)
         });
+        entries.push(run_entry(planned, "", "", start, &result));
         match result {
-            Ok(files) => {
+            Ok(reduced) => {
                 summary.ok += 1;
-                info!(files = files.len(), dir = %out_dir.join(&label).display(), "run reduced");
+                tables.push((reduced.table, reduced.provenance.run_inputs()));
             }
             Err(problems) => {
                 summary.failed += 1;
@@ -293,7 +344,30 @@ pub fn reduce_all(plan: &Plan, out_dir: &Path) -> (Summary, Vec<RunFailure>) {
         }
     }
     combine_then_fit(plan, &tables, out_dir, &mut summary, &mut failures);
+    // A reduction that wrote nothing leaves the output folder empty (its failures are on
+    // the terminal); `batch` writes its report every time, for the morning check.
+    if summary.ok > 0 {
+        write_report(plan, out_dir, &entries);
+    }
     (summary, failures)
+}
+
+/// Write the HTML report of `out_dir` for the runs of `entries`, unless the config turns
+/// it off (`report: { html: false }`). A report that cannot be written is a warning: the
+/// tables are the results.
+pub fn write_report(plan: &Plan, out_dir: &Path, entries: &[RunEntry]) {
+    if !plan.report.html {
+        return;
+    }
+    let settings = crate::report::Settings {
+        title: plan.experiment.name.clone(),
+        outlier_sigmas: plan.report.outlier_sigmas,
+        health_detector: plan.report.health_detector.clone(),
+    };
+    match crate::report::write(out_dir, &settings, entries) {
+        Ok(w) => info!(pages = w.run_pages, kept = w.run_pages_kept, "report written"),
+        Err(d) => warn!(file = %d.file.display(), "report not written: {}", d.message),
+    }
 }
 
 /// Combine the runs (each reduced table with its run and inputs), write the distribution,
@@ -334,7 +408,7 @@ fn draw_plots(out_dir: &Path) {
         return;
     }
     let svg = out_dir.join(crate::layout::ANGULAR_DISTRIBUTION_SVG);
-    if let Err(d) = crate::plot::draw(crate::plot::Kind::AngularDistribution, &table, &svg, None, None) {
+    if let Err(d) = crate::plot::draw(crate::plot::Kind::AngularDistribution, &table, &svg, None, None, 3.0) {
         warn!(file = %d.file.display(), "plot not drawn: {}", d.message);
     }
 }

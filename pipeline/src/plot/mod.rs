@@ -7,6 +7,7 @@
 //! formatted with a fixed number of digits, and nothing records the time.
 
 mod angular;
+mod health;
 mod ratio;
 mod spectrum;
 
@@ -18,6 +19,7 @@ use plotters::prelude::*;
 use polars::prelude::*;
 
 pub use angular::{angular_distribution, find_fits};
+pub use health::{describe as describe_outliers, detector_counts, outliers, run_health, HealthRun, Outlier};
 pub use ratio::ratio_rutherford;
 pub use spectrum::spectrum;
 
@@ -32,6 +34,9 @@ pub enum Kind {
     AngularDistribution,
     /// The ratio to Rutherford versus θ_cm (linear axis) from cross_sections.*.
     RatioRutherford,
+    /// Charge, live fraction and (with `--detector`) net counts per µC versus run, from a
+    /// `batch` output folder's catalogue, with the runs far from the median marked.
+    RunHealth,
     /// One detector's energy spectrum (log counts) from a run's spectra.parquet, with each
     /// state's window and side bands shaded and the net counts printed.
     Spectrum,
@@ -69,7 +74,8 @@ fn drawing<E: Display>(e: E) -> String {
 }
 
 /// Draw `kind` from `input` into the SVG file `out`; `fits` is a fit folder (or a folder
-/// of them) for the angular distribution, `detector` the spectrum's detector.
+/// of them) for the angular distribution, `detector` the spectrum's detector (or the
+/// run-health counts' one), `outlier_sigmas` the run-health outlier distance.
 ///
 /// # Errors
 /// An unreadable input, a missing column, or an unwritable output, naming the file.
@@ -79,6 +85,7 @@ pub fn draw(
     out: &Path,
     fits: Option<&Path>,
     detector: Option<&str>,
+    outlier_sigmas: f64,
 ) -> Result<(), Diagnostic> {
     let svg = match kind {
         Kind::AngularDistribution => {
@@ -100,6 +107,17 @@ pub fn draw(
         }
         Kind::RatioRutherford => ratio_rutherford(input)?,
         Kind::Spectrum => spectrum(input, detector)?,
+        Kind::RunHealth => {
+            if !(outlier_sigmas.is_finite() && outlier_sigmas > 0.0) {
+                return Err(Diagnostic::new(
+                    input,
+                    "--outlier-sigmas",
+                    format!("found {outlier_sigmas}, expected a number of standard deviations above 0, e.g. 3"),
+                ));
+            }
+            let runs = crate::report::health_of_batch(input, detector)?;
+            run_health(&runs, outlier_sigmas)?.0
+        }
     };
     write_svg(out, &svg)
 }
@@ -178,7 +196,7 @@ fn cm_columns(file: &Path) -> Result<(DataFrame, CmColumns), Diagnostic> {
 }
 
 /// The distinct values of `keys` in order of first appearance.
-fn distinct(keys: &[String]) -> Vec<String> {
+pub(crate) fn distinct(keys: &[String]) -> Vec<String> {
     let mut out: Vec<String> = Vec::new();
     for k in keys {
         if !out.contains(k) {
@@ -191,11 +209,24 @@ fn distinct(keys: &[String]) -> Vec<String> {
 /// A tick label with a fixed form: up to 4 significant digits, no exponent between 1e-3 and
 /// 1e5, trailing zeros removed, so that the same axis gives the same bytes everywhere.
 pub fn tick_label(v: f64) -> String {
+    fixed_form(v, 4, 0)
+}
+
+/// A number in the fixed form of [`tick_label`] with up to `digits` significant digits
+/// (and as many in the mantissa outside 1e-3..1e5), for tables.
+pub fn tick_label_digits(v: f64, digits: usize) -> String {
+    let digits = digits.max(1);
+    fixed_form(v, digits, digits - 1)
+}
+
+/// Up to `digits` significant digits without exponent in 1e-3..1e5, trailing zeros
+/// removed; outside, an exponent with `exponent_decimals` decimals.
+fn fixed_form(v: f64, digits: usize, exponent_decimals: usize) -> String {
     let a = v.abs();
     if a != 0.0 && !(1e-3..1e5).contains(&a) {
-        return format!("{v:.0e}");
+        return format!("{v:.exponent_decimals$e}");
     }
-    let decimals = if a == 0.0 { 0 } else { (3 - a.log10().floor() as i32).clamp(0, 6) as usize };
+    let decimals = if a == 0.0 { 0 } else { (digits as i32 - 1 - a.log10().floor() as i32).clamp(0, 6) as usize };
     let s = format!("{v:.decimals$}");
     let s = if s.contains('.') { s.trim_end_matches('0').trim_end_matches('.').to_string() } else { s };
     if s == "-0" {
