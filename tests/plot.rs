@@ -178,6 +178,63 @@ fn reduce_draws_the_expected_angular_distribution_unless_the_config_says_no() {
     assert!(!tmp.path().join("off").join(name).exists(), "plots: false draws nothing");
 }
 
+/// A demo copy whose run records' charge is replaced by what `edit` gives for the record
+/// file's name (`None`: left alone).
+fn demo_with_charge(edit: impl Fn(&str) -> Option<String>) -> tempfile::TempDir {
+    let tmp = crate::common::demo_copy();
+    for entry in std::fs::read_dir(tmp.path().join("runs")).expect("runs") {
+        let path = entry.expect("entry").path();
+        let name = path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
+        if let (true, Some(charge)) = (name.ends_with(".run.yaml"), edit(&name)) {
+            let record = std::fs::read_to_string(&path).expect("record");
+            let edited: String = record
+                .lines()
+                .map(|l| if l.starts_with("charge_c:") { format!("charge_c: {charge}\n") } else { format!("{l}\n") })
+                .collect();
+            std::fs::write(&path, edited).expect("write");
+        }
+    }
+    tmp
+}
+
+#[test]
+fn run_health_marks_the_run_with_a_fraction_of_the_charge_and_the_report_names_it() {
+    // Run 0103's record says a sixth of its charge while its yields are unchanged (a
+    // current integrator fault): its net counts per µC, six times the others', are ringed.
+    // Its charge alone is not out of line: the demo's runs have charges of 20 to 35 µC, and
+    // 2 µC is 2.1 robust σ below their median (hand-worked: median 25, MAD 7.5).
+    let tmp = demo_with_charge(|name| name.contains("0103").then(|| "2.0e-06".to_string()));
+    let config = tmp.path().join("experiment.yaml");
+    let text_before = std::fs::read_to_string(&config).expect("config");
+    std::fs::write(&config, format!("{text_before}\nreport:\n  health_detector: D05\n")).expect("config");
+    let o = xsflow(tmp.path(), &["batch", "experiment.yaml", "--out", "out", "-q"]);
+    assert_eq!(o.status.code(), Some(0), "{}", text(&o));
+    let svg = plot(tmp.path(), &["run-health", "out", "--detector", "D05"], "health.svg");
+    // Three panels (charge, live fraction, counts per µC) of four runs; one ring.
+    assert_eq!(elements(&svg, "circle").iter().filter(|c| attr(c, "r") == Some("3")).count(), 12, "{svg}");
+    assert_eq!(elements(&svg, "circle").iter().filter(|c| attr(c, "r") == Some("8")).count(), 1, "{svg}");
+    assert!(svg.contains("net counts per µC"), "the third panel");
+    let index = std::fs::read_to_string(tmp.path().join("out/report/index.html")).expect("report");
+    assert!(index.contains("median: run 0103, net counts per µC = "), "the report names it: {index}");
+    assert!(index.contains("4 run(s): 4 ok · 0 failed · 0 skipped"), "summary line");
+    // Without a catalogue there is no run health to draw.
+    let o = xsflow(tmp.path(), &["plot", "run-health", "runs", "--out", "x.svg"]);
+    assert_eq!(o.status.code(), Some(2), "{}", text(&o));
+    assert!(text(&o).contains("no catalogue.sqlite here"), "{}", text(&o));
+}
+
+#[test]
+fn a_batch_where_every_run_failed_reports_each_failure_and_nothing_to_plot() {
+    let tmp = demo_with_charge(|_| Some("0".to_string()));
+    let o = xsflow(tmp.path(), &["batch", "experiment.yaml", "--out", "out", "-q"]);
+    assert_eq!(o.status.code(), Some(1), "{}", text(&o));
+    let index = std::fs::read_to_string(tmp.path().join("out/report/index.html")).expect("report");
+    assert!(index.contains("4 run(s): 0 ok · 4 failed"), "{index}");
+    assert_eq!(index.matches("<div class=\"problem\">").count(), 4, "each failure with its message");
+    assert!(index.contains("No combined distribution: no run was reduced."), "{index}");
+    assert!(index.contains("no run to show") || index.contains("charge (µC)"), "health drawn or said empty");
+}
+
 #[test]
 fn a_reduction_where_every_run_failed_draws_nothing_and_says_why() {
     // Nothing reduced means nothing written (DESIGN: outputs appear whole or not at all);
