@@ -300,9 +300,9 @@ pub enum Command {
         #[arg(value_enum)]
         kind: crate::plot::Kind,
         /// The table: angular_distribution.* (angular-distribution), cross_sections.*
-        /// (ratio-rutherford), a run's spectra.parquet (spectrum) or a `batch` output folder
-        /// (run-health); for the first two also a `reduce` output folder (its combined
-        /// table, or every run's table).
+        /// (ratio-rutherford), a run's spectra.parquet (spectrum), a `batch` output folder
+        /// (run-health) or a fit folder or its fit.json (fit-landscape); for the first two
+        /// also a `reduce` output folder (its combined table, or every run's table).
         input: PathBuf,
         /// The SVG file to write.
         #[arg(long)]

@@ -27,6 +27,9 @@ pub const FITS_DIR: &str = "fits";
 /// A fit's report as JSON, in its folder (also `fit.yaml`, `curve.csv`, `curve.parquet`).
 pub const FIT_JSON: &str = "fit.json";
 
+/// A fit's landscape of minima (fits with several), in its folder.
+pub const LANDSCAPE_SVG: &str = "landscape.svg";
+
 /// Folder of the HTML report inside the output folder.
 pub const REPORT_DIR: &str = "report";
 /// The report's first page, in its folder.
@@ -42,6 +45,20 @@ pub const RAW_JSON: &str = "raw.json";
 /// starting with '.' (no hidden folders, no `..`, no separators).
 pub fn is_folder_name(id: &str) -> bool {
     !id.starts_with('.') && id.chars().all(|c| c.is_ascii_alphanumeric() || matches!(c, '-' | '_' | '.'))
+}
+
+/// The fit folders in `dir` (each holding a fit.json), in name order; none when `dir`
+/// cannot be listed.
+pub fn fit_dirs(dir: &std::path::Path) -> Vec<std::path::PathBuf> {
+    let mut dirs: Vec<std::path::PathBuf> = std::fs::read_dir(dir)
+        .into_iter()
+        .flatten()
+        .flatten()
+        .map(|e| e.path())
+        .filter(|p| p.join(FIT_JSON).is_file())
+        .collect();
+    dirs.sort();
+    dirs
 }
 
 #[cfg(test)]

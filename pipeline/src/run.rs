@@ -411,6 +411,19 @@ fn draw_plots(out_dir: &Path) {
     if let Err(d) = crate::plot::draw(crate::plot::Kind::AngularDistribution, &table, &svg, None, None, 3.0) {
         warn!(file = %d.file.display(), "plot not drawn: {}", d.message);
     }
+    // The landscape of each fit that found several minima, in its folder.
+    for fit in crate::layout::fit_dirs(&out_dir.join(crate::layout::FITS_DIR)) {
+        let several = std::fs::read_to_string(fit.join(crate::layout::FIT_JSON))
+            .ok()
+            .and_then(|t| serde_json::from_str::<serde_json::Value>(&t).ok())
+            .is_some_and(|f| crate::plot::minima_of(&f).len() > 1);
+        if several {
+            let svg = fit.join(crate::layout::LANDSCAPE_SVG);
+            if let Err(d) = crate::plot::draw(crate::plot::Kind::FitLandscape, &fit, &svg, None, None, 3.0) {
+                warn!(file = %d.file.display(), "plot not drawn: {}", d.message);
+            }
+        }
+    }
 }
 
 /// Combine the reduced tables of the runs into one angular distribution per state

@@ -1,7 +1,7 @@
 //! The angular distribution: dσ/dΩ_cm versus θ_cm on a log axis, statistical and total
 //! error bars, the fitted curves with a legend, and a pull panel under each state's panel.
 
-use std::path::{Path, PathBuf};
+use std::path::Path;
 
 use plotters::prelude::*;
 
@@ -37,11 +37,8 @@ pub fn find_fits(dir: &Path) -> Result<Vec<FitCurve>, Diagnostic> {
     if dir.join(FIT_JSON).is_file() {
         return Ok(vec![read_fit(dir)?]);
     }
-    let entries = std::fs::read_dir(dir).map_err(|e| Diagnostic::new(dir, "", format!("cannot list the fits: {e}")))?;
-    let mut dirs: Vec<PathBuf> =
-        entries.filter_map(Result::ok).map(|e| e.path()).filter(|p| p.join(FIT_JSON).is_file()).collect();
-    dirs.sort();
-    dirs.iter().map(|d| read_fit(d)).collect()
+    std::fs::read_dir(dir).map_err(|e| Diagnostic::new(dir, "", format!("cannot list the fits: {e}")))?;
+    crate::layout::fit_dirs(dir).iter().map(|d| read_fit(d)).collect()
 }
 
 /// One fit folder: its fit.json (state, model, χ²/ndf) and its curve table.

@@ -8,6 +8,7 @@
 
 mod angular;
 mod health;
+mod landscape;
 mod ratio;
 mod spectrum;
 
@@ -20,6 +21,7 @@ use polars::prelude::*;
 
 pub use angular::{angular_distribution, find_fits};
 pub use health::{describe as describe_outliers, detector_counts, outliers, run_health, HealthRun, Outlier};
+pub use landscape::{draw_minima, landscape, minima_of};
 pub use ratio::ratio_rutherford;
 pub use spectrum::spectrum;
 
@@ -37,6 +39,9 @@ pub enum Kind {
     /// Charge, live fraction and (with `--detector`) net counts per µC versus run, from a
     /// `batch` output folder's catalogue, with the runs far from the median marked.
     RunHealth,
+    /// χ² of every distinct minimum of an optical-model fit against its real depth and its
+    /// real volume integral per nucleon pair, from a fit folder or its fit.json.
+    FitLandscape,
     /// One detector's energy spectrum (log counts) from a run's spectra.parquet, with each
     /// state's window and side bands shaded and the net counts printed.
     Spectrum,
@@ -107,6 +112,7 @@ pub fn draw(
         }
         Kind::RatioRutherford => ratio_rutherford(input)?,
         Kind::Spectrum => spectrum(input, detector)?,
+        Kind::FitLandscape => landscape(input)?,
         Kind::RunHealth => {
             if !(outlier_sigmas.is_finite() && outlier_sigmas > 0.0) {
                 return Err(Diagnostic::new(

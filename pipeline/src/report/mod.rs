@@ -214,19 +214,15 @@ fn distribution_section(out_dir: &Path) -> String {
 
 /// Each fit of the folder's `fits/` with its quality and parameter table.
 fn fits_section(out_dir: &Path) -> String {
-    let dir = out_dir.join(FITS_DIR);
-    let mut names: Vec<String> = std::fs::read_dir(&dir)
-        .into_iter()
-        .flatten()
-        .flatten()
-        .filter(|e| e.path().join(FIT_JSON).is_file())
-        .map(|e| e.file_name().to_string_lossy().into_owned())
+    let names: Vec<String> = crate::layout::fit_dirs(&out_dir.join(FITS_DIR))
+        .iter()
+        .filter_map(|d| d.file_name().map(|n| n.to_string_lossy().into_owned()))
         .filter(|n| is_folder_name(n))
         .collect();
     if names.is_empty() {
         return String::new();
     }
-    names.sort();
+    let dir = out_dir.join(FITS_DIR);
     let mut out = String::from("<section id=\"fits\">\n<h2>Fits</h2>\n");
     for name in names {
         let file = dir.join(&name).join(FIT_JSON);
@@ -275,6 +271,16 @@ fn fit_block(link: &str, fit: &serde_json::Value) -> String {
         })
         .collect();
     out.push_str(&table(&["parameter", "value", "error", "note"], &rows));
+    let minima = crate::plot::minima_of(fit);
+    if minima.len() > 1 {
+        if let Ok(svg) = crate::plot::draw_minima(&minima) {
+            out.push_str(&figure(
+                &svg,
+                "Every distinct minimum: χ² against the real depth and the real volume integral per nucleon pair; \
+                 the best in brick red.",
+            ));
+        }
+    }
     out
 }
 

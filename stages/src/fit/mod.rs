@@ -269,7 +269,11 @@ impl Fit {
                 .collect(),
             correlations: best.correlations().as_ref().map(matrix),
             covariance: best.covariance.as_ref().map(matrix),
-            minima: if self.starts.len() > 1 { minima.iter().map(minimum_report).collect() } else { Vec::new() },
+            minima: if self.starts.len() > 1 {
+                minima.iter().map(|m| minimum_report(m, &self.model)).collect()
+            } else {
+                Vec::new()
+            },
             profiles: profiles
                 .into_iter()
                 .map(|p| ProfileReport { name: p.name, lower: p.lower, upper: p.upper })

@@ -153,6 +153,8 @@ pub(super) struct OpticalModel {
     /// The free parameters, in the order of the fit's parameter vector.
     keys: Vec<OpticalKey>,
     numerics: Numerics,
+    /// A_p · A_t, which the volume integral per nucleon pair divides by.
+    nucleon_pairs: f64,
 }
 
 impl OpticalModel {
@@ -184,6 +186,17 @@ impl OpticalModel {
             imag_surface: ws(&terms[2]),
             coulomb_radius_fm: rc * self.a13,
         })
+    }
+}
+
+impl Model {
+    /// The real volume integral per nucleon pair J_R/(A_p A_t) in MeV fm³ at the parameters
+    /// `p`, for an optical model.
+    pub(super) fn real_volume_integral_mev_fm3(&self, p: &[f64]) -> Option<f64> {
+        match self {
+            Model::Optical(om) => om.potential(p).ok().map(|pot| pot.real.volume_integral_mev_fm3() / om.nucleon_pairs),
+            _ => None,
+        }
     }
 }
 
@@ -323,7 +336,8 @@ pub(super) fn optical_parts(
         RadiusConvention::Sum => f64::from(beam.a).cbrt() + f64::from(target.a).cbrt(),
     };
     let numerics = numerics.to_numerics();
-    Ok((OpticalModel { potential: potential.clone(), channel, a13, keys, numerics }, params, starts))
+    let nucleon_pairs = f64::from(beam.a) * f64::from(target.a);
+    Ok((OpticalModel { potential: potential.clone(), channel, a13, keys, numerics, nucleon_pairs }, params, starts))
 }
 
 /// Weighted linear least squares for the Legendre coefficients: min Σ ((Σ a_l P_l(x_i) −

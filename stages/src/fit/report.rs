@@ -7,6 +7,7 @@ use std::collections::BTreeMap;
 use serde::Serialize;
 
 use super::config::NormalisationMode;
+use super::models::Model;
 use crate::physics::model_fit::Minimum;
 
 /// One fitted parameter in a report.
@@ -41,6 +42,9 @@ pub struct MinimumReport {
     pub termination: String,
     /// Parameter values by name.
     pub parameters: BTreeMap<String, f64>,
+    /// Optical model: the real volume integral per nucleon pair J_R/(A_p A_t), MeV fm³.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub real_volume_integral_mev_fm3: Option<f64>,
 }
 
 /// A profile-likelihood interval.
@@ -133,11 +137,13 @@ pub struct NumericsReport {
     pub l_max: usize,
 }
 
-pub(super) fn minimum_report(m: &Minimum) -> MinimumReport {
+pub(super) fn minimum_report(m: &Minimum, model: &Model) -> MinimumReport {
+    let values: Vec<f64> = m.estimates.iter().map(|e| e.value).collect();
     MinimumReport {
         chi2: m.chi2,
         converged: m.converged(),
         termination: format!("{:?}", m.termination),
         parameters: m.estimates.iter().map(|e| (e.name.clone(), e.value)).collect(),
+        real_volume_integral_mev_fm3: model.real_volume_integral_mev_fm3(&values),
     }
 }

@@ -50,6 +50,17 @@ impl WoodsSaxon {
         4.0 * x / ((1.0 + x) * (1.0 + x))
     }
 
+    /// Volume integral of the term, ∫ V f(r) d³r = (4π/3) V R³ [1 + (πa/R)²], in MeV fm³,
+    /// positive for a positive depth. The bracket is the Sommerfeld expansion of the Fermi
+    /// integral ∫₀^∞ r² f(r) dr, exact but for a remainder of about 2a³e^(−R/a), a relative
+    /// 6(a/R)³e^(−R/a) < 1e-5 for nuclei (common practice; the unit test checks it against
+    /// direct quadrature). Divided by A_p·A_t it labels the
+    /// families of real potentials that fit the same data equally well.
+    pub fn volume_integral_mev_fm3(&self) -> f64 {
+        let (r, a) = (self.radius_fm, self.diffuseness_fm);
+        4.0 * std::f64::consts::PI / 3.0 * self.depth_mev * r.powi(3) * (1.0 + (std::f64::consts::PI * a / r).powi(2))
+    }
+
     /// Radius beyond which the term is below `fraction` of its depth: R + a ln(1/fraction).
     fn range_fm(&self, fraction: f64) -> f64 {
         if self.depth_mev == 0.0 {
@@ -444,6 +455,40 @@ mod tests {
                 charge_product: 56.0,
             },
         )
+    }
+
+    #[test]
+    fn the_volume_integral_matches_quadrature() {
+        // (V, R, a): light to heavy targets; the reference is Simpson's rule on
+        // 4π V ∫ r² f(r) dr over [0, R + 40a] with 20000 intervals (error < 1e-9 relative).
+        // The closed form drops a remainder of about 2a³e^(−R/a) in the integral, a
+        // relative 6(a/R)³e^(−R/a) (5.6e-6 for 58Ni), allowed here with 20 % to spare.
+        let cases = [(150.0, 3.5 * 1.2, 0.3), (150.0, 58f64.cbrt() * 1.2, 0.60), (50.0, 208f64.cbrt() * 1.25, 0.65)];
+        for (v, r, a) in cases {
+            let ws = WoodsSaxon { depth_mev: v, radius_fm: r, diffuseness_fm: a };
+            let (n, top) = (20_000, r + 40.0 * a);
+            let h = top / n as f64;
+            let g = |x: f64| x * x * ws.form(x);
+            let simpson: f64 = (0..=n)
+                .map(|i| {
+                    let w = if i == 0 || i == n {
+                        1.0
+                    } else if i % 2 == 1 {
+                        4.0
+                    } else {
+                        2.0
+                    };
+                    w * g(i as f64 * h)
+                })
+                .sum::<f64>()
+                * h
+                / 3.0;
+            let quadrature = 4.0 * std::f64::consts::PI * v * simpson;
+            let closed = ws.volume_integral_mev_fm3();
+            let remainder = 6.0 * (a / r).powi(3) * (-r / a).exp();
+            let allowed = 1.2 * remainder + 1e-9;
+            assert!((closed / quadrature - 1.0).abs() < allowed, "V {v} R {r} a {a}: {closed} vs {quadrature}");
+        }
     }
 
     #[test]
