@@ -178,6 +178,21 @@ fn reduce_draws_the_expected_angular_distribution_unless_the_config_says_no() {
     assert!(!tmp.path().join("off").join(name).exists(), "plots: false draws nothing");
 }
 
+#[test]
+fn pid_draws_a_cell_per_occupied_bin_and_the_polygon_closed() {
+    let tmp = tempfile::tempdir().expect("tmp");
+    let file = demo_dir().join("expected-listmode/0201/pid.parquet");
+    let svg = plot(tmp.path(), &["pid", &file.to_string_lossy()], "pid.svg");
+    let detectors = xsflow::tables::read_table(&file).map(|t| stages::table::str_values(&t, "detector"));
+    let rows = detectors.expect("pid table").expect("detector column").iter().filter(|d| *d == "D01").count();
+    let cells = elements(&svg, "rect").into_iter().filter(|r| attr(r, "fill") == Some(hex(SERIES[0]).as_str())).count();
+    assert_eq!(cells, rows, "one cell per occupied (E, ΔE) bin");
+    // The demo's polygon for D01 has four vertices: closed, five points.
+    let outline = lines(&svg, SERIES[1], "2");
+    assert_eq!(outline.len(), 1, "{svg}");
+    assert_eq!(attr(outline[0], "points").map(|p| p.split_whitespace().count()), Some(5));
+}
+
 /// A demo copy whose run records' charge is replaced by what `edit` gives for the record
 /// file's name (`None`: left alone).
 fn demo_with_charge(edit: impl Fn(&str) -> Option<String>) -> tempfile::TempDir {

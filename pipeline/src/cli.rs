@@ -300,7 +300,8 @@ pub enum Command {
         #[arg(value_enum)]
         kind: crate::plot::Kind,
         /// The table: angular_distribution.* (angular-distribution), cross_sections.*
-        /// (ratio-rutherford), a run's spectra.parquet (spectrum), a `batch` output folder
+        /// (ratio-rutherford), a run's spectra.parquet (spectrum) or pid.parquet (pid), a
+        /// `batch` output folder
         /// (run-health) or a fit folder or its fit.json (fit-landscape); for the first two
         /// also a `reduce` output folder (its combined table, or every run's table).
         input: PathBuf,
@@ -311,8 +312,8 @@ pub enum Command {
         /// folder beside the input, when there is one.
         #[arg(long)]
         fits: Option<PathBuf>,
-        /// The spectrum's detector (default the first in the table), or the detector whose
-        /// net counts per µC run health shows.
+        /// The spectrum's or the ΔE–E histogram's detector (default the first in the
+        /// table), or the detector whose net counts per µC run health shows.
         #[arg(long)]
         detector: Option<String>,
         /// Run health marks runs farther than this many standard deviations from the median.

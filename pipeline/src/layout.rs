@@ -38,6 +38,9 @@ pub const REPORT_INDEX: &str = "index.html";
 pub const REPORT_RUNS_DIR: &str = "runs";
 /// A run's spectra with their gates (list-mode and spectrum runs), in `<out>/<run>/`.
 pub const SPECTRA_PARQUET: &str = "spectra.parquet";
+/// A run's binned (E, ΔE) histogram with its PID polygons (list-mode runs with PID), in
+/// `<out>/<run>/`.
+pub const PID_PARQUET: &str = "pid.parquet";
 /// A run's event tallies and gates (list-mode and spectrum runs), in `<out>/<run>/`.
 pub const RAW_JSON: &str = "raw.json";
 

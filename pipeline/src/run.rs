@@ -40,6 +40,8 @@ pub struct RawOutputs {
     pub detectors: Vec<String>,
     /// The calibrations, to give each spectrum channel its energy.
     pub energies_mev: Vec<Vec<f64>>,
+    /// The PID polygons by detector id: vertices (E in MeV, ΔE).
+    pub pid_polygons: std::collections::BTreeMap<String, Vec<[f64; 2]>>,
 }
 
 /// The derived yields table of a run with events or spectra.
@@ -95,7 +97,8 @@ fn reduce_raw(plan: &Plan, run: &LoadedRun) -> Result<(DataFrame, RawOutputs), V
     let table = yields_frame(&result.yields).map_err(|e| vec![Diagnostic::new(path, "", e.to_string())])?;
     let detectors: Vec<String> = raw.detector_ids().iter().map(|s| s.to_string()).collect();
     let energies_mev = (0..detectors.len()).map(|d| raw.channel_energies_mev(d)).collect();
-    Ok((table, RawOutputs { result, gates: raw.gates(), detectors, energies_mev }))
+    let pid_polygons = raw.config.pid.clone();
+    Ok((table, RawOutputs { result, gates: raw.gates(), detectors, energies_mev, pid_polygons }))
 }
 
 /// Read and check one run's yields table, then apply every stage; then check that the
@@ -243,20 +246,48 @@ fn raw_files(raw: &RawOutputs, provenance: &str) -> PolarsResult<Vec<(&'static s
         (crate::layout::SPECTRA_PARQUET, parquet_bytes(&mut spectra, meta(("xsflow.gates", gates)))?),
     ];
     if !r.pid.is_empty() {
-        let mut pid = DataFrame::new_infer_height(vec![
-            Column::new("detector".into(), r.pid.iter().map(|p| raw.detectors[p.0].clone()).collect::<Vec<_>>()),
-            Column::new("energy_bin".into(), r.pid.iter().map(|p| p.1 as u32).collect::<Vec<_>>()),
-            Column::new("delta_e_bin".into(), r.pid.iter().map(|p| p.2 as u32).collect::<Vec<_>>()),
-            Column::new("counts".into(), r.pid.iter().map(|p| p.3).collect::<Vec<_>>()),
-        ])?;
-        let bins = format!(
-            "{{\"bins_per_axis\": {}, \"axes\": \"ADC channel and ΔE value over [0, overflow_channel)\"}}",
-            stages::raw::PID_BINS
-        );
-        files.push(("pid.parquet", parquet_bytes(&mut pid, meta(("xsflow.pid_bins", bins)))?));
+        files.push((crate::layout::PID_PARQUET, pid_bytes(raw, provenance)?));
     }
     Ok(files)
 }
+
+/// The binned (E, ΔE) histogram of the detectors with a PID polygon: each occupied bin
+/// with its edges (ΔE in its own units; E in MeV, the calibrated energy of the bin's first
+/// channel and of the next bin's, or of the last channel for the top bin), and the
+/// polygons in the metadata (`xsflow.pid_polygons`), so that a plot needs no config.
+fn pid_bytes(raw: &RawOutputs, provenance: &str) -> PolarsResult<Vec<u8>> {
+    let pid = &raw.result.pid;
+    let bins = stages::raw::PID_BINS;
+    // Bin b of an axis of n channels covers [b·n/bins, (b+1)·n/bins).
+    let edge = |d: usize, b: usize| (b * raw.energies_mev[d].len()) as f64 / bins as f64;
+    let energy_at = |d: usize, b: usize| {
+        let e = &raw.energies_mev[d];
+        let c = ((b * e.len()) / bins).min(e.len().saturating_sub(1));
+        e.get(c).copied().unwrap_or(f64::NAN)
+    };
+    let mut frame = DataFrame::new_infer_height(vec![
+        Column::new("detector".into(), pid.iter().map(|p| raw.detectors[p.0].clone()).collect::<Vec<_>>()),
+        Column::new("energy_bin".into(), pid.iter().map(|p| p.1 as u32).collect::<Vec<_>>()),
+        Column::new("delta_e_bin".into(), pid.iter().map(|p| p.2 as u32).collect::<Vec<_>>()),
+        Column::new("energy_low_mev".into(), pid.iter().map(|p| energy_at(p.0, p.1)).collect::<Vec<_>>()),
+        Column::new("energy_high_mev".into(), pid.iter().map(|p| energy_at(p.0, p.1 + 1)).collect::<Vec<_>>()),
+        Column::new("delta_e_low".into(), pid.iter().map(|p| edge(p.0, p.2)).collect::<Vec<_>>()),
+        Column::new("delta_e_high".into(), pid.iter().map(|p| edge(p.0, p.2 + 1)).collect::<Vec<_>>()),
+        Column::new("counts".into(), pid.iter().map(|p| p.3).collect::<Vec<_>>()),
+    ])?;
+    let binning =
+        format!("{{\"bins_per_axis\": {bins}, \"axes\": \"ADC channel and ΔE value over [0, overflow_channel)\"}}");
+    let polygons = serde_json::to_string(&raw.pid_polygons).unwrap_or_default();
+    let meta = vec![
+        (PROVENANCE_KEY.to_string(), provenance.to_string()),
+        ("xsflow.pid_bins".to_string(), binning),
+        (PID_POLYGONS_KEY.to_string(), polygons),
+    ];
+    parquet_bytes(&mut frame, meta)
+}
+
+/// The metadata key of the PID polygons in pid.parquet.
+pub const PID_POLYGONS_KEY: &str = "xsflow.pid_polygons";
 
 /// The catalogue entry of a processed run (`hash` and `config_sha` empty for `reduce`,
 /// which keeps no catalogue), started at `start`.

@@ -9,6 +9,7 @@
 mod angular;
 mod health;
 mod landscape;
+mod pid;
 mod ratio;
 mod spectrum;
 
@@ -22,6 +23,7 @@ use polars::prelude::*;
 pub use angular::{angular_distribution, find_fits};
 pub use health::{describe as describe_outliers, detector_counts, outliers, run_health, HealthRun, Outlier};
 pub use landscape::{draw_minima, landscape, minima_of};
+pub use pid::pid;
 pub use ratio::ratio_rutherford;
 pub use spectrum::spectrum;
 
@@ -36,6 +38,9 @@ pub enum Kind {
     AngularDistribution,
     /// The ratio to Rutherford versus θ_cm (linear axis) from cross_sections.*.
     RatioRutherford,
+    /// A telescope's ΔE–E histogram (shade by log counts) with its particle-identification
+    /// polygon, from a list-mode run's pid.parquet.
+    Pid,
     /// Charge, live fraction and (with `--detector`) net counts per µC versus run, from a
     /// `batch` output folder's catalogue, with the runs far from the median marked.
     RunHealth,
@@ -113,6 +118,7 @@ pub fn draw(
         Kind::RatioRutherford => ratio_rutherford(input)?,
         Kind::Spectrum => spectrum(input, detector)?,
         Kind::FitLandscape => landscape(input)?,
+        Kind::Pid => pid(input, detector)?,
         Kind::RunHealth => {
             if !(outlier_sigmas.is_finite() && outlier_sigmas > 0.0) {
                 return Err(Diagnostic::new(

@@ -11,7 +11,9 @@ use super::html::{badge, escape, figure, number, page, table, Cell};
 use super::write_if_changed;
 use crate::catalogue::RunEntry;
 use crate::error::Diagnostic;
-use crate::layout::{CROSS_SECTIONS_CSV, CROSS_SECTIONS_PARQUET, PROVENANCE_JSON, RAW_JSON, SPECTRA_PARQUET};
+use crate::layout::{
+    CROSS_SECTIONS_CSV, CROSS_SECTIONS_PARQUET, PID_PARQUET, PROVENANCE_JSON, RAW_JSON, SPECTRA_PARQUET,
+};
 use crate::provenance::sha256_hex;
 
 /// The first line of a page made from `entry`: its fingerprint. Entries without an input
@@ -185,32 +187,42 @@ fn cross_sections(run_dir: &Path) -> String {
     format!("<section><h2>Cross sections</h2>\n{content}</section>\n")
 }
 
-/// Each detector's spectrum with its gates (runs reduced from events or spectra).
+/// Each detector's spectrum with its gates (runs reduced from events or spectra), then
+/// each telescope's ΔE–E histogram with its polygon (runs with PID).
 fn spectra(run_dir: &Path) -> String {
-    let file = run_dir.join(SPECTRA_PARQUET);
-    if !file.is_file() {
-        return String::new();
-    }
-    let detectors = crate::tables::read_table(&file)
-        .ok()
-        .and_then(|t| stages::table::str_values(&t, "detector").ok())
-        .map(|d| crate::plot::distinct(&d))
-        .unwrap_or_default();
-    let mut out = String::from("<section><h2>Spectra</h2>\n");
-    for d in detectors {
-        match crate::plot::spectrum(&file, Some(&d)) {
-            Ok(svg) => out
-                .push_str(&figure(&svg, &format!("Detector {d}: counts per channel, windows and side bands shaded."))),
-            Err(e) => {
-                let _ = writeln!(
-                    out,
-                    "<p class=\"problem\">Detector {}: not drawn: {}</p>",
-                    escape(&d),
-                    escape(&e.message)
-                );
+    let mut out = String::new();
+    let kinds: [(&str, &str, PlotOf, &str); 2] = [
+        (SPECTRA_PARQUET, "Spectra", crate::plot::spectrum, "counts per channel, windows and side bands shaded"),
+        (PID_PARQUET, "Particle identification", crate::plot::pid, "ΔE against E, shade by log counts, PID polygon"),
+    ];
+    for (name, heading, draw, caption) in kinds {
+        let file = run_dir.join(name);
+        if !file.is_file() {
+            continue;
+        }
+        let detectors = crate::tables::read_table(&file)
+            .ok()
+            .and_then(|t| stages::table::str_values(&t, "detector").ok())
+            .map(|d| crate::plot::distinct(&d))
+            .unwrap_or_default();
+        let _ = writeln!(out, "<section><h2>{heading}</h2>");
+        for d in detectors {
+            match draw(&file, Some(&d)) {
+                Ok(svg) => out.push_str(&figure(&svg, &format!("Detector {d}: {caption}."))),
+                Err(e) => {
+                    let _ = writeln!(
+                        out,
+                        "<p class=\"problem\">Detector {}: not drawn: {}</p>",
+                        escape(&d),
+                        escape(&e.message)
+                    );
+                }
             }
         }
+        out.push_str("</section>\n");
     }
-    out.push_str("</section>\n");
     out
 }
+
+/// A per-detector plot of a run's table.
+type PlotOf = fn(&Path, Option<&str>) -> Result<String, Diagnostic>;
