@@ -3,7 +3,7 @@
 //! 1. RUNS (default 1000) yields-table runs (copies of the demo's, with their own ids and
 //!    counts) processed cold into an empty output folder, then a second batch with nothing
 //!    changed (the demo's fits are left out: they are the same work whatever the number of
-//!    runs);
+//!    runs), and cold again with the report and plots turned off; medians of 3;
 //! 2. LISTMODE_RUNS (default 20) list-mode runs of EVENTS (default 1e7) events each, with
 //!    --jobs 1 and --jobs 2: wall time and peak RSS of the whole process.
 //!
@@ -63,6 +63,15 @@ fn run_timed(dir: &Path, args: &[&str]) -> Result<(f64, Option<f64>), BenchError
     Ok((seconds, rss))
 }
 
+/// Times of the repeated steps; each figure printed is their median.
+const REPEATS: usize = 3;
+
+/// The median of a few times.
+fn median(times: &mut [f64]) -> f64 {
+    times.sort_by(f64::total_cmp);
+    times[times.len() / 2]
+}
+
 fn config_without_fits(src: &Path, dst: &Path, runs: &str) -> Result<(), BenchError> {
     let text = std::fs::read_to_string(src)?;
     let head = text.split("\n  - type: fit").next().unwrap_or(&text);
@@ -104,14 +113,35 @@ fn main() -> Result<(), BenchError> {
             .replace("run0101.yields.csv", &format!("{id}.yields.csv"));
         std::fs::write(dir.join(format!("runs/{id}.run.yaml")), r)?;
     }
-    let (cold, rss_cold) = run_timed(&dir, &["batch", "experiment.yaml", "--out", "out", "-q", "--jobs", "2"])?;
-    let (warm, rss_warm) = run_timed(&dir, &["batch", "experiment.yaml", "--out", "out", "-q", "--jobs", "2"])?;
+    // The same runs with the report and plots turned off, to see what they cost.
+    let text = std::fs::read_to_string(dir.join("experiment.yaml"))?;
+    std::fs::write(dir.join("no-report.yaml"), format!("{text}report: {{ plots: false, html: false }}\n"))?;
+    let mut cold = Vec::new();
+    let mut bare = Vec::new();
+    let mut warm = Vec::new();
+    let (mut rss_cold, mut rss_warm) = (None, None);
+    for k in 0..REPEATS {
+        let out = format!("out{k}");
+        let (t, rss) = run_timed(&dir, &["batch", "experiment.yaml", "--out", &out, "-q", "--jobs", "2"])?;
+        cold.push(t);
+        rss_cold = rss;
+        let (t, rss) = run_timed(&dir, &["batch", "experiment.yaml", "--out", &out, "-q", "--jobs", "2"])?;
+        warm.push(t);
+        rss_warm = rss;
+        let plain = format!("plain{k}");
+        bare.push(run_timed(&dir, &["batch", "no-report.yaml", "--out", &plain, "-q", "--jobs", "2"])?.0);
+    }
+    let (cold, warm, bare) = (median(&mut cold), median(&mut warm), median(&mut bare));
     let rss = |r: Option<f64>| r.map_or("-".into(), |m| format!("{m:.0} MB"));
     println!(
-        "{n_runs} yields runs, --jobs 2: cold {cold:.2} s ({:.1} ms per run, peak RSS {}), nothing changed {warm:.3} s (peak RSS {})",
+        "{n_runs} yields runs, --jobs 2, medians of {REPEATS}: cold {cold:.2} s ({:.1} ms per run, peak RSS {}), \
+         nothing changed {warm:.3} s (peak RSS {}); without report and plots cold {bare:.2} s: the report adds \
+         {:.2} s ({:.1} %)",
         cold / n_runs as f64 * 1e3,
         rss(rss_cold),
-        rss(rss_warm)
+        rss(rss_warm),
+        cold - bare,
+        (cold / bare - 1.0) * 100.0
     );
 
     // 2. List-mode runs: the demo's list-mode config, and its Parquet run (detector, ADC,
