@@ -179,6 +179,25 @@ fn reduce_draws_the_expected_angular_distribution_unless_the_config_says_no() {
 }
 
 #[test]
+fn a_png_is_drawn_when_the_file_name_asks_for_one() {
+    let tmp = tempfile::tempdir().expect("tmp");
+    let table = demo_dir().join("expected/angular_distribution.parquet").to_string_lossy().to_string();
+    let o = xsflow(tmp.path(), &["plot", "angular-distribution", &table, "--out", "ad.PNG"]);
+    assert!(o.status.success(), "{}", text(&o));
+    let png = std::fs::read(tmp.path().join("ad.PNG")).expect("written");
+    // PNG signature, then the IHDR chunk: width and height as big-endian u32 (PNG spec, ISO/IEC 15948).
+    assert_eq!(&png[..8], b"\x89PNG\r\n\x1a\n");
+    assert_eq!(&png[12..16], b"IHDR");
+    let (w, h) = (
+        u32::from_be_bytes([png[16], png[17], png[18], png[19]]),
+        u32::from_be_bytes([png[20], png[21], png[22], png[23]]),
+    );
+    assert_eq!((w, h), xsflow::plot::PAGE_PX);
+    // A blank white page compresses to 3.1 kB (zlib level 6, measured); the demo plot is 82 kB.
+    assert!(png.len() > 20_000, "{} bytes", png.len());
+}
+
+#[test]
 fn pid_draws_a_cell_per_occupied_bin_and_the_polygon_closed() {
     let tmp = tempfile::tempdir().expect("tmp");
     let file = demo_dir().join("expected-listmode/0201/pid.parquet");

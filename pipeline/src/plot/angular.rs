@@ -6,8 +6,8 @@ use std::path::Path;
 use plotters::prelude::*;
 
 use super::{
-    axes, cm_columns, distinct, drawing, empty_page, error_bar, floats, legend, padded, read, series_colour, FONT, INK,
-    PAGE_PX, STAT_BAR, TOTAL_BAR,
+    axes, cm_columns, distinct, drawing, empty_page, error_bar, floats, legend, on_page, padded, read, series_colour,
+    Format, Page, FONT, INK, PAGE_PX, STAT_BAR, TOTAL_BAR,
 };
 use crate::error::Diagnostic;
 use crate::layout::FIT_JSON;
@@ -119,12 +119,13 @@ fn pull(p: &Point, curve: &FitCurve) -> Option<f64> {
 ///
 /// # Errors
 /// An unreadable table or a missing column, naming the file.
-pub fn angular_distribution(input: &Path, fits: &[FitCurve]) -> Result<String, Diagnostic> {
+pub fn angular_distribution(input: &Path, fits: &[FitCurve], format: Format) -> Result<Vec<u8>, Diagnostic> {
+    let fail = |e: String| Diagnostic::new(input, "", e);
     let (table, cm) = cm_columns(input)?;
     let (states, theta, dsdo, stat) = (cm.state, cm.theta_cm_deg, cm.dsdo_cm_mb_sr, cm.stat_err_mb_sr);
     let sys = floats(&table, "sys_err_mb_sr", input)?;
     if states.is_empty() {
-        return empty_page("no data points: the angular distribution is empty");
+        return empty_page("no data points: the angular distribution is empty", format);
     }
     let points: Vec<(String, Point)> = (0..states.len())
         .map(|i| {
@@ -138,10 +139,9 @@ pub fn angular_distribution(input: &Path, fits: &[FitCurve]) -> Result<String, D
         })
         .collect();
     let names = distinct(&states);
-    let mut svg = String::new();
-    {
-        let root = SVGBackend::with_string(&mut svg, PAGE_PX).into_drawing_area();
-        root.fill(&WHITE).map_err(drawing).map_err(|e| Diagnostic::new(input, "", e))?;
+    let mut page = Page::new(format);
+    on_page!(page, root, {
+        root.fill(&WHITE).map_err(drawing).map_err(fail)?;
         let columns = root.split_evenly((1, names.len()));
         for (state, area) in names.iter().zip(columns.iter()) {
             let mine: Vec<Point> = points.iter().filter(|(s, _)| s == state).map(|(_, p)| *p).collect();
@@ -149,9 +149,9 @@ pub fn angular_distribution(input: &Path, fits: &[FitCurve]) -> Result<String, D
             state_panel(area, state, &mine, &curves)
                 .map_err(|e| Diagnostic::new(input, format!("state {state}"), e))?;
         }
-        root.present().map_err(drawing).map_err(|e| Diagnostic::new(input, "", e))?;
-    }
-    Ok(svg)
+        root.present().map_err(drawing).map_err(fail)?;
+    });
+    page.finish().map_err(fail)
 }
 
 /// One state: the cross sections above, the pulls below.

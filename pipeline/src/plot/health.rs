@@ -11,7 +11,9 @@ use std::path::Path;
 
 use plotters::prelude::*;
 
-use super::{drawing, empty_page, padded, series_colour, tick_label, FONT, INK, PAGE_PX, REFERENCE};
+use super::{
+    drawing, empty_page, on_page, padded, series_colour, tick_label, Format, Page, FONT, INK, PAGE_PX, REFERENCE,
+};
 use crate::error::Diagnostic;
 
 /// One run's health figures (absent where the run has none, e.g. a failed run).
@@ -78,7 +80,7 @@ struct Panel {
 ///
 /// # Errors
 /// A drawing failure (none is expected for finite values).
-pub fn run_health(runs: &[HealthRun], sigmas: f64) -> Result<(String, Vec<Outlier>), Diagnostic> {
+pub fn run_health(runs: &[HealthRun], sigmas: f64, format: Format) -> Result<(Vec<u8>, Vec<Outlier>), Diagnostic> {
     let fail = |e: String| Diagnostic::new(Path::new("run health"), "", e);
     let mut panels = vec![
         Panel { title: "charge (µC)", values: runs.iter().map(|r| r.charge_uc).collect() },
@@ -88,12 +90,11 @@ pub fn run_health(runs: &[HealthRun], sigmas: f64) -> Result<(String, Vec<Outlie
         panels.push(Panel { title: "net counts per µC", values: runs.iter().map(|r| r.counts_per_uc).collect() });
     }
     if runs.is_empty() || panels.iter().all(|p| p.values.iter().all(Option::is_none)) {
-        return Ok((empty_page("no run to show: nothing was reduced")?, Vec::new()));
+        return Ok((empty_page("no run to show: nothing was reduced", format)?, Vec::new()));
     }
     let mut marked = Vec::new();
-    let mut svg = String::new();
-    {
-        let root = SVGBackend::with_string(&mut svg, PAGE_PX).into_drawing_area();
+    let mut page = Page::new(format);
+    on_page!(page, root, {
         root.fill(&WHITE).map_err(drawing).map_err(fail)?;
         let areas = root.split_evenly((panels.len(), 1));
         let n = runs.len();
@@ -167,8 +168,8 @@ pub fn run_health(runs: &[HealthRun], sigmas: f64) -> Result<(String, Vec<Outlie
             }
         }
         root.present().map_err(drawing).map_err(fail)?;
-    }
-    Ok((svg, marked))
+    });
+    Ok((page.finish().map_err(fail)?, marked))
 }
 
 /// Net counts per detector (summed over states and branches) of a run's cross_sections
@@ -232,7 +233,8 @@ mod tests {
                 counts_per_uc: None,
             })
             .collect();
-        let (svg, marked) = run_health(&runs, 3.0).expect("drawn");
+        let (svg, marked) = run_health(&runs, 3.0, Format::Svg).expect("drawn");
+        let svg = String::from_utf8(svg).expect("SVG is text");
         assert_eq!(marked, vec![Outlier { quantity: "charge (µC)".into(), run: "04".into(), value: 3.0 }]);
         // 12 filled points (6 runs × 2 panels) of radius 3 and one ring of radius 8.
         assert_eq!(svg.matches("r=\"3\"").count(), 12, "{svg}");
@@ -242,7 +244,8 @@ mod tests {
 
     #[test]
     fn nothing_to_show_is_said() {
-        let (svg, marked) = run_health(&[], 3.0).expect("drawn");
+        let (svg, marked) = run_health(&[], 3.0, Format::Svg).expect("drawn");
+        let svg = String::from_utf8(svg).expect("SVG is text");
         assert!(svg.contains("nothing was reduced") && marked.is_empty());
     }
 }

@@ -7,7 +7,7 @@ use std::path::{Path, PathBuf};
 
 use plotters::prelude::*;
 
-use super::{drawing, empty_page, padded, series_colour, tick_label, FONT, INK, PAGE_PX};
+use super::{drawing, empty_page, on_page, padded, series_colour, tick_label, Format, Page, FONT, INK, PAGE_PX};
 use crate::error::Diagnostic;
 
 /// One minimum as the plot needs it.
@@ -55,22 +55,22 @@ fn fit_file(input: &Path) -> PathBuf {
 ///
 /// # Errors
 /// An unreadable fit.json, naming it.
-pub fn landscape(input: &Path) -> Result<String, Diagnostic> {
+pub fn landscape(input: &Path, format: Format) -> Result<Vec<u8>, Diagnostic> {
     let file = fit_file(input);
     let text =
         std::fs::read_to_string(&file).map_err(|e| Diagnostic::new(&file, "", format!("cannot read it: {e}")))?;
     let fit: serde_json::Value =
         serde_json::from_str(&text).map_err(|e| Diagnostic::new(&file, "", format!("not a fit report (JSON): {e}")))?;
-    draw_minima(&minima_of(&fit))
+    draw_minima(&minima_of(&fit), format)
 }
 
 /// The landscape SVG of `minima`: a page that says so when there are fewer than two.
 ///
 /// # Errors
 /// A drawing failure.
-pub fn draw_minima(minima: &[Minimum]) -> Result<String, Diagnostic> {
+pub fn draw_minima(minima: &[Minimum], format: Format) -> Result<Vec<u8>, Diagnostic> {
     if minima.len() < 2 {
-        return empty_page("no landscape: the fit found fewer than two minima of the real depth");
+        return empty_page("no landscape: the fit found fewer than two minima of the real depth", format);
     }
     let fail = |e: String| Diagnostic::new(Path::new("fit landscape"), "", e);
     let best = minima.iter().enumerate().min_by(|a, b| a.1.chi2.total_cmp(&b.1.chi2)).map(|(i, _)| i);
@@ -79,9 +79,8 @@ pub fn draw_minima(minima: &[Minimum]) -> Result<String, Diagnostic> {
         ("real depth V_R (MeV)", minima.iter().map(|m| Some(m.real_depth_mev)).collect()),
         ("J_R / (A_p A_t) (MeV fm³)", minima.iter().map(|m| m.volume_integral_mev_fm3).collect()),
     ];
-    let mut svg = String::new();
-    {
-        let root = SVGBackend::with_string(&mut svg, PAGE_PX).into_drawing_area();
+    let mut page = Page::new(format);
+    on_page!(page, root, {
         root.fill(&WHITE).map_err(drawing).map_err(fail)?;
         let areas = root.split_evenly((1, 2));
         for ((x_desc, xs), area) in panels.iter().zip(areas.iter()) {
@@ -124,8 +123,8 @@ pub fn draw_minima(minima: &[Minimum]) -> Result<String, Diagnostic> {
             }
         }
         root.present().map_err(drawing).map_err(fail)?;
-    }
-    Ok(svg)
+    });
+    page.finish().map_err(fail)
 }
 
 #[cfg(test)]
@@ -151,9 +150,10 @@ mod tests {
             .iter()
             .map(|&(chi2, v, j)| Minimum { chi2, real_depth_mev: v, volume_integral_mev_fm3: Some(j), converged: true })
             .collect();
-        let svg = draw_minima(&minima).expect("drawn");
+        let svg = String::from_utf8(draw_minima(&minima, Format::Svg).expect("drawn")).expect("SVG is text");
         assert_eq!(svg.matches("r=\"6\"").count(), 6, "three minima in two panels");
         assert!(svg.contains("χ² 2.2") && svg.contains("χ² 24.1"), "each minimum labelled");
-        assert!(draw_minima(&minima[..1]).expect("drawn").contains("fewer than two minima"));
+        let one = draw_minima(&minima[..1], Format::Svg).expect("drawn");
+        assert!(String::from_utf8_lossy(&one).contains("fewer than two minima"));
     }
 }

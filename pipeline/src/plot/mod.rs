@@ -73,6 +73,88 @@ pub const SERIES: [RGBColor; 5] = [
     RGBColor(0x3d, 0x5a, 0x8a),
 ];
 
+/// What a plot is written as: SVG (default) or PNG (by the output's file name).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Format {
+    /// Scalable vector graphics, text.
+    Svg,
+    /// A PNG image of [`PAGE_PX`] pixels.
+    Png,
+}
+
+impl Format {
+    /// PNG for a file name ending in `.png` (any case), SVG otherwise.
+    pub fn of(path: &Path) -> Format {
+        match path.extension().and_then(|e| e.to_str()) {
+            Some(e) if e.eq_ignore_ascii_case("png") => Format::Png,
+            _ => Format::Svg,
+        }
+    }
+}
+
+/// The font every plot writes with, embedded so that a PNG looks the same on any machine:
+/// DejaVu Sans (Bitstream Vera licence, `pipeline/fonts/DejaVuSans.LICENSE`). SVG files
+/// name the generic family `sans-serif`; the font only measures their text.
+const FONT_BYTES: &[u8] = include_bytes!("../../fonts/DejaVuSans.ttf");
+
+/// Register the embedded font under [`FONT`] once per process.
+fn register_font() {
+    static ONCE: std::sync::Once = std::sync::Once::new();
+    ONCE.call_once(|| {
+        // The embedded file is a valid TrueType font; a failure would only leave text out.
+        let _ = plotters::style::register_font(FONT, FontStyle::Normal, FONT_BYTES);
+    });
+}
+
+/// A page being drawn: SVG text, or RGB pixels for a PNG.
+enum Page {
+    Svg(String),
+    Png(Vec<u8>),
+}
+
+impl Page {
+    fn new(format: Format) -> Page {
+        register_font();
+        match format {
+            Format::Svg => Page::Svg(String::new()),
+            Format::Png => Page::Png(vec![255; PAGE_PX.0 as usize * PAGE_PX.1 as usize * 3]),
+        }
+    }
+
+    /// The file's bytes: the SVG text, or the pixels encoded as PNG.
+    fn finish(self) -> Result<Vec<u8>, String> {
+        match self {
+            Page::Svg(text) => Ok(text.into_bytes()),
+            Page::Png(pixels) => {
+                use image::ImageEncoder as _;
+                let mut png = Vec::new();
+                image::codecs::png::PngEncoder::new(&mut png)
+                    .write_image(&pixels, PAGE_PX.0, PAGE_PX.1, image::ExtendedColorType::Rgb8)
+                    .map_err(|e| format!("cannot encode the PNG: {e}"))?;
+                Ok(png)
+            }
+        }
+    }
+}
+
+/// Draw `$body` on the drawing area `$root` of `$page`, whichever backend the page has
+/// (the body is compiled once per backend).
+macro_rules! on_page {
+    ($page:expr, $root:ident, $body:block) => {
+        match &mut $page {
+            Page::Svg(text) => {
+                let $root = SVGBackend::with_string(text, PAGE_PX).into_drawing_area();
+                $body
+            }
+            Page::Png(pixels) => {
+                let $root = BitMapBackend::with_buffer(pixels, PAGE_PX).into_drawing_area();
+                $body
+            }
+        }
+    };
+}
+use on_page;
+
 /// The colour of series `i`.
 fn series_colour(i: usize) -> RGBColor {
     SERIES[i % SERIES.len()]
@@ -83,7 +165,8 @@ fn drawing<E: Display>(e: E) -> String {
     format!("cannot draw the plot: {e}")
 }
 
-/// Draw `kind` from `input` into the SVG file `out`; `fits` is a fit folder (or a folder
+/// Draw `kind` from `input` into the file `out` (PNG when its name ends in `.png`, SVG
+/// otherwise); `fits` is a fit folder (or a folder
 /// of them) for the angular distribution, `detector` the spectrum's detector (or the
 /// run-health counts' one), `outlier_sigmas` the run-health outlier distance.
 ///
@@ -97,7 +180,8 @@ pub fn draw(
     detector: Option<&str>,
     outlier_sigmas: f64,
 ) -> Result<(), Diagnostic> {
-    let svg = match kind {
+    let format = Format::of(out);
+    let bytes = match kind {
         Kind::AngularDistribution => {
             // A `reduce` output folder stands for its combined table.
             let table = if input.is_dir() {
@@ -113,12 +197,12 @@ pub fn draw(
                     .filter(|d| d.is_dir())
                     .map_or_else(|| Ok(Vec::new()), |d| find_fits(&d))?,
             };
-            angular_distribution(&table, &fits)?
+            angular_distribution(&table, &fits, format)?
         }
-        Kind::RatioRutherford => ratio_rutherford(input)?,
-        Kind::Spectrum => spectrum(input, detector)?,
-        Kind::FitLandscape => landscape(input)?,
-        Kind::Pid => pid(input, detector)?,
+        Kind::RatioRutherford => ratio_rutherford(input, format)?,
+        Kind::Spectrum => spectrum(input, detector, format)?,
+        Kind::FitLandscape => landscape(input, format)?,
+        Kind::Pid => pid(input, detector, format)?,
         Kind::RunHealth => {
             if !(outlier_sigmas.is_finite() && outlier_sigmas > 0.0) {
                 return Err(Diagnostic::new(
@@ -128,15 +212,15 @@ pub fn draw(
                 ));
             }
             let runs = crate::report::health_of_batch(input, detector)?;
-            run_health(&runs, outlier_sigmas)?.0
+            run_health(&runs, outlier_sigmas, format)?.0
         }
     };
-    write_svg(out, &svg)
+    write_plot(out, &bytes)
 }
 
-/// Write an SVG atomically.
-fn write_svg(out: &Path, svg: &str) -> Result<(), Diagnostic> {
-    write_atomic(out, svg.as_bytes()).map_err(|e| Diagnostic::new(out, "", format!("cannot write the plot: {e}")))
+/// Write a plot atomically.
+fn write_plot(out: &Path, bytes: &[u8]) -> Result<(), Diagnostic> {
+    write_atomic(out, bytes).map_err(|e| Diagnostic::new(out, "", format!("cannot write the plot: {e}")))
 }
 
 /// Read a table, naming the file on failure.
@@ -261,11 +345,10 @@ fn padded(values: impl Iterator<Item = f64>, pad: f64, fallback: (f64, f64)) -> 
 }
 
 /// A page that only says why there is nothing to draw.
-fn empty_page(message: &str) -> Result<String, Diagnostic> {
-    let mut svg = String::new();
-    {
-        let root = SVGBackend::with_string(&mut svg, PAGE_PX).into_drawing_area();
-        let fail = |e: String| Diagnostic::new(Path::new(""), "", e);
+fn empty_page(message: &str, format: Format) -> Result<Vec<u8>, Diagnostic> {
+    let fail = |e: String| Diagnostic::new(Path::new(""), "", e);
+    let mut page = Page::new(format);
+    on_page!(page, root, {
         root.fill(&WHITE).map_err(drawing).map_err(fail)?;
         let style = TextStyle::from((FONT, 20).into_font()).color(&INK).pos(plotters::style::text_anchor::Pos::new(
             plotters::style::text_anchor::HPos::Center,
@@ -275,8 +358,8 @@ fn empty_page(message: &str) -> Result<String, Diagnostic> {
             .map_err(drawing)
             .map_err(fail)?;
         root.present().map_err(drawing).map_err(fail)?;
-    }
-    Ok(svg)
+    });
+    page.finish().map_err(fail)
 }
 
 /// Thin axes with ticks and no grid, tick labels in the fixed form of [`tick_label`], and

@@ -6,7 +6,10 @@ use std::path::Path;
 
 use plotters::prelude::*;
 
-use super::{distinct, drawing, empty_page, floats, padded, read, series_colour, strings, FONT, INK, PAGE_PX};
+use super::{
+    distinct, drawing, empty_page, floats, on_page, padded, read, series_colour, strings, Format, Page, FONT, INK,
+    PAGE_PX,
+};
 use crate::error::Diagnostic;
 
 /// One occupied bin: E edges (MeV), ΔE edges, counts.
@@ -32,11 +35,11 @@ fn polygon(input: &Path, detector: &str) -> Result<Vec<(f64, f64)>, Diagnostic> 
 ///
 /// # Errors
 /// An unreadable table, a missing column or an unknown detector, naming the file.
-pub fn pid(input: &Path, detector: Option<&str>) -> Result<String, Diagnostic> {
+pub fn pid(input: &Path, detector: Option<&str>, format: Format) -> Result<Vec<u8>, Diagnostic> {
     let table = read(input)?;
     let detectors = strings(&table, "detector", input)?;
     let Some(first) = detectors.first() else {
-        return empty_page("no ΔE–E histogram: the table is empty");
+        return empty_page("no ΔE–E histogram: the table is empty", format);
     };
     let detector = detector.unwrap_or(first).to_string();
     if !detectors.contains(&detector) {
@@ -68,9 +71,8 @@ pub fn pid(input: &Path, detector: Option<&str>) -> Result<String, Diagnostic> {
     );
     let most = cells.iter().fold(1.0_f64, |m, c| m.max(c.counts));
     let fail = |e: String| Diagnostic::new(input, "", e);
-    let mut svg = String::new();
-    {
-        let root = SVGBackend::with_string(&mut svg, PAGE_PX).into_drawing_area();
+    let mut page = Page::new(format);
+    on_page!(page, root, {
         root.fill(&WHITE).map_err(drawing).map_err(fail)?;
         let mut chart = ChartBuilder::on(&root)
             .caption(format!("detector {detector}: ΔE–E"), (FONT, 18).into_font().color(&INK))
@@ -102,6 +104,6 @@ pub fn pid(input: &Path, detector: Option<&str>) -> Result<String, Diagnostic> {
                 .map_err(fail)?;
         }
         root.present().map_err(drawing).map_err(fail)?;
-    }
-    Ok(svg)
+    });
+    page.finish().map_err(fail)
 }

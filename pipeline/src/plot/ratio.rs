@@ -6,7 +6,8 @@ use std::path::{Path, PathBuf};
 use plotters::prelude::*;
 
 use super::{
-    axes, cm_columns, distinct, drawing, empty_page, error_bar, legend, optional_floats, padded, series_colour, PAGE_PX,
+    axes, cm_columns, distinct, drawing, empty_page, error_bar, legend, on_page, optional_floats, padded,
+    series_colour, Format, Page, PAGE_PX,
 };
 use crate::error::Diagnostic;
 
@@ -50,21 +51,20 @@ fn tables_of(input: &Path) -> Result<Vec<PathBuf>, Diagnostic> {
 ///
 /// # Errors
 /// An unreadable table or a missing column, naming the file.
-pub fn ratio_rutherford(input: &Path) -> Result<String, Diagnostic> {
+pub fn ratio_rutherford(input: &Path, format: Format) -> Result<Vec<u8>, Diagnostic> {
     let mut points = Vec::new();
     for file in tables_of(input)? {
         points.extend(ratio_points(&file)?);
     }
     if points.is_empty() {
-        return empty_page("no data points with a ratio to Rutherford");
+        return empty_page("no data points with a ratio to Rutherford", format);
     }
     let names = distinct(&points.iter().map(|p| p.0.clone()).collect::<Vec<_>>());
     let fail = |e: String| Diagnostic::new(input, "", e);
     let (x_lo, x_hi) = padded(points.iter().map(|p| p.1), 0.05, (0.0, 180.0));
     let (y_lo, y_hi) = padded(points.iter().flat_map(|p| [p.2 - p.3, p.2 + p.3]).chain([1.0]), 0.08, (0.0, 2.0));
-    let mut svg = String::new();
-    {
-        let root = SVGBackend::with_string(&mut svg, PAGE_PX).into_drawing_area();
+    let mut page = Page::new(format);
+    on_page!(page, root, {
         root.fill(&WHITE).map_err(drawing).map_err(fail)?;
         let mut chart = ChartBuilder::on(&root)
             .margin(16)
@@ -97,6 +97,6 @@ pub fn ratio_rutherford(input: &Path) -> Result<String, Diagnostic> {
         }
         legend(&mut chart, SeriesLabelPosition::UpperRight, 14).map_err(fail)?;
         root.present().map_err(drawing).map_err(fail)?;
-    }
-    Ok(svg)
+    });
+    page.finish().map_err(fail)
 }

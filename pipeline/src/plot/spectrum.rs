@@ -6,7 +6,10 @@ use std::path::Path;
 
 use plotters::prelude::*;
 
-use super::{axes, drawing, empty_page, floats, legend, read, series_colour, strings, tick_label, FONT, INK, PAGE_PX};
+use super::{
+    axes, drawing, empty_page, floats, legend, on_page, read, series_colour, strings, tick_label, Format, Page, FONT,
+    INK, PAGE_PX,
+};
 use crate::error::Diagnostic;
 
 /// The metadata key of the gates in spectra.parquet (written by `run.rs`).
@@ -120,13 +123,13 @@ fn outline(bins: &[Bin], width_mev: f64, floor: f64) -> Vec<(f64, f64)> {
 ///
 /// # Errors
 /// An unreadable table, a missing column or an unknown detector, naming the file.
-pub fn spectrum(input: &Path, detector: Option<&str>) -> Result<String, Diagnostic> {
+pub fn spectrum(input: &Path, detector: Option<&str>, format: Format) -> Result<Vec<u8>, Diagnostic> {
     let table = read(input)?;
     let detectors = strings(&table, "detector", input)?;
     let energy = floats(&table, "energy_mev", input)?;
     let counts = floats(&table, "counts", input)?;
     let Some(first) = detectors.first() else {
-        return empty_page("no spectrum: the table is empty");
+        return empty_page("no spectrum: the table is empty", format);
     };
     let detector = detector.unwrap_or(first).to_string();
     if !detectors.contains(&detector) {
@@ -150,9 +153,8 @@ pub fn spectrum(input: &Path, detector: Option<&str>) -> Result<String, Diagnost
     let y_hi = bins.iter().fold(1.0_f64, |m, b| m.max(b.counts)) * 3.0;
     let floor = 0.5;
     let fail = |e: String| Diagnostic::new(input, "", e);
-    let mut svg = String::new();
-    {
-        let root = SVGBackend::with_string(&mut svg, PAGE_PX).into_drawing_area();
+    let mut page = Page::new(format);
+    on_page!(page, root, {
         root.fill(&WHITE).map_err(drawing).map_err(fail)?;
         let mut chart = ChartBuilder::on(&root)
             .caption(format!("detector {detector}"), (FONT, 18).into_font().color(&INK))
@@ -191,6 +193,6 @@ pub fn spectrum(input: &Path, detector: Option<&str>) -> Result<String, Diagnost
             legend(&mut chart, SeriesLabelPosition::UpperLeft, 14).map_err(fail)?;
         }
         root.present().map_err(drawing).map_err(fail)?;
-    }
-    Ok(svg)
+    });
+    page.finish().map_err(fail)
 }

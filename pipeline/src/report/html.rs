@@ -112,9 +112,10 @@ pub fn table(headers: &[&str], rows: &[(String, Vec<Cell>)]) -> String {
     out
 }
 
-/// An SVG drawn by `plot`, inline in a figure with its caption (text). The XML prologue,
-/// if any, is dropped: inside HTML the `<svg>` element stands alone.
-pub fn figure(svg: &str, caption: &str) -> String {
+/// An SVG drawn by `plot` (its bytes), inline in a figure with its caption (text). The XML
+/// prologue, if any, is dropped: inside HTML the `<svg>` element stands alone.
+pub fn figure(svg: &[u8], caption: &str) -> String {
+    let svg = String::from_utf8_lossy(svg);
     let start = svg.find("<svg").unwrap_or(0);
     format!(
         "<figure role=\"img\" aria-label=\"{0}\">\n{1}\n<figcaption>{0}</figcaption>\n</figure>\n",
@@ -164,7 +165,7 @@ mod tests {
 
     #[test]
     fn a_figure_drops_the_xml_prologue() {
-        let html = figure("<?xml version=\"1.0\"?>\n<svg viewBox=\"0 0 1 1\"></svg>\n", "a <b> plot");
+        let html = figure(b"<?xml version=\"1.0\"?>\n<svg viewBox=\"0 0 1 1\"></svg>\n", "a <b> plot");
         assert!(html.contains("\n<svg viewBox"), "{html}");
         assert!(!html.contains("<?xml"), "{html}");
         assert!(html.contains("aria-label=\"a &lt;b&gt; plot\""), "{html}");

@@ -23,7 +23,7 @@ use crate::layout::{
     is_folder_name, ANGULAR_DISTRIBUTION_CSV, ANGULAR_DISTRIBUTION_PARQUET, ANGULAR_DISTRIBUTION_SVG,
     CROSS_SECTIONS_PARQUET, FITS_DIR, FIT_JSON, REPORT_DIR, REPORT_INDEX, REPORT_RUNS_DIR,
 };
-use crate::plot::{describe_outliers, detector_counts, run_health, HealthRun};
+use crate::plot::{describe_outliers, detector_counts, run_health, Format, HealthRun};
 use crate::tables::write_atomic;
 use html::{badge, escape, figure, number, page, table, Cell};
 
@@ -175,7 +175,7 @@ fn run_link(run: &str) -> String {
 fn health_section(out_dir: &Path, settings: &Settings, runs: &[RunEntry]) -> String {
     let health = health_runs(out_dir, runs, settings.health_detector.as_deref());
     let mut out = String::from("<section id=\"health\">\n<h2>Run health</h2>\n");
-    match run_health(&health, settings.outlier_sigmas) {
+    match run_health(&health, settings.outlier_sigmas, Format::Svg) {
         Ok((svg, marked)) => {
             let detector =
                 settings.health_detector.as_deref().map_or_else(String::new, |d| format!(", net counts per µC in {d}"));
@@ -195,7 +195,9 @@ fn health_section(out_dir: &Path, settings: &Settings, runs: &[RunEntry]) -> Str
 fn distribution_section(out_dir: &Path) -> String {
     let mut out = String::from("<section id=\"distribution\">\n<h2>Angular distribution</h2>\n");
     match std::fs::read_to_string(out_dir.join(ANGULAR_DISTRIBUTION_SVG)) {
-        Ok(svg) => out.push_str(&figure(&svg, "dσ/dΩ in the centre of mass with the fitted curves; pulls below.")),
+        Ok(svg) => {
+            out.push_str(&figure(svg.as_bytes(), "dσ/dΩ in the centre of mass with the fitted curves; pulls below."))
+        }
         Err(_) if out_dir.join(ANGULAR_DISTRIBUTION_PARQUET).is_file() => {
             out.push_str("<p>The plot was not drawn (<code>report: { plots: false }</code>).</p>\n");
         }
@@ -273,7 +275,7 @@ fn fit_block(link: &str, fit: &serde_json::Value) -> String {
     out.push_str(&table(&["parameter", "value", "error", "note"], &rows));
     let minima = crate::plot::minima_of(fit);
     if minima.len() > 1 {
-        if let Ok(svg) = crate::plot::draw_minima(&minima) {
+        if let Ok(svg) = crate::plot::draw_minima(&minima, Format::Svg) {
             out.push_str(&figure(
                 &svg,
                 "Every distinct minimum: χ² against the real depth and the real volume integral per nucleon pair; \

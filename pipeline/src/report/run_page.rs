@@ -14,6 +14,7 @@ use crate::error::Diagnostic;
 use crate::layout::{
     CROSS_SECTIONS_CSV, CROSS_SECTIONS_PARQUET, PID_PARQUET, PROVENANCE_JSON, RAW_JSON, SPECTRA_PARQUET,
 };
+use crate::plot::Format;
 use crate::provenance::sha256_hex;
 
 /// The first line of a page made from `entry`: its fingerprint. Entries without an input
@@ -207,7 +208,7 @@ fn spectra(run_dir: &Path) -> String {
             .unwrap_or_default();
         let _ = writeln!(out, "<section><h2>{heading}</h2>");
         for d in detectors {
-            match draw(&file, Some(&d)) {
+            match draw(&file, Some(&d), Format::Svg) {
                 Ok(svg) => out.push_str(&figure(&svg, &format!("Detector {d}: {caption}."))),
                 Err(e) => {
                     let _ = writeln!(
@@ -225,4 +226,4 @@ fn spectra(run_dir: &Path) -> String {
 }
 
 /// A per-detector plot of a run's table.
-type PlotOf = fn(&Path, Option<&str>) -> Result<String, Diagnostic>;
+type PlotOf = fn(&Path, Option<&str>, Format) -> Result<Vec<u8>, Diagnostic>;
