@@ -123,6 +123,7 @@ fn optical_sets() -> Vec<(String, OpticalPotential, ElasticChannel, f64)> {
                 imag_volume: ws("w_mev", "rw_fm", "aw_fm"),
                 imag_surface: ws("wd_mev", "rd_fm", "ad_fm"),
                 coulomb_radius_fm: num(r, "rc_fm"),
+                spin_orbit: None,
             };
             let ch = ElasticChannel {
                 reduced_mass_mev: num(r, "reduced_mass_mev"),
