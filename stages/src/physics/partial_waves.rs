@@ -247,23 +247,32 @@ mod tests {
     }
 
     #[test]
-    fn the_curve_repeats_the_single_angle_sums() {
-        let pw = PartialWaves {
-            k_per_fm: 1.2,
-            eta: 3.0,
-            s: (0..20).map(|l| Complex64::from_polar(1.0 - 0.9 / (1.0 + f64::from(l)), 0.1 * f64::from(l))).collect(),
-            s_minus: None,
-        };
+    fn the_curve_is_the_partial_wave_sum_of_the_module_docs() {
+        // dσ/dΩ = |f_C + f_N|² with f_N = (1/2ik) Σ (2L+1) e^{2iσ_L}(S_L − 1) P_L(cos θ), summed
+        // here wave by wave with σ_L = σ_{L−1} + atan(η/L) (DLMF 33.2.10 recurrence, from
+        // memory) and Bonnet's P_L, against the curve's precomputed coefficients.
+        let (k, eta) = (1.2, 3.0);
+        let s: Vec<Complex64> =
+            (0..20).map(|l| Complex64::from_polar(1.0 - 0.9 / (1.0 + f64::from(l)), 0.1 * f64::from(l))).collect();
+        let pw = PartialWaves { k_per_fm: k, eta, s: s.clone(), s_minus: None };
         let thetas = [0.3, 1.0, 2.5];
         for (t, (dsdo, ratio)) in thetas.iter().zip(pw.curve(&thetas)) {
-            // 1e-12 (both): the same sum of 20 waves evaluated in another order of operations
-            // (measured 5e-16).
-            assert_relative_eq!(dsdo, pw.dsdo_mb_sr(*t), max_relative = 1e-12);
-            assert_relative_eq!(
-                ratio.expect("charged"),
-                pw.ratio_rutherford(*t).expect("charged"),
-                max_relative = 1e-12
-            );
+            let sigma0 = coulomb_phases(eta, 0)[0];
+            let (mut sigma, mut p_prev, mut p) = (sigma0, 1.0, t.cos());
+            let mut f_n = (s[0] - 1.0) * Complex64::from_polar(1.0, 2.0 * sigma);
+            for (l, sl) in s.iter().enumerate().skip(1) {
+                let lf = l as f64;
+                sigma += (eta / lf).atan();
+                f_n += (2.0 * lf + 1.0) * (sl - 1.0) * Complex64::from_polar(1.0, 2.0 * sigma) * p;
+                (p_prev, p) = (p, ((2.0 * lf + 1.0) * t.cos() * p - lf * p_prev) / (lf + 1.0));
+            }
+            f_n /= Complex64::new(0.0, 2.0 * k);
+            let s2 = (t / 2.0).sin().powi(2);
+            let f_c = -eta / (2.0 * k * s2) * Complex64::from_polar(1.0, -eta * s2.ln() + 2.0 * sigma0);
+            // 1e-12 (both): the same sum of 20 waves in another order of operations
+            // (measured below 1e-15).
+            assert_relative_eq!(dsdo, (f_c + f_n).norm_sqr() * 10.0, max_relative = 1e-12);
+            assert_relative_eq!(ratio.expect("charged"), (f_c + f_n).norm_sqr() / f_c.norm_sqr(), max_relative = 1e-12);
         }
     }
 
