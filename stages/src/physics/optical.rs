@@ -304,7 +304,9 @@ pub struct RadialWave {
     pub absorption_mev: Vec<f64>,
 }
 
-/// The radial wave function of partial wave `l`, with the numerics `solve` would choose.
+/// The radial wave function of partial wave `l`, with the numerics `solve` would choose;
+/// for a potential with a spin-orbit term the wave of j = l + ½ (its `absorption_mev` holds
+/// the central terms only).
 ///
 /// # Errors
 /// As [`solve`].
