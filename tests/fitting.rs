@@ -39,6 +39,41 @@ fn theory_with_a_negative_diffuseness_names_the_key() {
 }
 
 #[test]
+fn theory_of_a_nucleon_beam_prints_the_analyzing_power() {
+    // The proton demo model (invented parameters): `analyzing_power` beside dσ/dΩ in JSON,
+    // CSV and the table, within [−1, 1]; an alpha beam has none; spin_orbit with an alpha
+    // beam is refused naming the key and the beam.
+    let model = repo_root().join("sample-runs/proton-ni58/theory-optical.yaml");
+    let model = model.to_string_lossy();
+    let tmp = tempfile::tempdir().expect("scratch");
+    let out = xsflow(tmp.path(), &["theory", &model, "--angles", "10:170:20", "--format", "json"]);
+    assert_eq!(out.status.code(), Some(0), "{}", text(&out));
+    let json: serde_json::Value = serde_json::from_slice(&out.stdout).expect("json");
+    let rows = json["rows"].as_array().expect("rows");
+    assert_eq!(rows.len(), 9);
+    for r in rows {
+        let ay = r["analyzing_power"].as_f64().expect("analyzing_power");
+        assert!(ay.abs() <= 1.0 && r["dsdo_cm_mb_sr"].as_f64().is_some(), "{r}");
+    }
+    let csv = xsflow(tmp.path(), &["theory", &model, "--angles", "30", "--format", "csv"]);
+    let csv = String::from_utf8_lossy(&csv.stdout).to_string();
+    assert!(csv.starts_with("theta_cm_deg,dsdo_cm_mb_sr,ratio_rutherford,analyzing_power\n"), "{csv}");
+    let table = text(&xsflow(tmp.path(), &["theory", &model, "--angles", "30"]));
+    assert!(table.contains("analyzing_power"), "{table}");
+    let alpha =
+        xsflow(tmp.path(), &["theory", &demo_dir().join("theory-optical.yaml").to_string_lossy(), "--format", "csv"]);
+    assert!(!String::from_utf8_lossy(&alpha.stdout).contains("analyzing_power"));
+    let body = std::fs::read_to_string(repo_root().join("sample-runs/proton-ni58/theory-optical.yaml"))
+        .expect("model")
+        .replace("beam: p,", "beam: 4He,");
+    let tmp = scratch("m.yaml", &body);
+    let out = xsflow(tmp.path(), &["theory", "m.yaml"]);
+    let msg = text(&out);
+    assert_eq!(out.status.code(), Some(2), "{msg}");
+    assert!(msg.contains("potential.spin_orbit: found a spin-orbit term for the beam 4He"), "{msg}");
+}
+
+#[test]
 fn fit_with_a_zero_radius_or_bounds_that_exclude_the_start_is_refused() {
     let tmp = scratch("f.yaml", &OPTICAL.replace("r0_fm: 1.40", "r0_fm: 0.0").replace("min: 20.0", "min: 200.0"));
     let out = fit(tmp.path(), "f.yaml", "elastic");

@@ -23,17 +23,21 @@ pub fn curve(path: &Path, angles_deg: &[f64]) -> Result<Curve, Vec<Diagnostic>> 
 }
 
 /// The curve's rows as a table: `theta_cm_deg`, `dsdo_cm_mb_sr`, `ratio_rutherford` (empty
-/// for a neutral projectile).
+/// for a neutral projectile) and, for a spin-½ beam, `analyzing_power`.
 ///
 /// # Errors
 /// The table library's error.
 pub fn table(curve: &Curve) -> PolarsResult<DataFrame> {
     let rows = &curve.rows;
-    DataFrame::new_infer_height(vec![
+    let mut columns = vec![
         Column::new("theta_cm_deg".into(), rows.iter().map(|r| r.theta_cm_deg).collect::<Vec<_>>()),
         Column::new("dsdo_cm_mb_sr".into(), rows.iter().map(|r| r.dsdo_cm_mb_sr).collect::<Vec<_>>()),
         Column::new("ratio_rutherford".into(), rows.iter().map(|r| r.ratio_rutherford).collect::<Vec<_>>()),
-    ])
+    ];
+    if rows.iter().any(|r| r.analyzing_power.is_some()) {
+        columns.push(Column::new("analyzing_power".into(), rows.iter().map(|r| r.analyzing_power).collect::<Vec<_>>()));
+    }
+    DataFrame::new_infer_height(columns)
 }
 
 /// The curve in the chosen format; CSV through the one CSV writer ([`csv_text`]).
@@ -64,10 +68,18 @@ pub fn render(curve: &Curve, format: TableFormat) -> PolarsResult<String> {
                     let _ = writeln!(s, "{name} = {v:.6}");
                 }
             }
-            let _ = writeln!(s, "{:>12}  {:>16}  {:>16}", "theta_cm", "dsdo_cm/(mb/sr)", "ratio_rutherford");
+            let polarised = curve.rows.iter().any(|r| r.analyzing_power.is_some());
+            let _ = write!(s, "{:>12}  {:>16}  {:>16}", "theta_cm", "dsdo_cm/(mb/sr)", "ratio_rutherford");
+            s.push_str(if polarised { "  analyzing_power\n" } else { "\n" });
             for r in &curve.rows {
                 let ratio = r.ratio_rutherford.map(|x| format!("{x:.6e}")).unwrap_or_else(|| "-".into());
-                let _ = writeln!(s, "{:>12.3}  {:>16.6e}  {ratio:>16}", r.theta_cm_deg, r.dsdo_cm_mb_sr);
+                let _ = write!(s, "{:>12.3}  {:>16.6e}  {ratio:>16}", r.theta_cm_deg, r.dsdo_cm_mb_sr);
+                match r.analyzing_power {
+                    Some(a) => {
+                        let _ = writeln!(s, "  {a:>15.6}");
+                    }
+                    None => s.push('\n'),
+                }
             }
             s
         }
@@ -85,8 +97,8 @@ mod tests {
         let curve = |ratio_rutherford| Curve {
             model: "test",
             rows: vec![
-                CurveRow { theta_cm_deg: 30.0, dsdo_cm_mb_sr: 1500.0, ratio_rutherford },
-                CurveRow { theta_cm_deg: 30.25, dsdo_cm_mb_sr: 0.1 + 0.2, ratio_rutherford },
+                CurveRow { theta_cm_deg: 30.0, dsdo_cm_mb_sr: 1500.0, ratio_rutherford, analyzing_power: None },
+                CurveRow { theta_cm_deg: 30.25, dsdo_cm_mb_sr: 0.1 + 0.2, ratio_rutherford, analyzing_power: None },
             ],
             sigma_reaction_mb: None,
             sigma_total_mb: None,

@@ -1,13 +1,15 @@
 //! Theory curves: the model file (`model: optical`, `rutherford` or `hard_sphere`), as
-//! written, and its evaluation into dσ/dΩ_cm at chosen CM angles. All models use the
-//! non-relativistic elastic channel of [`crate::physics::optical::ElasticChannel`] with
-//! nuclear masses from the AME2020 table.
+//! written, and its evaluation into dσ/dΩ_cm (and, for a spin-½ beam, the analyzing power)
+//! at chosen CM angles. All models use the elastic channel of
+//! [`crate::physics::optical::ElasticChannel`] with nuclear masses from the AME2020 table,
+//! non-relativistic unless `reaction.kinematics: relativistic`. Protons and neutrons are
+//! the spin-½ beams: only they may carry `potential.spin_orbit`.
 
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 
 use crate::physics::nuclide::{self, Nuclide};
-use crate::physics::optical::{self, ElasticChannel, Numerics, OpticalPotential, WoodsSaxon};
+use crate::physics::optical::{self, ElasticChannel, Kinematics, Numerics, OpticalPotential, SpinOrbit, WoodsSaxon};
 use crate::physics::partial_waves::{hard_sphere, PartialWaves};
 use crate::problem::Checks;
 use crate::{Problem, Setup};
@@ -22,6 +24,22 @@ pub struct TheoryReaction {
     pub target: String,
     /// Beam kinetic energy in the lab, MeV; > 0.
     pub energy_mev: f64,
+    /// How k and the reduced mass follow from the lab energy: `non_relativistic` (default;
+    /// μ = m_a m_A/(m_a + m_A), E = T m_A/(m_a + m_A)) or `relativistic` (k from the
+    /// relativistic CM momentum, μ the reduced total energy E_a E_A/(E_a + E_A)).
+    #[serde(default)]
+    pub kinematics: KinematicsConfig,
+}
+
+/// `reaction.kinematics` of a model file.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Deserialize, JsonSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum KinematicsConfig {
+    /// Non-relativistic μ and E (default).
+    #[default]
+    NonRelativistic,
+    /// k from the relativistic CM momentum, μ the reduced total energy.
+    Relativistic,
 }
 
 /// One Woods–Saxon term: depth, reduced radius and diffuseness.
@@ -48,6 +66,18 @@ pub struct CoulombConfig {
     pub r0_fm: f64,
 }
 
+/// The spin-orbit term of Thomas form, (ħ/m_π c)² (1/r) d/dr of a Woods–Saxon shape times
+/// l·σ (the l·σ normalisation: nucleon depths about 6 MeV; twice these with l·s).
+#[derive(Debug, Clone, Copy, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct SpinOrbitConfig {
+    /// Real part: depth V_so in MeV (positive: attractive for j = l + ½), r0 and a in fm.
+    pub real: TermConfig,
+    /// Imaginary part: depth W_so in MeV (positive: absorptive for j = l + ½); default none.
+    #[serde(default = "no_surface")]
+    pub imag: TermConfig,
+}
+
 /// How reduced radii become radii.
 #[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Deserialize, JsonSchema)]
 #[serde(rename_all = "snake_case")]
@@ -72,6 +102,9 @@ pub struct PotentialConfig {
     pub imag_surface: TermConfig,
     /// Coulomb radius.
     pub coulomb: CoulombConfig,
+    /// Spin-orbit term (spin-½ beams only: `p`, `n`); default none.
+    #[serde(default)]
+    pub spin_orbit: Option<Box<SpinOrbitConfig>>,
     /// `target` (default) or `sum`.
     #[serde(default)]
     pub radius: RadiusConvention,
@@ -147,6 +180,9 @@ pub struct CurveRow {
     pub dsdo_cm_mb_sr: f64,
     /// Ratio to Rutherford (charged projectiles).
     pub ratio_rutherford: Option<f64>,
+    /// Analyzing power A_y, Madison convention (spin-½ beams: `p`, `n`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub analyzing_power: Option<f64>,
 }
 
 /// An evaluated curve, with what the numerics used.
@@ -194,12 +230,17 @@ impl TheoryReaction {
             .ok();
         match (beam, target) {
             (Some(b), Some(t)) if c.problems.is_empty() => {
-                let (ma, mt) = (b.nuclear_mass_mev(), t.nuclear_mass_mev());
-                let ch = ElasticChannel {
-                    reduced_mass_mev: ma * mt / (ma + mt),
-                    e_cm_mev: self.energy_mev * mt / (ma + mt),
-                    charge_product: f64::from(b.z * t.z),
+                let kinematics = match self.kinematics {
+                    KinematicsConfig::NonRelativistic => Kinematics::NonRelativistic,
+                    KinematicsConfig::Relativistic => Kinematics::Relativistic,
                 };
+                let ch = ElasticChannel::from_lab(
+                    b.nuclear_mass_mev(),
+                    t.nuclear_mass_mev(),
+                    self.energy_mev,
+                    f64::from(b.z * t.z),
+                    kinematics,
+                );
                 Ok((ch, b, t))
             }
             _ => Err(c.problems),
@@ -248,6 +289,11 @@ impl TheoryReaction {
     }
 }
 
+/// Whether a beam has spin ½: the nucleons (`p`, `n`); every other beam is taken as spin 0.
+fn spin_half(beam: &Nuclide) -> bool {
+    beam.a == 1
+}
+
 impl ModelConfig {
     /// The reaction of the model.
     pub fn reaction(&self) -> &TheoryReaction {
@@ -276,11 +322,18 @@ impl ModelConfig {
             ModelConfig::Optical { reaction, potential, numerics } => {
                 let (ch, beam, target) = reaction.channel()?;
                 let mut c = Checks::default();
+                let so_terms = potential
+                    .spin_orbit
+                    .iter()
+                    .flat_map(|so| [("spin_orbit.real", so.real), ("spin_orbit.imag", so.imag)]);
                 for (key, t) in [
                     ("real", potential.real),
                     ("imag_volume", potential.imag_volume),
                     ("imag_surface", potential.imag_surface),
-                ] {
+                ]
+                .into_iter()
+                .chain(so_terms)
+                {
                     c.positive(&format!("potential.{key}.r0_fm"), t.r0_fm);
                     c.positive(&format!("potential.{key}.a_fm"), t.a_fm);
                     c.require(
@@ -291,6 +344,12 @@ impl ModelConfig {
                     );
                 }
                 c.positive("potential.coulomb.r0_fm", potential.coulomb.r0_fm);
+                c.require(
+                    potential.spin_orbit.is_none() || spin_half(beam),
+                    "potential.spin_orbit",
+                    format!("a spin-orbit term for the beam {}", reaction.beam),
+                    "a spin-½ beam (p or n) for spin_orbit; other beams are spin 0 here: remove the key",
+                );
                 if let Some(h) = numerics.step_fm {
                     c.positive("numerics.step_fm", h);
                 }
@@ -317,6 +376,10 @@ impl ModelConfig {
                     imag_volume: ws(potential.imag_volume),
                     imag_surface: ws(potential.imag_surface),
                     coulomb_radius_fm: potential.coulomb.r0_fm * a13,
+                    spin_orbit: potential
+                        .spin_orbit
+                        .as_ref()
+                        .map(|so| SpinOrbit { real: ws(so.real), imag: ws(so.imag) }),
                 };
                 let num = numerics.to_numerics();
                 let sol = optical::solve(&pot, &ch, &num).map_err(|e| {
@@ -338,6 +401,7 @@ impl ModelConfig {
                         k_per_fm: ch.k_per_fm(),
                         eta: ch.eta(),
                         s: vec![num_complex::Complex64::new(1.0, 0.0)],
+                        s_minus: None,
                     },
                     None,
                 ))
@@ -367,11 +431,18 @@ impl ModelConfig {
     /// As [`ModelConfig::waves`].
     pub fn evaluate(&self, angles_deg: &[f64]) -> Result<Curve, Vec<Problem>> {
         let (waves, used) = self.waves()?;
+        // A nucleon beam has an analyzing power (0 without a spin-orbit term).
+        let polarised = self.reaction().channel().is_ok_and(|(_, beam, _)| spin_half(beam));
         let thetas: Vec<f64> = angles_deg.iter().map(|d| d.to_radians()).collect();
         let rows = angles_deg
             .iter()
-            .zip(waves.curve(&thetas))
-            .map(|(d, (dsdo, ratio))| CurveRow { theta_cm_deg: *d, dsdo_cm_mb_sr: dsdo, ratio_rutherford: ratio })
+            .zip(waves.amplitudes(&thetas))
+            .map(|(d, a)| CurveRow {
+                theta_cm_deg: *d,
+                dsdo_cm_mb_sr: a.dsdo_mb_sr(),
+                ratio_rutherford: a.ratio_rutherford(),
+                analyzing_power: polarised.then(|| a.analyzing_power()),
+            })
             .collect();
         let absorptive = matches!(self, ModelConfig::Optical { .. });
         Ok(Curve {
@@ -400,6 +471,9 @@ mod tests {
 
     /// The demo's optical model (invented parameters): 24 MeV ⁴He on ⁵⁸Ni.
     const OPTICAL: &str = include_str!("../../sample-runs/alpha-ni58/theory-optical.yaml");
+
+    /// The proton demo model (invented parameters): 30 MeV p on ⁵⁸Ni with spin-orbit terms.
+    const PROTON: &str = include_str!("../../sample-runs/proton-ni58/theory-optical.yaml");
 
     /// [`OPTICAL`] without its nuclear terms: the Coulomb field of a uniformly charged
     /// sphere of reduced radius `r0_fm`, nothing else.
@@ -430,6 +504,12 @@ mod tests {
                 vec!["reaction.beam", "reaction.target"],
             ),
             (ruth.replace("beam: 4He", "beam: n"), vec!["model"]),
+            // A spin-orbit term needs a spin-½ beam; its own terms are checked like the others.
+            (PROTON.replace("beam: p,", "beam: 4He,"), vec!["potential.spin_orbit"]),
+            (
+                PROTON.replace("-0.5, r0_fm: 1.01, a_fm: 0.75", "-0.5, r0_fm: 1.01, a_fm: 0.0"),
+                vec!["potential.spin_orbit.imag.a_fm"],
+            ),
             (sphere.replace("radius_fm: 5.0", "radius_fm: 0.0"), vec!["radius_fm"]),
             (sphere.replace("energy_mev: 1.0", "energy_mev: -1.0"), vec!["reaction.energy_mev"]),
         ];
@@ -440,7 +520,7 @@ mod tests {
         }
         let problems = model(&OPTICAL.replace("a_fm: 0.60", "a_fm: -0.60")).waves().expect_err("refused");
         assert_eq!((problems[0].found.as_str(), problems[0].expected.as_str()), ("-0.6", "a finite number > 0"));
-        for yaml in [OPTICAL, ruth, sphere] {
+        for yaml in [OPTICAL, ruth, sphere, PROTON] {
             assert!(model(yaml).evaluate(&[30.0]).is_ok(), "{yaml}");
         }
     }
@@ -591,5 +671,46 @@ mod tests {
             assert_eq!(curve.sigma_elastic_mb.is_some(), total, "{yaml}");
             assert_eq!((curve.step_fm.is_some(), curve.matching_radii_fm.is_some()), (numerics, numerics), "{yaml}");
         }
+    }
+
+    #[test]
+    fn a_nucleon_beam_has_an_analyzing_power_column() {
+        // (model file, analyzing power reported, nonzero somewhere): nucleons (spin ½) get
+        // A_y, zero without a spin-orbit term (B = 0); other beams none.
+        let no_so = PROTON.split("  spin_orbit:").next().expect("head").to_string() + "  radius: target\n";
+        let n_sphere = "model: hard_sphere\nreaction: { beam: n, target: 58Ni, energy_mev: 1.0 }\nradius_fm: 5.0\n";
+        let cases = [
+            (PROTON.to_string(), true, true),
+            (PROTON.replace("beam: p,", "beam: n,"), true, true),
+            (no_so, true, false),
+            (n_sphere.to_string(), true, false),
+            (OPTICAL.to_string(), false, false),
+        ];
+        let angles: Vec<f64> = (1..18).map(|i| 10.0 * f64::from(i)).collect();
+        for (yaml, reported, nonzero) in cases {
+            let curve = model(&yaml).evaluate(&angles).expect("evaluates");
+            let ay: Vec<Option<f64>> = curve.rows.iter().map(|r| r.analyzing_power).collect();
+            assert_eq!(ay.iter().all(Option::is_some), reported, "{yaml}");
+            // 0.05: the spin-orbit term of the demo gives |A_y| up to about 1 (measured);
+            // without one, A_y is 2 Im(A·0)/|A|² = 0 exactly.
+            assert_eq!(ay.iter().flatten().any(|a| a.abs() > 0.05), nonzero, "{yaml}");
+            assert!(ay.iter().flatten().all(|a| a.abs() <= 1.0), "{yaml}");
+        }
+    }
+
+    #[test]
+    fn relativistic_kinematics_is_chosen_in_the_reaction() {
+        // reaction.kinematics: relativistic gives k = p_cm/ħc with the relativistic CM
+        // momentum, larger than the non-relativistic k by about T/(4 m_p) for 30 MeV
+        // protons on 58Ni (expanding p² = m_A² T(T + 2m_a)/s against 2μE; common practice):
+        // between 0.5 and 1.5 times that.
+        let rel = PROTON.replace("energy_mev: 30.0 }", "energy_mev: 30.0, kinematics: relativistic }");
+        let (nr, rel) = (model(PROTON).evaluate(&[30.0]), model(&rel).evaluate(&[30.0]));
+        let (nr, rel) = (nr.expect("evaluates"), rel.expect("evaluates"));
+        let (excess, estimate) = (rel.k_per_fm / nr.k_per_fm - 1.0, 30.0 / (4.0 * 938.27));
+        assert!(excess > 0.5 * estimate && excess < 1.5 * estimate, "{excess} vs {estimate}");
+        // η = Z_a Z_A α μ/p rises: the relative velocity p/μ falls below its
+        // non-relativistic value (μ, the reduced total energy, grows by about 3 %).
+        assert!(rel.eta > nr.eta, "{} vs {}", rel.eta, nr.eta);
     }
 }

@@ -107,7 +107,7 @@ pub enum FitModelConfig {
         /// The reaction.
         reaction: TheoryReaction,
         /// Start potential (fixed values of the parameters that are not free).
-        potential: PotentialConfig,
+        potential: Box<PotentialConfig>,
         /// Numerics overrides.
         #[serde(default)]
         numerics: NumericsConfig,

@@ -185,6 +185,7 @@ impl OpticalModel {
             imag_volume: ws(&terms[1]),
             imag_surface: ws(&terms[2]),
             coulomb_radius_fm: rc * self.a13,
+            spin_orbit: None,
         })
     }
 }
@@ -262,6 +263,12 @@ pub(super) fn optical_parts(
     c: &mut Checks,
 ) -> Result<OpticalParts, Vec<Problem>> {
     let (channel, beam, target): (ElasticChannel, &Nuclide, &Nuclide) = reaction.channel()?;
+    c.require(
+        potential.spin_orbit.is_none(),
+        "potential.spin_orbit",
+        "a spin-orbit term",
+        "an optical model without spin_orbit: fits of spin-½ models are not supported yet (issue 16, item 4)",
+    );
     for key in OpticalKey::all().into_iter().filter(|k| k.is_length()) {
         c.positive(&format!("potential.{}", key.name()), key.value(potential));
     }

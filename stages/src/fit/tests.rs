@@ -54,6 +54,13 @@ fn build_refuses_each_bad_setting_with_its_key() {
         (OPTICAL.replace("real.depth_mev: {", "real.depth: {"), "free.real.depth"),
         (OPTICAL.replace("min: 20.0", "min: 160.0"), "free.real.depth_mev"),
         (OPTICAL.replace("a_fm: 0.60", "a_fm: -0.60"), "potential.real.a_fm"),
+        // Fits of spin-½ models are issue 16, item 4: refused, not silently spin 0.
+        (
+            OPTICAL
+                .replace("beam: 4He", "beam: p")
+                .replace("  coulomb:", "  spin_orbit: { real: { depth_mev: 6.0, r0_fm: 1.0, a_fm: 0.7 } }\n  coulomb:"),
+            "potential.spin_orbit",
+        ),
         (format!("{OPTICAL}fit: {{ profile: [real.a_fm] }}\n"), "fit.profile[0]"),
         (format!("{OPTICAL}multi_start: {{ real.depth_mev: [100.0, 500.0] }}\n"), "multi_start.real.depth_mev[1]"),
     ];

@@ -27,3 +27,7 @@ pub const FINE_STRUCTURE: f64 = 1.0 / 137.035_999_084;
 
 /// Millibarn per fm²: 1 fm² = 1e-26 cm² = 10 mb.
 pub const MB_PER_FM2: f64 = 10.0;
+
+/// Charged-pion mass m_π± c² in MeV (Particle Data Group, P. A. Zyla et al., Prog. Theor.
+/// Exp. Phys. 2020 (2020) 083C01: 139.57039 ± 0.00018 MeV).
+pub const CHARGED_PION_MASS_MEV: f64 = 139.570_39;

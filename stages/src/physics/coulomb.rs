@@ -219,6 +219,25 @@ pub fn legendre(x: f64, l_max: usize) -> Vec<f64> {
     p
 }
 
+/// First associated Legendre functions P_l^1(cos θ) = sin θ · dP_l/dx at x = cos θ for
+/// l = 0 … l_max, without the Condon–Shortley phase (so P_1^1 = sin θ ≥ 0 on [0, π]), by the
+/// recurrence in l at fixed order m = 1 (DLMF 14.10.3 with μ = 1):
+///     l P_{l+1}^1 = (2l+1) x P_l^1 − (l+1) P_{l−1}^1,   P_0^1 = 0, P_1^1 = sin θ.
+/// (DLMF 14.7.8 and scipy's `lpmv` carry the factor (−1)^m; the recurrence is linear, so
+/// the sign convention only fixes the start.) θ in rad.
+pub fn legendre_first_associated(theta_rad: f64, l_max: usize) -> Vec<f64> {
+    let (x, sin) = (theta_rad.cos(), theta_rad.sin());
+    let mut p = vec![0.0; l_max + 1];
+    if l_max >= 1 {
+        p[1] = sin;
+    }
+    for l in 1..l_max {
+        let lf = l as f64;
+        p[l + 1] = ((2.0 * lf + 1.0) * x * p[l] - (lf + 1.0) * p[l - 1]) / lf;
+    }
+    p
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -254,5 +273,20 @@ mod tests {
         // once; P_3(0.3) = −0.3825 is a difference of numbers of order 1.
         assert_relative_eq!(p[2], (3.0 * 0.09 - 1.0) / 2.0, max_relative = 1e-15);
         assert_relative_eq!(p[3], (5.0 * 0.027 - 0.9) / 2.0, max_relative = 1e-14);
+    }
+
+    #[test]
+    fn first_associated_legendre_low_orders() {
+        // sin θ · P_l'(cos θ): P_1^1 = s, P_2^1 = 3xs, P_3^1 = (3/2)(5x² − 1)s (DLMF Table
+        // 18.3.1 differentiated; no Condon–Shortley phase). (θ in rad)
+        for theta in [0.0f64, 0.4, 1.3, 2.9, std::f64::consts::PI] {
+            let (x, s) = (theta.cos(), theta.sin());
+            let p = legendre_first_associated(theta, 3);
+            // 1e-14 absolute: |P_l^1| ≤ 6 here and two steps of the recurrence each round
+            // once.
+            for (got, want) in p.iter().zip([0.0, s, 3.0 * x * s, 1.5 * (5.0 * x * x - 1.0) * s]) {
+                assert!((got - want).abs() < 1e-14, "θ {theta}: {got} vs {want}");
+            }
+        }
     }
 }

@@ -17,6 +17,7 @@ pub mod optical;
 pub mod partial_waves;
 pub mod peak_acceptance;
 pub mod peak_fit;
+pub mod polarisation;
 pub mod polygon;
 pub mod rutherford;
 pub mod solid_angle;

@@ -1,4 +1,4 @@
-//! The optical model for spin-0 projectiles: Woods–Saxon real and imaginary potentials, an
+//! The optical model for spin-0 and spin-½ projectiles: Woods–Saxon real and imaginary potentials, an
 //! imaginary surface (derivative) term, the Coulomb potential of a uniformly charged sphere;
 //! the radial Schrödinger equation integrated by Numerov's method and matched to Coulomb
 //! functions outside the nuclear range, giving S_L for the partial-wave sums of
@@ -17,10 +17,23 @@
 //! Matching at two radii r_a < r_b outside the nuclear potential, where
 //! u ∝ H⁻ − S H⁺ (H± = G ± iF at ρ = kr):
 //!     S_L = (u_b H⁻_a − u_a H⁻_b) / (u_b H⁺_a − u_a H⁺_b).
+//!
+//! Spin ½ (protons, neutrons): a spin-orbit term of Thomas form is added,
+//!     U_so(r) = (ħ/m_π c)² [V_so (1/r) df(r; R_so, a_so)/dr + i W_so (1/r) df(r; R'_so, a'_so)/dr] l·σ,
+//! with l·σ = 2 l·s = l for j = l + ½ and −(l+1) for j = l − ½, (ħ/m_π c)² = (ħc/m_π±c²)²
+//! = 1.9989 fm² from the charged-pion mass. Since df/dr < 0, positive V_so is attractive for
+//! j = l + ½ and positive W_so absorptive there. This is the l·σ normalisation (G. R.
+//! Satchler, Direct Nuclear Reactions, Oxford 1983, section 12.2; F. D. Becchetti, G. W.
+//! Greenlees, Phys. Rev. 182 (1969) 1190 — both from memory), in which nucleon depths are
+//! about 6 MeV; a potential written with l·s and the same (ħ/m_π c)² has depths twice these
+//! (2 V_so l·s = V_so l·σ), and some authors round (ħ/m_π c)² to 2 fm² (0.06 % larger). Each
+//! j gets its own radial equation, w_{l,j} = w_l + (2μ/(ħc)²) U_so(r), and its own S_{l,j}
+//! by the same matching; [`super::partial_waves`] turns them into A(θ), B(θ) and A_y. At
+//! r = 0, where (1/r) df/dr tends to a finite value below e^{−R/a}/a², the term is set to 0.
 
 use num_complex::Complex64;
 
-use super::constants::{FINE_STRUCTURE, HBAR_C_MEV_FM};
+use super::constants::{CHARGED_PION_MASS_MEV, FINE_STRUCTURE, HBAR_C_MEV_FM};
 use super::coulomb::{coulomb_waves, CoulombError};
 use super::partial_waves::PartialWaves;
 
@@ -71,6 +84,37 @@ impl WoodsSaxon {
     }
 }
 
+/// (ħ/m_π c)² in fm², from the charged-pion mass (module docs).
+pub const PION_COMPTON_SQ_FM2: f64 = (HBAR_C_MEV_FM / CHARGED_PION_MASS_MEV) * (HBAR_C_MEV_FM / CHARGED_PION_MASS_MEV);
+
+/// The spin-orbit term of Thomas form (module docs): two Woods–Saxon shapes whose
+/// (1/r) d/dr, times (ħ/m_π c)² and l·σ, give the real and imaginary parts.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct SpinOrbit {
+    /// V_so (depth in MeV, l·σ normalisation), R_so, a_so.
+    pub real: WoodsSaxon,
+    /// W_so, R'_so, a'_so.
+    pub imag: WoodsSaxon,
+}
+
+impl SpinOrbit {
+    /// U_so(r)/(l·σ) in MeV: (ħ/m_π c)² (1/r) [V_so df_R/dr + i W_so df_I/dr], with
+    /// df/dr = −(−4a df/dr)/(4a); 0 at r = 0 (module docs).
+    pub fn per_l_sigma_mev(&self, r_fm: f64) -> Complex64 {
+        if r_fm <= 0.0 {
+            return Complex64::new(0.0, 0.0);
+        }
+        let term = |t: &WoodsSaxon| {
+            if t.depth_mev == 0.0 {
+                0.0
+            } else {
+                -t.depth_mev * t.surface_form(r_fm) / (4.0 * t.diffuseness_fm * r_fm)
+            }
+        };
+        PION_COMPTON_SQ_FM2 * Complex64::new(term(&self.real), term(&self.imag))
+    }
+}
+
 /// The optical potential.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct OpticalPotential {
@@ -82,20 +126,63 @@ pub struct OpticalPotential {
     pub imag_surface: WoodsSaxon,
     /// Radius R_C of the uniformly charged sphere in fm.
     pub coulomb_radius_fm: f64,
+    /// Spin-orbit term: `Some` for a spin-½ projectile (S_l± are then solved for both j, even
+    /// with zero depths), `None` for spin 0.
+    pub spin_orbit: Option<SpinOrbit>,
 }
 
-/// The elastic channel in the non-relativistic convention.
+/// How the wave number and reduced mass follow from the lab energy.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub enum Kinematics {
+    /// μ = m_a m_A/(m_a + m_A), E = T m_A/(m_a + m_A), k² = 2μE/(ħc)² (common practice).
+    #[default]
+    NonRelativistic,
+    /// k = p_cm/ħc from the relativistic CM momentum, p_cm c = m_A √(T(T + 2m_a))/√s with
+    /// s = (m_a + m_A)² + 2 m_A T (PDG review "Kinematics", Eq. for the CM momentum), and the
+    /// reduced mass replaced by the reduced total energy μ = E_a E_A/(E_a + E_A),
+    /// E_i = √(p_cm² + m_i²), in the Schrödinger equation and in η = Z_a Z_A α μ/(p_cm c);
+    /// the channel's E is then p_cm²/(2μ), so that k² = 2μE/(ħc)² still holds (the
+    /// reduced-energy prescription: A. Ingemarsson, Phys. Scr. 9 (1974) 156; Satchler 1983,
+    /// section 12.2 — both from memory).
+    Relativistic,
+}
+
+/// The elastic channel: reduced mass, energy and charges, in the form of the
+/// non-relativistic Schrödinger equation (the relativistic prescription of [`Kinematics`]
+/// enters through an effective μ and E).
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct ElasticChannel {
-    /// Reduced mass μc² in MeV.
+    /// Reduced mass μc² in MeV (the reduced total energy with [`Kinematics::Relativistic`]).
     pub reduced_mass_mev: f64,
-    /// CM kinetic energy in MeV.
+    /// CM kinetic energy in MeV (p_cm²/(2μ) with [`Kinematics::Relativistic`]).
     pub e_cm_mev: f64,
     /// Z_a · Z_A.
     pub charge_product: f64,
 }
 
 impl ElasticChannel {
+    /// The channel of a beam of mass m_a (MeV) and lab kinetic energy T (MeV) on a target of
+    /// mass m_A at rest, charge product Z_a Z_A, by the chosen [`Kinematics`].
+    pub fn from_lab(
+        beam_mass_mev: f64,
+        target_mass_mev: f64,
+        energy_lab_mev: f64,
+        charge_product: f64,
+        kinematics: Kinematics,
+    ) -> Self {
+        let (ma, mt, t) = (beam_mass_mev, target_mass_mev, energy_lab_mev);
+        let (reduced_mass_mev, e_cm_mev) = match kinematics {
+            Kinematics::NonRelativistic => (ma * mt / (ma + mt), t * mt / (ma + mt)),
+            Kinematics::Relativistic => {
+                let sqrt_s = ((ma + mt).powi(2) + 2.0 * mt * t).sqrt();
+                let p2 = mt * mt * t * (t + 2.0 * ma) / (sqrt_s * sqrt_s);
+                let mu = (p2 + ma * ma).sqrt() * (p2 + mt * mt).sqrt() / sqrt_s;
+                (mu, p2 / (2.0 * mu))
+            }
+        };
+        ElasticChannel { reduced_mass_mev, e_cm_mev, charge_product }
+    }
+
     /// Wave number k in 1/fm.
     pub fn k_per_fm(&self) -> f64 {
         (2.0 * self.reduced_mass_mev * self.e_cm_mev).sqrt() / HBAR_C_MEV_FM
@@ -228,7 +315,9 @@ pub struct RadialWave {
     pub absorption_mev: Vec<f64>,
 }
 
-/// The radial wave function of partial wave `l`, with the numerics `solve` would choose.
+/// The radial wave function of partial wave `l`, with the numerics `solve` would choose;
+/// for a potential with a spin-orbit term the wave of j = l + ½ (its `absorption_mev` holds
+/// the central terms only).
 ///
 /// # Errors
 /// As [`solve`].
@@ -267,6 +356,13 @@ fn solve_recording(
         check(name, ws.diffuseness_fm, ws.diffuseness_fm > 0.0, "a diffuseness > 0 fm")?;
         check(name, ws.depth_mev, ws.depth_mev.abs() <= MAX_DEPTH_MEV, "a depth within ±10000 MeV")?;
     }
+    if let Some(so) = &pot.spin_orbit {
+        for (name, ws) in [("spin_orbit.real", &so.real), ("spin_orbit.imag", &so.imag)] {
+            check(name, ws.radius_fm, ws.radius_fm > 0.0, "a radius > 0 fm")?;
+            check(name, ws.diffuseness_fm, ws.diffuseness_fm > 0.0, "a diffuseness > 0 fm")?;
+            check(name, ws.depth_mev, ws.depth_mev.abs() <= MAX_DEPTH_MEV, "a depth within ±10000 MeV")?;
+        }
+    }
     check("coulomb radius", pot.coulomb_radius_fm, pot.coulomb_radius_fm > 0.0, "a radius > 0 fm")?;
     check("reduced mass", ch.reduced_mass_mev, ch.reduced_mass_mev > 0.0, "> 0 MeV")?;
     check("CM energy", ch.e_cm_mev, ch.e_cm_mev > 0.0, "> 0 MeV")?;
@@ -279,14 +375,25 @@ fn solve_recording(
         + pot.imag_volume.depth_mev.abs()
         + pot.imag_surface.depth_mev.abs()
         + coulomb(0.0).abs();
-    let k_local = (k * k + c2m * depth_sum).sqrt();
+    // The spin-orbit term peaks near R at (ħ/m_π c)² |V_so| l/(4aR), for l up to about kR.
+    let so_terms: Vec<WoodsSaxon> = pot.spin_orbit.iter().flat_map(|so| [so.real, so.imag]).collect();
+    let so_sum: f64 = so_terms
+        .iter()
+        .map(|t| {
+            PION_COMPTON_SQ_FM2 * t.depth_mev.abs() / (4.0 * t.diffuseness_fm * t.radius_fm) * (k * t.radius_fm + 1.0)
+        })
+        .sum();
+    let k_local = (k * k + c2m * (depth_sum + so_sum)).sqrt();
     let acc = numerics.accuracy.unwrap_or(DEFAULT_ACCURACY);
     // 1e-12: Numerov's h⁴ error meets f64 round-off near there.
     check("accuracy", acc, (1e-12..=1e-2).contains(&acc), "a relative accuracy in [1e-12, 0.01]")?;
     let h = numerics.step_fm.unwrap_or((2.5 * acc.powf(0.25)).min(0.35) / k_local);
     check("step", h, h > 0.0, "a step > 0 fm")?;
-    let nuclear_range =
-        [pot.real, pot.imag_volume, pot.imag_surface].iter().map(|t| t.range_fm(1e-5 * acc)).fold(rc + 1.0, f64::max);
+    let nuclear_range = [pot.real, pot.imag_volume, pot.imag_surface]
+        .iter()
+        .chain(&so_terms)
+        .map(|t| t.range_fm(1e-5 * acc))
+        .fold(rc + 1.0, f64::max);
     let r_a = numerics.matching_radius_fm.unwrap_or(nuclear_range);
     check("matching radius", r_a, r_a > 0.0, "a radius > 0 fm")?;
     if let Some(l) = numerics.l_max.filter(|l| *l > L_CAP) {
@@ -319,9 +426,15 @@ fn solve_recording(
             c2m * (nuclear + coulomb(r)) - k * k
         })
         .collect();
+    // U_so/(l·σ) on the grid, times 2μ/(ħc)²; empty for spin 0.
+    let w_so: Vec<Complex64> = pot
+        .spin_orbit
+        .map(|so| (0..=n_b).map(|n| c2m * so.per_l_sigma_mev(n as f64 * h)).collect())
+        .unwrap_or_default();
     let l_guess = numerics.l_max.unwrap_or(((k * r_b) * 1.5 + 30.0).ceil() as usize).min(L_CAP);
     let (mut wa, mut wb) = (coulomb_waves(eta, k * r_a, l_guess)?, coulomb_waves(eta, k * r_b, l_guess)?);
     let mut s = Vec::new();
+    let mut s_minus = Vec::new();
     let mut quiet = 0;
     for l in 0..=L_CAP {
         if numerics.l_max.is_some_and(|lm| l > lm) {
@@ -332,23 +445,44 @@ fn solve_recording(
             wa = coulomb_waves(eta, k * r_a, more)?;
             wb = coulomb_waves(eta, k * r_b, more)?;
         }
+        let (hpa, hpb) = (Complex64::new(wa.g[l], wa.f[l]), Complex64::new(wb.g[l], wb.f[l]));
+        // S from u at the two radii: u ∝ H⁻ − S H⁺ there.
+        let matched = |ua: Complex64, ub: Complex64| {
+            let sl = if hpa.norm().is_finite() && hpb.norm().is_finite() {
+                (ub * hpa.conj() - ua * hpb.conj()) / (ub * hpa - ua * hpb)
+            } else {
+                Complex64::new(1.0, 0.0)
+            };
+            if sl.norm().is_finite() {
+                sl
+            } else {
+                Complex64::new(1.0, 0.0)
+            }
+        };
+        // l·σ of j = l + ½ (the only j of l = 0, and the spin-0 wave), then of j = l − ½.
         let wanted = record.as_ref().and_then(|r| r.as_ref()).is_some_and(|r| r.0 == l);
         let mut values = Vec::new();
-        let (ua, ub) = integrate(&w0, h, l, n_a, n_b, wanted.then_some(&mut values));
-        let (hpa, hpb) = (Complex64::new(wa.g[l], wa.f[l]), Complex64::new(wb.g[l], wb.f[l]));
-        let sl = if hpa.norm().is_finite() && hpb.norm().is_finite() {
-            (ub * hpa.conj() - ua * hpb.conj()) / (ub * hpa - ua * hpb)
-        } else {
-            Complex64::new(1.0, 0.0)
-        };
-        let sl = if sl.norm().is_finite() { sl } else { Complex64::new(1.0, 0.0) };
+        let lf = l as f64;
+        let (ua, ub) = integrate(&w0, &w_so, lf, h, l, n_a, n_b, wanted.then_some(&mut values));
+        let sl = matched(ua, ub);
         if let Some(Some(r)) = record.as_deref_mut().filter(|_| wanted) {
             // u = A (H⁻ − S H⁺) at r_a fixes A.
             r.2 = (hpa.conj() - sl * hpa) / ua;
             r.1 = values;
         }
         s.push(sl);
-        quiet = if (sl - 1.0).norm() < S_CONVERGED_PER_ACCURACY * acc && l as f64 > k * r_a { quiet + 1 } else { 0 };
+        let mut change = (sl - 1.0).norm();
+        if !w_so.is_empty() {
+            let sm = if l == 0 {
+                sl
+            } else {
+                let (ua, ub) = integrate(&w0, &w_so, -(lf + 1.0), h, l, n_a, n_b, None);
+                matched(ua, ub)
+            };
+            s_minus.push(sm);
+            change = change.max((sm - 1.0).norm());
+        }
+        quiet = if change < S_CONVERGED_PER_ACCURACY * acc && lf > k * r_a { quiet + 1 } else { 0 };
         if numerics.l_max.is_none() && quiet >= 3 {
             break;
         }
@@ -358,18 +492,22 @@ fn solve_recording(
     }
     let l_max = s.len() - 1;
     Ok(OpticalSolution {
-        waves: PartialWaves { k_per_fm: k, eta, s },
+        waves: PartialWaves { k_per_fm: k, eta, s, s_minus: pot.spin_orbit.map(|_| s_minus) },
         step_fm: h,
         matching_radii_fm: (r_a, r_b),
         l_max,
     })
 }
 
-/// Numerov integration of u_L'' = (L(L+1)/r² + w0(r)) u_L from near the origin (or from deep
-/// inside the centrifugal barrier, where the regular solution ∝ r^{L+1} dominates) to grid
-/// point `n_b`; returns u at `n_a` and `n_b`, rescaled freely (only their ratio matters).
+/// Numerov integration of u_L'' = (L(L+1)/r² + w0(r) + l·σ w_so(r)) u_L (`w_so` empty for
+/// spin 0) from near the origin (or from deep inside the centrifugal barrier, where the
+/// regular solution ∝ r^{L+1} dominates) to grid point `n_b`; returns u at `n_a` and `n_b`,
+/// rescaled freely (only their ratio matters).
+#[allow(clippy::too_many_arguments)]
 fn integrate(
     w0: &[Complex64],
+    w_so: &[Complex64],
+    l_sigma: f64,
     h: f64,
     l: usize,
     n_a: usize,
@@ -377,12 +515,13 @@ fn integrate(
     mut record: Option<&mut Vec<Complex64>>,
 ) -> (Complex64, Complex64) {
     let ll = (l * (l + 1)) as f64;
+    let w = |n: usize| if w_so.is_empty() { w0[n] } else { w0[n] + l_sigma * w_so[n] };
     let t = |n: usize| {
         let r = n as f64 * h;
-        (w0[n] + ll / (r * r)) * (h * h / 12.0)
+        (w(n) + ll / (r * r)) * (h * h / 12.0)
     };
     // Start where the centrifugal term exceeds the rest a thousandfold: there u ∝ r^{L+1}.
-    let w_max = w0.iter().map(|w| w.norm()).fold(0.0, f64::max);
+    let w_max = (0..w0.len()).map(|n| w(n).norm()).fold(0.0, f64::max);
     let r_start = if l == 0 { h } else { (ll / (1000.0 * w_max)).sqrt().max(h) };
     let n0 = ((r_start / h).floor() as usize).clamp(1, n_a.saturating_sub(2).max(1));
     let (mut u_prev, mut u) = if n0 == 1 {
@@ -444,6 +583,7 @@ mod tests {
             imag_volume: ws(imag, 1.4, 0.5),
             imag_surface: ws(surface, 1.35, 0.5),
             coulomb_radius_fm: 1.3 * a13,
+            spin_orbit: None,
         };
         // Invented round masses: 3727.4 and 53952.2 MeV; 24 MeV lab.
         let (ma, mt) = (3727.4, 53952.2);
@@ -561,5 +701,94 @@ mod tests {
         let (mut pot, ch) = alpha_ni58(150.0, 20.0, 0.0);
         pot.real.diffuseness_fm = -0.1;
         assert!(matches!(solve(&pot, &ch, &Numerics::default()), Err(OpticalError::Invalid { .. })));
+    }
+
+    /// 30 MeV protons on 58Ni, invented but typical parameters (real, imaginary volume,
+    /// imaginary surface, spin-orbit real and imaginary depths in MeV).
+    fn proton_ni58(depths: [f64; 5]) -> (OpticalPotential, ElasticChannel) {
+        let a13 = 58f64.cbrt();
+        let ws = |d: f64, r0: f64, a: f64| WoodsSaxon { depth_mev: d, radius_fm: r0 * a13, diffuseness_fm: a };
+        let pot = OpticalPotential {
+            real: ws(depths[0], 1.17, 0.75),
+            imag_volume: ws(depths[1], 1.32, 0.6),
+            imag_surface: ws(depths[2], 1.32, 0.6),
+            coulomb_radius_fm: 1.25 * a13,
+            spin_orbit: Some(SpinOrbit { real: ws(depths[3], 1.01, 0.75), imag: ws(depths[4], 1.01, 0.75) }),
+        };
+        // Invented round masses: 938.3 and 53952.2 MeV.
+        (pot, ElasticChannel::from_lab(938.3, 53952.2, 30.0, 28.0, Kinematics::NonRelativistic))
+    }
+
+    #[test]
+    fn spin_orbit_invariants() {
+        // (depths, what holds): sources in each arm.
+        let cases = [
+            ([47.0, 2.0, 6.5, 0.0, 0.0], "no spin-orbit"),
+            ([47.0, 0.0, 0.0, 6.2, 0.0], "real"),
+            ([47.0, 2.0, 6.5, 6.2, 0.0], "absorptive"),
+            // An imaginary spin-orbit term absorbs in one j and emits in the other (l·σ
+            // changes sign), so |S_l±| ≤ 1 need not hold: only the identities below.
+            ([47.0, 2.0, 6.5, 6.2, -0.5], "imaginary spin-orbit"),
+        ];
+        let thetas: Vec<f64> = (1..180).map(|d| f64::from(d).to_radians()).collect();
+        for (depths, what) in cases {
+            let (pot, ch) = proton_ni58(depths);
+            let sol = solve(&pot, &ch, &Numerics::default()).expect("solves");
+            let minus = sol.waves.s_minus.clone().expect("spin ½");
+            let amplitudes = sol.waves.amplitudes(&thetas);
+            match what {
+                "no spin-orbit" => {
+                    // Zero depths: both j see the spin-0 equation, so S_l± equal the spin-0
+                    // S_l exactly and A_y = 0; 1e-12 relative for dσ/dΩ (the spin-½ sums
+                    // (l+1)(S − 1) + l(S − 1) round differently from (2l+1)(S − 1)).
+                    let spin0 = solve(&OpticalPotential { spin_orbit: None, ..pot }, &ch, &Numerics::default())
+                        .expect("solves");
+                    assert_eq!(spin0.waves.s, sol.waves.s);
+                    assert_eq!(spin0.waves.s, minus);
+                    for (a, (dsdo, _)) in amplitudes.iter().zip(spin0.waves.curve(&thetas)) {
+                        assert!(a.analyzing_power().abs() < 1e-12, "{}", a.analyzing_power());
+                        assert!((a.dsdo_mb_sr() / dsdo - 1.0).abs() < 1e-12);
+                    }
+                }
+                "real" => {
+                    // Flux conservation for a real potential, each j (common practice):
+                    // |S_l±| = 1; 1e-10 (the bound; S from a real logarithmic
+                    // derivative is a ratio of conjugates, measured ~2e-16).
+                    for s in sol.waves.s.iter().chain(&minus) {
+                        assert!((s.norm() - 1.0).abs() < 1e-10, "{s}");
+                    }
+                }
+                "absorptive" => {
+                    // Absorption: |S_l±| ≤ 1 (1e-14: rounding of the matching) and σ_R > 0.
+                    assert!(sol.waves.s.iter().chain(&minus).all(|s| s.norm() <= 1.0 + 1e-14));
+                    assert!(sol.waves.sigma_reaction_mb() > 100.0);
+                }
+                _ => assert!(sol.waves.sigma_reaction_mb() > 100.0),
+            }
+            for a in &amplitudes {
+                // |A_y| ≤ 1 and P² + Q² + R² = 1 (Ohlsen 1972, section 3); 1e-12: squares
+                // of numbers ≤ 1 summed, a few roundings.
+                let (p, q, r) = (a.analyzing_power(), a.spin_rotation(), a.spin_rotation_r());
+                assert!(p.abs() <= 1.0 && (p * p + q * q + r * r - 1.0).abs() < 1e-12, "{what}: {p} {q} {r}");
+            }
+        }
+    }
+
+    #[test]
+    fn relativistic_wave_number_is_the_cm_momentum() {
+        // p_cm c = √((s − (m_a + m_A)²)(s − (m_a − m_A)²))/(2√s), s = (m_a + m_A)² + 2 m_A T
+        // (PDG review "Kinematics", two-body decay momentum; from memory): the other form
+        // of the same momentum. Invented round masses, MeV. (m_a, m_A, T)
+        for (ma, mt, t) in [(938.3, 53952.2, 30.0), (938.3, 11174.9, 200.0), (939.6, 193687.0, 100.0)] {
+            let ch = ElasticChannel::from_lab(ma, mt, t, 0.0, Kinematics::Relativistic);
+            let s = (ma + mt).powi(2) + 2.0 * mt * t;
+            let p = ((s - (ma + mt).powi(2)) * (s - (ma - mt).powi(2))).sqrt() / (2.0 * s.sqrt());
+            // 1e-12: two algebraically equal forms of p, a dozen roundings each.
+            assert_relative_eq!(ch.k_per_fm() * HBAR_C_MEV_FM, p, max_relative = 1e-12);
+            // Below 1 % of the masses the two prescriptions agree to about T/m (common
+            // practice): here within 0.3 T/m_a.
+            let nr = ElasticChannel::from_lab(ma, mt, t, 0.0, Kinematics::NonRelativistic);
+            assert!((ch.k_per_fm() / nr.k_per_fm() - 1.0).abs() < 0.3 * t / ma, "{t} MeV");
+        }
     }
 }
