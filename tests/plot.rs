@@ -258,6 +258,21 @@ fn run_health_marks_the_run_with_a_fraction_of_the_charge_and_the_report_names_i
 }
 
 #[test]
+fn run_health_shows_the_monitor_over_absolute_luminosity_where_it_is_computed() {
+    let tmp = crate::common::demo_copy();
+    std::fs::copy(demo_dir().join("experiment-monitor.yaml"), tmp.path().join("experiment-monitor.yaml"))
+        .expect("monitor config");
+    let o = xsflow(tmp.path(), &["batch", "experiment-monitor.yaml", "--out", "out", "-q"]);
+    assert_eq!(o.status.code(), Some(0), "{}", text(&o));
+    let svg = plot(tmp.path(), &["run-health", "out"], "health.svg");
+    assert!(svg.contains("monitor / absolute luminosity"), "the fourth quantity's panel");
+    // Charge, live fraction and the ratio: three panels of four runs.
+    assert_eq!(elements(&svg, "circle").iter().filter(|c| attr(c, "r") == Some("3")).count(), 12, "{svg}");
+    let index = std::fs::read_to_string(tmp.path().join("out/report/index.html")).expect("report");
+    assert!(index.contains("monitor / absolute luminosity"), "the report's health plot has it too");
+}
+
+#[test]
 fn a_batch_where_every_run_failed_reports_each_failure_and_nothing_to_plot() {
     let tmp = demo_with_charge(|_| Some("0".to_string()));
     let o = xsflow(tmp.path(), &["batch", "experiment.yaml", "--out", "out", "-q"]);

@@ -1,5 +1,5 @@
-//! Run health versus run: beam charge, mean live fraction and, for a chosen detector, the
-//! net counts per µC, one panel each, with the runs that lie more than a set number of
+//! Run health versus run: beam charge, mean live fraction, for a chosen detector the net
+//! counts per µC, and the monitor over absolute luminosity where computed, one panel each, with the runs that lie more than a set number of
 //! standard deviations from the median marked. A dead detector, a beam off the target or a
 //! data-acquisition fault shows as a point out of line.
 //!
@@ -27,6 +27,8 @@ pub struct HealthRun {
     pub live_fraction: Option<f64>,
     /// Net counts (all states) per µC in the chosen detector.
     pub counts_per_uc: Option<f64>,
+    /// Monitor over absolute luminosity, where computed.
+    pub luminosity_ratio: Option<f64>,
 }
 
 /// A run marked as out of line: the quantity (a panel's axis title), the run, its value.
@@ -88,6 +90,12 @@ pub fn run_health(runs: &[HealthRun], sigmas: f64, format: Format) -> Result<(Ve
     ];
     if runs.iter().any(|r| r.counts_per_uc.is_some()) {
         panels.push(Panel { title: "net counts per µC", values: runs.iter().map(|r| r.counts_per_uc).collect() });
+    }
+    if runs.iter().any(|r| r.luminosity_ratio.is_some()) {
+        panels.push(Panel {
+            title: "monitor / absolute luminosity",
+            values: runs.iter().map(|r| r.luminosity_ratio).collect(),
+        });
     }
     if runs.is_empty() || panels.iter().all(|p| p.values.iter().all(Option::is_none)) {
         return Ok((empty_page("no run to show: nothing was reduced", format)?, Vec::new()));
@@ -172,12 +180,22 @@ pub fn run_health(runs: &[HealthRun], sigmas: f64, format: Format) -> Result<(Ve
     Ok((page.finish().map_err(fail)?, marked))
 }
 
-/// Net counts per detector (summed over states and branches) of a run's cross_sections
-/// table.
+/// What run health needs of a run's cross_sections table: net counts per detector (summed
+/// over states and branches) and, in monitor mode with `compare_absolute`, the monitor over
+/// absolute luminosity.
+#[derive(Debug, Clone, Default, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct RunFigures {
+    /// (detector, net counts), in table order.
+    pub counts_by_detector: Vec<(String, f64)>,
+    /// Monitor luminosity over absolute luminosity, where the run computed it.
+    pub luminosity_monitor_over_absolute: Option<f64>,
+}
+
+/// The run-health figures of a run's cross_sections table.
 ///
 /// # Errors
 /// An unreadable table or a missing column, naming the file.
-pub fn detector_counts(table: &Path) -> Result<Vec<(String, f64)>, Diagnostic> {
+pub fn run_figures(table: &Path) -> Result<RunFigures, Diagnostic> {
     let frame = super::read(table)?;
     let detectors = super::strings(&frame, "detector", table)?;
     let counts = super::floats(&frame, "counts_net", table)?;
@@ -188,7 +206,12 @@ pub fn detector_counts(table: &Path) -> Result<Vec<(String, f64)>, Diagnostic> {
             None => out.push((d, c)),
         }
     }
-    Ok(out)
+    let ratio = frame
+        .column("luminosity_monitor_over_absolute")
+        .ok()
+        .and_then(|_| super::optional_floats(&frame, "luminosity_monitor_over_absolute", table).ok())
+        .and_then(|v| v.into_iter().flatten().find(|x| x.is_finite()));
+    Ok(RunFigures { counts_by_detector: out, luminosity_monitor_over_absolute: ratio })
 }
 
 /// The outliers as a sentence for the report, or `None` when there are none.
@@ -231,6 +254,7 @@ mod tests {
                 charge_uc: Some(if i == 4 { 3.0 } else { 10.0 + 0.1 * i as f64 }),
                 live_fraction: Some(0.95),
                 counts_per_uc: None,
+                luminosity_ratio: None,
             })
             .collect();
         let (svg, marked) = run_health(&runs, 3.0, Format::Svg).expect("drawn");

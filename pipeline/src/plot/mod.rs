@@ -21,7 +21,7 @@ use plotters::prelude::*;
 use polars::prelude::*;
 
 pub use angular::{angular_distribution, find_fits};
-pub use health::{describe as describe_outliers, detector_counts, outliers, run_health, HealthRun, Outlier};
+pub use health::{describe as describe_outliers, outliers, run_figures, run_health, HealthRun, Outlier, RunFigures};
 pub use landscape::{draw_minima, landscape, minima_of};
 pub use pid::pid;
 pub use ratio::ratio_rutherford;

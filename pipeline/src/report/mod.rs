@@ -23,7 +23,7 @@ use crate::layout::{
     is_folder_name, ANGULAR_DISTRIBUTION_CSV, ANGULAR_DISTRIBUTION_PARQUET, ANGULAR_DISTRIBUTION_SVG,
     CROSS_SECTIONS_PARQUET, FITS_DIR, FIT_JSON, REPORT_DIR, REPORT_INDEX, REPORT_RUNS_DIR,
 };
-use crate::plot::{describe_outliers, detector_counts, run_health, Format, HealthRun};
+use crate::plot::{describe_outliers, run_figures, run_health, Format, HealthRun, RunFigures};
 use crate::tables::write_atomic;
 use html::{badge, escape, figure, number, page, table, Cell};
 
@@ -60,14 +60,20 @@ pub fn write(out_dir: &Path, settings: &Settings, runs: &[RunEntry]) -> Result<W
     std::fs::create_dir_all(&runs_dir)
         .map_err(|e| Diagnostic::new(&runs_dir, "", format!("cannot create the report folder: {e}")))?;
     let mut written = Written::default();
+    let mut figures = std::collections::BTreeMap::new();
     for entry in runs.iter().filter(|e| is_folder_name(&e.run)) {
-        if run_page::write(out_dir, &runs_dir, entry)? {
+        let (fresh, f) = run_page::write(out_dir, &runs_dir, entry)?;
+        if fresh {
             written.run_pages += 1;
         } else {
             written.run_pages_kept += 1;
         }
+        if let Some(f) = f {
+            figures.insert(entry.run.clone(), f);
+        }
     }
-    let index = index_page(out_dir, settings, runs);
+    let health = health_runs(runs, settings.health_detector.as_deref(), |e| figures.get(&e.run).cloned());
+    let index = index_page(out_dir, settings, runs, &health);
     write_if_changed(&report_dir.join(REPORT_INDEX), index.as_bytes())?;
     Ok(written)
 }
@@ -80,14 +86,18 @@ fn write_if_changed(path: &Path, bytes: &[u8]) -> Result<(), Diagnostic> {
     write_atomic(path, bytes).map_err(|e| Diagnostic::new(path, "", format!("cannot write the report page: {e}")))
 }
 
-/// The run-health figures of `runs`, with the net counts per µC of `detector` read from
-/// each run's cross_sections table in `out_dir` (runs with outputs only).
-pub fn health_runs(out_dir: &Path, runs: &[RunEntry], detector: Option<&str>) -> Vec<HealthRun> {
+/// The run-health figures of `runs`; `figures` gives each run's counts and luminosity
+/// ratio (none for a run without outputs), `detector` the detector of the counts per µC.
+pub fn health_runs(
+    runs: &[RunEntry],
+    detector: Option<&str>,
+    figures: impl Fn(&RunEntry) -> Option<RunFigures>,
+) -> Vec<HealthRun> {
     runs.iter()
         .map(|e| {
-            let counts_per_uc = detector.filter(|_| e.status.has_outputs() && is_folder_name(&e.run)).and_then(|d| {
-                let counts = detector_counts(&out_dir.join(&e.run).join(CROSS_SECTIONS_PARQUET)).ok()?;
-                let n = counts.iter().find(|(k, _)| k == d)?.1;
+            let f = figures(e).unwrap_or_default();
+            let counts_per_uc = detector.and_then(|d| {
+                let n = f.counts_by_detector.iter().find(|(k, _)| k == d)?.1;
                 e.charge_c.filter(|q| *q > 0.0).map(|q| n / (q * 1e6))
             });
             HealthRun {
@@ -95,9 +105,18 @@ pub fn health_runs(out_dir: &Path, runs: &[RunEntry], detector: Option<&str>) ->
                 charge_uc: e.charge_c.map(|q| q * 1e6),
                 live_fraction: e.live_fraction,
                 counts_per_uc,
+                luminosity_ratio: f.luminosity_monitor_over_absolute,
             }
         })
         .collect()
+}
+
+/// The run-health figures of a run in `out_dir`, read from its table (none for a run
+/// without outputs or an unreadable table).
+fn figures_from_table(out_dir: &Path, e: &RunEntry) -> Option<RunFigures> {
+    (e.status.has_outputs() && is_folder_name(&e.run))
+        .then(|| run_figures(&out_dir.join(&e.run).join(CROSS_SECTIONS_PARQUET)).ok())
+        .flatten()
 }
 
 /// The run-health figures of a `batch` output folder, from its catalogue.
@@ -117,11 +136,11 @@ pub fn health_of_batch(dir: &Path, detector: Option<&str>) -> Result<Vec<HealthR
     let entries = Catalogue::open(dir)
         .and_then(|c| c.list(false))
         .map_err(|e| Diagnostic::new(&file, "", format!("cannot read the catalogue: {e}")))?;
-    Ok(health_runs(dir, &entries, detector))
+    Ok(health_runs(&entries, detector, |e| figures_from_table(dir, e)))
 }
 
 /// The index page.
-fn index_page(out_dir: &Path, settings: &Settings, runs: &[RunEntry]) -> String {
+fn index_page(out_dir: &Path, settings: &Settings, runs: &[RunEntry], health: &[HealthRun]) -> String {
     let count = |s: RunStatus| runs.iter().filter(|e| e.status == s).count();
     let mut body = String::new();
     let _ = write!(
@@ -137,7 +156,7 @@ fn index_page(out_dir: &Path, settings: &Settings, runs: &[RunEntry]) -> String 
         count(RunStatus::Skipped),
     );
     body.push_str(&failed_section(runs));
-    body.push_str(&health_section(out_dir, settings, runs));
+    body.push_str(&health_section(settings, health));
     body.push_str(&distribution_section(out_dir));
     body.push_str(&fits_section(out_dir));
     body.push_str(&runs_section(runs));
@@ -172,10 +191,9 @@ fn run_link(run: &str) -> String {
     }
 }
 
-fn health_section(out_dir: &Path, settings: &Settings, runs: &[RunEntry]) -> String {
-    let health = health_runs(out_dir, runs, settings.health_detector.as_deref());
+fn health_section(settings: &Settings, health: &[HealthRun]) -> String {
     let mut out = String::from("<section id=\"health\">\n<h2>Run health</h2>\n");
-    match run_health(&health, settings.outlier_sigmas, Format::Svg) {
+    match run_health(health, settings.outlier_sigmas, Format::Svg) {
         Ok((svg, marked)) => {
             let detector =
                 settings.health_detector.as_deref().map_or_else(String::new, |d| format!(", net counts per µC in {d}"));

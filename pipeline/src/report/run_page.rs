@@ -14,7 +14,7 @@ use crate::error::Diagnostic;
 use crate::layout::{
     CROSS_SECTIONS_CSV, CROSS_SECTIONS_PARQUET, PID_PARQUET, PROVENANCE_JSON, RAW_JSON, SPECTRA_PARQUET,
 };
-use crate::plot::Format;
+use crate::plot::{Format, RunFigures};
 use crate::provenance::sha256_hex;
 
 /// The first line of a page made from `entry`: its fingerprint. Entries without an input
@@ -29,17 +29,35 @@ fn stamp(entry: &RunEntry) -> Option<String> {
 }
 
 /// Write the page of `entry` unless the page there was made from the same entry; true when
-/// written.
+/// written. Also returns the run's health figures (for a run with outputs), kept beside
+/// the page as `<run>.json` so that a kept page needs no table read.
 ///
 /// # Errors
 /// A page that cannot be written.
-pub fn write(out_dir: &Path, runs_dir: &Path, entry: &RunEntry) -> Result<bool, Diagnostic> {
+pub fn write(out_dir: &Path, runs_dir: &Path, entry: &RunEntry) -> Result<(bool, Option<RunFigures>), Diagnostic> {
     let path = runs_dir.join(format!("{}.html", entry.run));
+    let figures_path = runs_dir.join(format!("{}.json", entry.run));
     let stamp = stamp(entry);
     if let Some(s) = &stamp {
         if second_line(&path).as_deref() == Some(s.as_str()) {
-            return Ok(false);
+            if !entry.status.has_outputs() {
+                return Ok((false, None));
+            }
+            // `null` there: the table could not be read when the page was made.
+            let kept: Option<Option<RunFigures>> =
+                std::fs::read(&figures_path).ok().and_then(|b| serde_json::from_slice(&b).ok());
+            if let Some(kept) = kept {
+                return Ok((false, kept));
+            }
         }
+    }
+    let figures = entry
+        .status
+        .has_outputs()
+        .then(|| crate::plot::run_figures(&out_dir.join(&entry.run).join(CROSS_SECTIONS_PARQUET)).ok())
+        .flatten();
+    if entry.status.has_outputs() {
+        write_if_changed(&figures_path, &serde_json::to_vec(&figures).unwrap_or_default())?;
     }
     let html = render(out_dir, entry);
     // The stamp goes on the line after the doctype (which must come first).
@@ -48,7 +66,7 @@ pub fn write(out_dir: &Path, runs_dir: &Path, entry: &RunEntry) -> Result<bool, 
         None => html,
     };
     write_if_changed(&path, html.as_bytes())?;
-    Ok(true)
+    Ok((true, figures))
 }
 
 /// The second line of a file (the stamp of a page), read without reading the rest.
