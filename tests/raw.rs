@@ -327,6 +327,14 @@ fn peak_fit_background_agrees_with_side_bands_on_the_demo() {
     assert!((a - b).abs() < 3.0 * ea.hypot(eb), "side bands {a} ± {ea}, peak fit {b} ± {eb}");
     let fits = &raw_json(tmp.path(), "0201")["peak_fits"];
     assert!(fits.as_array().is_some_and(|f| !f.is_empty()), "{fits}");
+    // The fitted background is recorded and the spectrum plot shades it.
+    let d01 = fits.as_array().and_then(|f| f.iter().find(|x| x["detector"] == "D01")).expect("D01 fitted");
+    assert_eq!(d01["background"]["shape"], "linear", "{d01}");
+    let spectra = tmp.path().join("out/0201/spectra.parquet").to_string_lossy().to_string();
+    let o = xsflow(tmp.path(), &["plot", "spectrum", &spectra, "--detector", "D01", "--out", "sp.svg"]);
+    assert_eq!(o.status.code(), Some(0), "{}", text(&o));
+    let svg = std::fs::read_to_string(tmp.path().join("sp.svg")).expect("plot");
+    assert!(svg.contains("fitted background") && svg.contains("<polygon"), "{svg}");
 }
 
 /// Issue 11, defect 1: a detector with five states and a peak-fit background is a fit of

@@ -1,6 +1,7 @@
 //! One detector's energy spectrum from a run's spectra.parquet: counts per channel on a
 //! log axis, each state's window and side bands shaded (the gates are in the file's
-//! metadata), and the net counts of each state printed from the run's cross_sections table.
+//! metadata), where the background was fitted its fitted background shaded (from the run's
+//! raw.json), and the net counts of each state printed from the run's cross_sections table.
 
 use std::path::Path;
 
@@ -79,6 +80,32 @@ fn net_counts(input: &Path, detector: &str) -> Result<Vec<(String, i64, f64, f64
         .filter(|&i| detectors[i] == detector)
         .map(|i| (states[i].clone(), branches[i] as i64, net[i], err[i]))
         .collect())
+}
+
+/// The fitted background of `detector`'s peak fit, from the run's raw.json beside the
+/// spectra, sampled at 200 energies over the fit region (counts per channel); empty when
+/// the detector's background came from side bands.
+fn fitted_background(input: &Path, detector: &str) -> Vec<(f64, f64)> {
+    let dir = input.parent().unwrap_or(Path::new("."));
+    let Some(raw) = std::fs::read_to_string(dir.join(crate::layout::RAW_JSON))
+        .ok()
+        .and_then(|t| serde_json::from_str::<serde_json::Value>(&t).ok())
+    else {
+        return Vec::new();
+    };
+    let fits = raw["peak_fits"].as_array().map(Vec::as_slice).unwrap_or_default();
+    let Some(b) = fits.iter().find(|f| f["detector"].as_str() == Some(detector)).map(|f| &f["background"]) else {
+        return Vec::new();
+    };
+    let (Some(b0), Some(b1), Some(lo), Some(hi)) =
+        (b["b0"].as_f64(), b["b1"].as_f64(), b["region_mev"][0].as_f64(), b["region_mev"][1].as_f64())
+    else {
+        return Vec::new();
+    };
+    let exponential = b["shape"].as_str() == Some("exponential");
+    // The peak-fit model's background (stages::physics::peak_fit::PeakModel::value).
+    let at = |e: f64| if exponential { b0 * (-b1 * e).exp() } else { b0 + b1 * e };
+    (0..=200).map(|i| lo + (hi - lo) * f64::from(i) / 200.0).map(|e| (e, at(e))).collect()
 }
 
 /// One channel of a spectrum; the table lists only channels with counts.
@@ -187,9 +214,21 @@ pub fn spectrum(input: &Path, detector: Option<&str>, format: Format) -> Result<
                 .label(text)
                 .legend(move |(x, y)| Rectangle::new([(x, y - 5), (x + 14, y + 5)], colour.mix(0.4).filled()));
         }
+        // A peak fit's background, shaded from the floor up to it.
+        let background = fitted_background(input, &detector);
+        if let (Some(first), Some(last)) = (background.first(), background.last()) {
+            let mut area: Vec<(f64, f64)> = background.iter().map(|&(e, b)| (e, b.clamp(floor, y_hi))).collect();
+            area.extend([(last.0, floor), (first.0, floor)]);
+            chart
+                .draw_series(std::iter::once(Polygon::new(area, super::REFERENCE.mix(0.6).filled())))
+                .map_err(drawing)
+                .map_err(fail)?
+                .label("fitted background")
+                .legend(|(x, y)| Rectangle::new([(x, y - 5), (x + 14, y + 5)], super::REFERENCE.filled()));
+        }
         let steps = outline(&bins, width, floor);
         chart.draw_series(LineSeries::new(steps, INK.stroke_width(1))).map_err(drawing).map_err(fail)?;
-        if !gates.is_empty() {
+        if !gates.is_empty() || !background.is_empty() {
             legend(&mut chart, SeriesLabelPosition::UpperLeft, 14).map_err(fail)?;
         }
         root.present().map_err(drawing).map_err(fail)?;

@@ -26,6 +26,22 @@ pub struct PeakFitRecord {
     pub peaks: Vec<FittedPeak>,
     /// Per gate, the counts in the peak window.
     pub window_counts: Vec<f64>,
+    /// The fitted background, for plots.
+    pub background: FittedBackground,
+}
+
+/// The background of a peak fit in counts per channel at energy E (MeV): `linear`
+/// b₀ + b₁E or `exponential` b₀ exp(−b₁E), over the fit region.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct FittedBackground {
+    /// `linear` or `exponential`.
+    pub shape: &'static str,
+    /// b₀ in counts per channel.
+    pub b0: f64,
+    /// b₁ in counts per channel per MeV (linear) or 1/MeV (exponential).
+    pub b1: f64,
+    /// The fit region's first and last channel energies, MeV.
+    pub region_mev: [f64; 2],
 }
 
 /// One state's peak in a peak fit.
@@ -126,7 +142,17 @@ pub(super) fn fit_detector(
     }
     let bin = det.cal.gain_mev_per_channel;
     let fit = fit_peaks(&model, &x, &y, &sigma, &p0, bin);
+    let shape = match background {
+        Background::Linear => "linear",
+        Background::Exponential => "exponential",
+    };
     Ok(PeakFitRecord {
+        background: FittedBackground {
+            shape,
+            b0: fit.params[0],
+            b1: fit.params[1],
+            region_mev: [x[0], x[x.len() - 1]],
+        },
         detector: det.id.clone(),
         window_counts: det
             .gates
