@@ -293,8 +293,9 @@ pub enum Command {
         #[arg(long = "pulser-rate-per-s", default_value_t = 10.0)]
         pulser_rate_per_s: f64,
     },
-    /// Draw a plot (SVG) from output tables alone: the angular distribution with its fits
-    /// and pulls, the ratio to Rutherford, or a run's energy spectrum with its gates.
+    /// Draw a plot (SVG, or PNG for a `.png` file) from output tables alone: the angular
+    /// distribution with its fits and pulls, the ratio to Rutherford, a run's spectrum with
+    /// its gates or ΔE–E histogram, run health, or an optical fit's landscape of minima.
     Plot {
         /// What to draw.
         #[arg(value_enum)]
@@ -305,7 +306,7 @@ pub enum Command {
         /// (run-health) or a fit folder or its fit.json (fit-landscape); for the first two
         /// also a `reduce` output folder (its combined table, or every run's table).
         input: PathBuf,
-        /// The SVG file to write.
+        /// The file to write: PNG when its name ends in `.png`, SVG otherwise.
         #[arg(long)]
         out: PathBuf,
         /// A fit folder, or a folder of them, whose curves are drawn; default the `fits`

@@ -1,5 +1,6 @@
-//! Plots of the output tables, drawn as SVG with `plotters`: the angular distribution with
-//! its fits and pulls, the ratio to Rutherford, and a run's energy spectrum with its gates.
+//! Plots of the output tables, drawn with `plotters` as SVG or PNG: the angular distribution
+//! with its fits and pulls, the ratio to Rutherford, a run's energy spectrum with its gates
+//! and its ΔE–E histogram, run health, and an optical fit's landscape of minima.
 //! Everything drawn is read from the tables `reduce` and `fit` write, so a plot never
 //! re-reduces. The drawing code lives here only; one file per kind of plot.
 //!
@@ -41,8 +42,9 @@ pub enum Kind {
     /// A telescope's ΔE–E histogram (shade by log counts) with its particle-identification
     /// polygon, from a list-mode run's pid.parquet.
     Pid,
-    /// Charge, live fraction and (with `--detector`) net counts per µC versus run, from a
-    /// `batch` output folder's catalogue, with the runs far from the median marked.
+    /// Charge, live fraction, (with `--detector`) net counts per µC and the monitor over
+    /// absolute luminosity versus run, from a `batch` output folder's catalogue, with the
+    /// runs far from the median marked.
     RunHealth,
     /// χ² of every distinct minimum of an optical-model fit against its real depth and its
     /// real volume integral per nucleon pair, from a fit folder or its fit.json.
