@@ -165,7 +165,7 @@ impl Fit {
         };
         let mut warnings = Vec::new();
         let norm = self.normalisation(data, &mut warnings)?;
-        let measured = Measured { y: data.dsdo_cm_mb_sr.clone(), sigma: data.err_mb_sr.clone() };
+        let measured = Measured::gaussian(data.dsdo_cm_mb_sr.clone(), data.err_mb_sr.clone());
         let theta_rad: Vec<f64> = data.theta_cm_deg.iter().map(|d| d.to_radians()).collect();
         if let Model::Curve(c) = &self.model {
             if let Some(t) = data.theta_cm_deg.iter().find(|t| c.at(**t).is_none()) {
