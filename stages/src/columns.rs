@@ -88,6 +88,9 @@ pub struct CrossSectionRow {
     pub stat_err_lab_mb_sr: f64,
     /// Point-to-point systematic standard uncertainty of dσ/dΩ_lab in mb/sr.
     pub sys_err_lab_mb_sr: f64,
+    /// dσ/dΩ_lab of one net count, mb/sr (1/(A ε f_live L ΔΩ)): turns a cross section into
+    /// expected counts for a likelihood fit.
+    pub dsdo_lab_mb_sr_per_count: f64,
     /// Lower end of the interval of a peak consistent with zero as dσ/dΩ_lab in mb/sr.
     pub dsdo_lab_lower_mb_sr: Option<f64>,
     /// Upper end of that interval as dσ/dΩ_lab in mb/sr.
@@ -98,6 +101,8 @@ pub struct CrossSectionRow {
     pub stat_err_mb_sr: f64,
     /// Point-to-point systematic standard uncertainty of dσ/dΩ_cm in mb/sr.
     pub sys_err_mb_sr: f64,
+    /// dσ/dΩ_cm of one net count, mb/sr.
+    pub dsdo_cm_mb_sr_per_count: Option<f64>,
     /// Lower end of the interval of a peak consistent with zero as dσ/dΩ_cm in mb/sr.
     pub dsdo_cm_lower_mb_sr: Option<f64>,
     /// Upper end of that interval as dσ/dΩ_cm in mb/sr.

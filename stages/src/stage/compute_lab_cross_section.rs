@@ -13,6 +13,8 @@
 //! Where `subtract_background` gave a peak consistent with zero an interval on its signal
 //! counts (`counts_net_lower`, `counts_net_upper`), the same factor k = dσ/dΩ per count turns
 //! it into `dsdo_lab_lower_mb_sr` and `dsdo_lab_upper_mb_sr` (empty for the other rows).
+//! The factor itself is `dsdo_lab_mb_sr_per_count`, so that a fit can turn a model cross
+//! section back into expected counts.
 
 use polars::prelude::DataFrame;
 use schemars::JsonSchema;
@@ -134,7 +136,7 @@ impl Stage for ComputeLabCrossSection {
         INPUTS.to_vec()
     }
     fn adds(&self) -> Vec<&'static str> {
-        vec!["dsdo_lab_mb_sr", "stat_err_lab_mb_sr", "sys_err_lab_mb_sr"]
+        vec!["dsdo_lab_mb_sr", "stat_err_lab_mb_sr", "sys_err_lab_mb_sr", "dsdo_lab_mb_sr_per_count"]
     }
     fn run(&self, table: DataFrame, _ctx: &RunContext<'_>) -> Result<DataFrame, StageError> {
         let cols = INPUTS.iter().map(|name| f64_values(&table, name)).collect::<Result<Vec<_>, _>>()?;
@@ -168,6 +170,7 @@ impl Stage for ComputeLabCrossSection {
                 ("dsdo_lab_mb_sr", points.iter().map(|p| p.dsdo_mb_sr).collect()),
                 ("stat_err_lab_mb_sr", points.iter().map(|p| p.stat_err_mb_sr).collect()),
                 ("sys_err_lab_mb_sr", points.iter().map(|p| p.sys_err_mb_sr).collect()),
+                ("dsdo_lab_mb_sr_per_count", per_count.clone()),
             ],
         )?;
         with_scaled_optional_columns(table, &INTERVAL_COLUMNS, &per_count)

@@ -3,7 +3,8 @@
 //! `sys_err_mb_sr` and, unless `rutherford: none`, `dsdo_rutherford_cm_mb_sr` and
 //! `ratio_rutherford` (empty for inelastic states and other reactions); where the table has
 //! the interval of a peak consistent with zero (`dsdo_lab_lower_mb_sr`,
-//! `dsdo_lab_upper_mb_sr`), the same in the CM frame (`dsdo_cm_lower_mb_sr`, `dsdo_cm_upper_mb_sr`).
+//! `dsdo_lab_upper_mb_sr`), the same in the CM frame (`dsdo_cm_lower_mb_sr`, `dsdo_cm_upper_mb_sr`),
+//! and the cross section of one net count, `dsdo_cm_mb_sr_per_count`.
 
 use polars::prelude::{Column, DataFrame};
 use schemars::JsonSchema;
@@ -138,7 +139,11 @@ impl Stage for TransformToCm {
         // The interval of a peak consistent with zero, where compute_lab_cross_section gave one.
         let mut table = with_scaled_optional_columns(
             table,
-            &[("dsdo_lab_lower_mb_sr", "dsdo_cm_lower_mb_sr"), ("dsdo_lab_upper_mb_sr", "dsdo_cm_upper_mb_sr")],
+            &[
+                ("dsdo_lab_mb_sr_per_count", "dsdo_cm_mb_sr_per_count"),
+                ("dsdo_lab_lower_mb_sr", "dsdo_cm_lower_mb_sr"),
+                ("dsdo_lab_upper_mb_sr", "dsdo_cm_upper_mb_sr"),
+            ],
             &j,
         )?;
         if let Some((sigma, ratio, conv)) = rutherford {
