@@ -98,7 +98,10 @@ pub const COUNT_COLUMNS: [&str; 4] = ["counts_gross", "counts_background", "dsdo
 
 /// The counts of every row, or an empty vector when the table lacks `counts_gross` or
 /// `dsdo_cm_mb_sr_per_count`; a row whose factor is empty or not positive has none.
-fn row_counts(table: &DataFrame) -> Result<Vec<Option<RowCounts>>, StageError> {
+///
+/// # Errors
+/// A count column that is not numeric or holds a value that is not finite.
+pub fn row_counts(table: &DataFrame) -> Result<Vec<Option<RowCounts>>, StageError> {
     let (Some(gross), Some(per_count)) = (
         table::optional_f64_values(table, "counts_gross")?,
         table::optional_f64_values(table, "dsdo_cm_mb_sr_per_count")?,

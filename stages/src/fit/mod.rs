@@ -31,7 +31,7 @@ pub use config::{
     BoundsConfig, FitEntryConfig, FitModelConfig, FitSettings, LikelihoodChoice, NormalisationMode,
     POISSON_BELOW_COUNTS,
 };
-pub use data::{CurveTable, FitData, RowCounts, COUNT_COLUMNS, FIT_COLUMNS, RUTHERFORD_CONVENTION};
+pub use data::{row_counts, CurveTable, FitData, RowCounts, COUNT_COLUMNS, FIT_COLUMNS, RUTHERFORD_CONVENTION};
 pub use models::{OpticalKey, FIT_ACCURACY};
 pub use report::{FitReport, MinimumReport, NumericsReport, ParameterReport, PointReport, ProfileReport};
 
