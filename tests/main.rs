@@ -10,6 +10,7 @@ mod config;
 mod dead_time;
 mod fitting;
 mod kinematics;
+mod low_counts;
 mod nist;
 mod plot;
 mod provenance;

@@ -116,9 +116,10 @@ fn identical_inputs_give_identical_bytes() {
     let files_a = files_below(&a.path().join("out"));
     assert_eq!(
         files_a.len(),
-        33,
+        37,
         "three files for each of four runs, five for the combined distribution and its plot, five for each of two \
-         fits and the optical fit's landscape of minima, and the report's index and four run pages: {files_a:?}"
+         fits and the optical fit's landscape of minima, and the report's index and four run pages with their \
+         health figures: {files_a:?}"
     );
     for fa in files_a {
         let rel = fa.strip_prefix(a.path()).expect("below the scratch folder");

@@ -297,6 +297,7 @@ fn fit_data(theta: Vec<f64>, y: Vec<f64>, err: Vec<f64>, norm_rel_err: f64) -> F
         norm_rel_err: vec![norm_rel_err; n],
         labels: (0..n).map(|i| format!("p{i}")).collect(),
         rutherford_convention: Default::default(),
+        counts: Vec::new(),
     }
 }
 

@@ -489,6 +489,8 @@ pub fn combine_and_write(
             return Ok(None);
         };
         let shared = f("target_atoms_rel_err").unwrap_or_else(|_| vec![0.0; t.height()]);
+        let counts = stages::fit::row_counts(t).map_err(|e| fail(e.to_string()))?;
+        let few = |c: &stages::fit::RowCounts| c.upper_limit || c.gross < plan.combine.poisson_below_counts;
         for i in 0..t.height() {
             rows.push(stages::combine::Row {
                 run: run[i].clone(),
@@ -501,6 +503,7 @@ pub fn combine_and_write(
                 sys_err_mb_sr: sys[i],
                 norm_rel_err: norm[i],
                 shared_rel_err: shared[i],
+                counts: counts.get(i).copied().flatten().filter(few),
             });
         }
     }

@@ -99,6 +99,7 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
         labels: (0..60).map(|i| format!("p{i}")).collect(),
         theta_cm_deg: theta,
         rutherford_convention: Default::default(),
+        counts: Vec::new(),
     };
     let config: FitModelConfig = serde_yaml::from_str(FIT)?;
     let fit = config.build(None).map_err(|p| format!("{p:?}"))?;

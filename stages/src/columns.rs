@@ -36,6 +36,15 @@ pub struct CrossSectionRow {
     pub counts_net: f64,
     /// Standard uncertainty of the net counts (Poisson on gross, background error).
     pub counts_net_err: f64,
+    /// Lower end of the Feldman–Cousins confidence interval on the signal counts (the
+    /// `subtract_background` stage's `confidence_level`, 68.27 % by default), for a peak
+    /// consistent with zero (`upper_limit`); empty otherwise.
+    pub counts_net_lower: Option<f64>,
+    /// Upper end of that interval; empty where `upper_limit` is false.
+    pub counts_net_upper: Option<f64>,
+    /// True where the net counts are below `interval_below_sigmas` standard errors: the
+    /// signal is not established, quote the interval (an upper limit when its lower end is 0).
+    pub upper_limit: bool,
     /// Live fraction of the acquisition, in (0, 1].
     pub live_fraction: f64,
     /// Standard uncertainty of the live fraction.
@@ -79,12 +88,25 @@ pub struct CrossSectionRow {
     pub stat_err_lab_mb_sr: f64,
     /// Point-to-point systematic standard uncertainty of dσ/dΩ_lab in mb/sr.
     pub sys_err_lab_mb_sr: f64,
+    /// dσ/dΩ_lab of one net count, mb/sr (1/(A ε f_live L ΔΩ)): turns a cross section into
+    /// expected counts for a likelihood fit.
+    pub dsdo_lab_mb_sr_per_count: f64,
+    /// Lower end of the interval of a peak consistent with zero as dσ/dΩ_lab in mb/sr.
+    pub dsdo_lab_lower_mb_sr: Option<f64>,
+    /// Upper end of that interval as dσ/dΩ_lab in mb/sr.
+    pub dsdo_lab_upper_mb_sr: Option<f64>,
     /// CM differential cross section dσ/dΩ_cm in mb/sr.
     pub dsdo_cm_mb_sr: f64,
     /// Statistical standard uncertainty of dσ/dΩ_cm in mb/sr.
     pub stat_err_mb_sr: f64,
     /// Point-to-point systematic standard uncertainty of dσ/dΩ_cm in mb/sr.
     pub sys_err_mb_sr: f64,
+    /// dσ/dΩ_cm of one net count, mb/sr.
+    pub dsdo_cm_mb_sr_per_count: Option<f64>,
+    /// Lower end of the interval of a peak consistent with zero as dσ/dΩ_cm in mb/sr.
+    pub dsdo_cm_lower_mb_sr: Option<f64>,
+    /// Upper end of that interval as dσ/dΩ_cm in mb/sr.
+    pub dsdo_cm_upper_mb_sr: Option<f64>,
     /// Rutherford dσ/dΩ_cm at the same CM angle, mb/sr (elastic states; empty otherwise).
     pub dsdo_rutherford_cm_mb_sr: Option<f64>,
     /// dσ/dΩ_cm over Rutherford (elastic states; empty otherwise).

@@ -25,6 +25,21 @@
 //! covariance. The combined table's `sys_err_mb_sr` holds √(Σ_D s_kD² + Σ_r a_rk² ν_r²)
 //! (what a fit with diagonal errors should use) and `norm_rel_err` the shared part b_k/y_k,
 //! which a fit takes as its normalisation prior.
+//!
+//! Rows with few counts (the pipeline passes their counts: fewer gross counts than the
+//! `combine:` section's `poisson_below_counts`, or flagged `upper_limit`) are weighted by
+//! the Poisson likelihood instead of their own errors, whose size follows their fluctuation
+//! (a downward one gets a small error and a large weight: the weighted mean is biased low,
+//! common practice). For rows i of one point with gross counts n_i on a known background b_i
+//! and k_i mb/sr per net count (y_i = k_i (n_i − b_i)), the likelihood of one cross section
+//! σ, n_i ~ Poisson(σ/k_i + b_i), is maximal where Σ_i (n_i/(σ/k_i + b_i) − 1)/k_i = 0; its
+//! solution with b_i = 0 is the mean weighted by exposure, σ̂ = Σ n_i / Σ (1/k_i). The rows
+//! enter the weights above with the Poisson variance at that pooled estimate,
+//!     v_i = k_i² (σ̂/k_i + b_i),   σ̂ = max(0, Σ (n_i − b_i)) / Σ (1/k_i),
+//! which gives exactly that maximum-likelihood estimate for b_i = 0 and equal σ_p2p, and its
+//! first-order form otherwise (the score equation with the variances at σ̂; Baker and
+//! Cousins, Nucl. Instrum. Methods 221 (1984) 437, section 2, for the likelihood). The
+//! statistical error is √(Σ c_i² v_i), the expected (Fisher) information of the counts.
 
 /// The `combine:` section of a config.
 #[derive(Debug, Clone, serde::Deserialize, schemars::JsonSchema)]
@@ -34,6 +49,15 @@ pub struct CombineConfig {
     /// 0.05°).
     #[serde(default = "default_tolerance")]
     pub angle_tolerance_deg: f64,
+    /// Rows with fewer gross counts than this (or flagged `upper_limit`) are weighted by the
+    /// Poisson likelihood of their counts instead of their own errors (module docs). Counts,
+    /// default 20; 0 turns it off.
+    #[serde(default = "default_poisson_below_counts")]
+    pub poisson_below_counts: f64,
+}
+
+fn default_poisson_below_counts() -> f64 {
+    crate::fit::POISSON_BELOW_COUNTS
 }
 
 fn default_tolerance() -> f64 {
@@ -42,7 +66,7 @@ fn default_tolerance() -> f64 {
 
 impl Default for CombineConfig {
     fn default() -> Self {
-        CombineConfig { angle_tolerance_deg: default_tolerance() }
+        CombineConfig { angle_tolerance_deg: default_tolerance(), poisson_below_counts: default_poisson_below_counts() }
     }
 }
 
@@ -69,6 +93,9 @@ pub struct Row {
     pub norm_rel_err: f64,
     /// Its part shared by every run.
     pub shared_rel_err: f64,
+    /// The counts of a row with few counts, to be weighted by the Poisson likelihood
+    /// (module docs); `None`: by its own statistical error.
+    pub counts: Option<crate::fit::RowCounts>,
 }
 
 /// One point of the combined distribution.
@@ -173,7 +200,8 @@ pub fn combine(rows: &[Row], tolerance_deg: f64) -> Result<(Vec<Point>, Vec<f64>
     let mut b = vec![0.0; n];
     let mut points = Vec::with_capacity(n);
     for (k, g) in groups.iter().enumerate() {
-        let c = row_coefficients(rows, g);
+        let sd = statistical_errors(rows, g);
+        let c = row_coefficients(rows, g, &sd);
         let mean = |f: &dyn Fn(&Row) -> f64| {
             // The first row's value plus the weighted mean offset, so that rows with one value
             // (the same angle) give exactly that value.
@@ -181,7 +209,7 @@ pub fn combine(rows: &[Row], tolerance_deg: f64) -> Result<(Vec<Point>, Vec<f64>
             first + g.iter().zip(&c).map(|(&i, ci)| ci * (f(&rows[i]) - first)).sum::<f64>()
         };
         let y = mean(&|r| r.dsdo_cm_mb_sr);
-        let stat = g.iter().zip(&c).map(|(&i, ci)| (ci * rows[i].stat_err_mb_sr).powi(2)).sum::<f64>().sqrt();
+        let stat = c.iter().zip(&sd).map(|(ci, s)| (ci * s).powi(2)).sum::<f64>().sqrt();
         for (&i, ci) in g.iter().zip(&c) {
             let r = &rows[i];
             let ri = index(&runs, &r.run);
@@ -216,10 +244,34 @@ pub fn combine(rows: &[Row], tolerance_deg: f64) -> Result<(Vec<Point>, Vec<f64>
     Ok((points, cov))
 }
 
+/// The statistical error of each row of one point: σ_stat,i, or for a row with counts the
+/// root of the Poisson variance at the pooled estimate of the rows with counts (module
+/// docs), when that is positive.
+fn statistical_errors(rows: &[Row], group: &[usize]) -> Vec<f64> {
+    let counted: Vec<crate::fit::RowCounts> = group.iter().filter_map(|&i| rows[i].counts).collect();
+    let exposure: f64 = counted.iter().map(|c| 1.0 / c.mb_sr_per_count).sum();
+    let net: f64 = counted.iter().map(|c| c.gross - c.background).sum();
+    let pooled_mb_sr = if exposure > 0.0 { net.max(0.0) / exposure } else { 0.0 };
+    group
+        .iter()
+        .map(|&i| match rows[i].counts {
+            Some(c) => {
+                let v = c.mb_sr_per_count * (pooled_mb_sr + c.mb_sr_per_count * c.background);
+                if v > 0.0 {
+                    v.sqrt()
+                } else {
+                    rows[i].stat_err_mb_sr
+                }
+            }
+            None => rows[i].stat_err_mb_sr,
+        })
+        .collect()
+}
+
 /// The coefficient c_i of each row of one point (module docs): inverse-variance weights
-/// within each detector (statistics only), then between detectors (statistics and
-/// point-to-point). Sums to 1.
-fn row_coefficients(rows: &[Row], group: &[usize]) -> Vec<f64> {
+/// within each detector (statistics only, errors `sd` in the order of `group`), then
+/// between detectors (statistics and point-to-point). Sums to 1.
+fn row_coefficients(rows: &[Row], group: &[usize], sd: &[f64]) -> Vec<f64> {
     let mut detectors: Vec<&str> = group.iter().map(|&i| rows[i].detector.as_str()).collect();
     detectors.sort_unstable();
     detectors.dedup();
@@ -227,14 +279,12 @@ fn row_coefficients(rows: &[Row], group: &[usize]) -> Vec<f64> {
     let mut per_detector = Vec::with_capacity(detectors.len());
     for det in &detectors {
         let members: Vec<usize> = (0..group.len()).filter(|&j| rows[group[j]].detector == *det).collect();
-        let u = inverse_variance_weights(
-            &members.iter().map(|&j| rows[group[j]].stat_err_mb_sr.powi(2)).collect::<Vec<_>>(),
-        );
+        let u = inverse_variance_weights(&members.iter().map(|&j| sd[j].powi(2)).collect::<Vec<_>>());
         let total: f64 = u.iter().sum();
         let (mut stat2, mut p2p) = (0.0, 0.0);
         for (&j, uj) in members.iter().zip(&u) {
             within[j] = uj / total;
-            stat2 += (within[j] * rows[group[j]].stat_err_mb_sr).powi(2);
+            stat2 += (within[j] * sd[j]).powi(2);
             p2p += within[j] * rows[group[j]].sys_err_mb_sr;
         }
         per_detector.push((members, stat2 + p2p * p2p));
@@ -273,6 +323,7 @@ mod tests {
             sys_err_mb_sr: 0.0,
             norm_rel_err: 0.05,
             shared_rel_err: 0.03,
+            counts: None,
         }
     }
 
@@ -283,6 +334,49 @@ mod tests {
     /// `at`, with the normalisation errors left out (set to zero).
     fn plain_at(detector: &str, sys: f64, r: Row) -> Row {
         Row { norm_rel_err: 0.0, shared_rel_err: 0.0, ..at(detector, sys, r) }
+    }
+
+    #[test]
+    fn rows_with_few_counts_combine_without_the_bias_of_a_weighted_mean() {
+        // 4000 seeded experiments of one angle measured in four runs of exposures 2, 1, 0.5
+        // and 0.25 counts per mb/sr (k = 0.5, 1, 2, 4 mb/sr per count) on a background of 0.5
+        // counts, truth 10 mb/sr: 20, 10, 5 and 2.5 signal counts expected. Combined by
+        // their own errors (`net_counts`) the mean is pulled low; by the Poisson likelihood
+        // (module docs) it is not. One experiment holds about 39 gross counts, its estimate
+        // scatters by about 16 %, the mean over 4000 by 0.26 %: 1 % is four standard errors.
+        // Measured (seed 13): −6.85 % by the errors, −0.05 % by the likelihood.
+        use crate::fit::RowCounts;
+        use crate::physics::synthetic::Rng;
+        use crate::stage::subtract_background::net_counts;
+        let (truth, background) = (10.0, 0.5);
+        let per_count = [0.5, 1.0, 2.0, 4.0];
+        let mut rng = Rng::new(13);
+        let (mut by_errors, mut by_likelihood) = (0.0, 0.0);
+        let experiments = 4000;
+        for _ in 0..experiments {
+            let rows: Vec<Row> = per_count
+                .iter()
+                .enumerate()
+                .map(|(r, k)| {
+                    let gross = rng.poisson(truth / k + background) as f64;
+                    let (net, err) = net_counts(gross, background, background.sqrt());
+                    let counts = Some(RowCounts { gross, background, mb_sr_per_count: *k, upper_limit: false });
+                    Row { counts, ..plain_at("D1", 0.0, row(&format!("r{r}"), 150.0, k * net, k * err)) }
+                })
+                .collect();
+            let plain: Vec<Row> = rows.iter().map(|r| Row { counts: None, ..r.clone() }).collect();
+            by_errors += combine(&plain, 0.05).expect("combines").0[0].dsdo_cm_mb_sr;
+            by_likelihood += combine(&rows, 0.05).expect("combines").0[0].dsdo_cm_mb_sr;
+        }
+        let n = f64::from(experiments);
+        let (bias_errors, bias_likelihood) = (by_errors / n / truth - 1.0, by_likelihood / n / truth - 1.0);
+        eprintln!(
+            "combination bias: {:+.2} % by the errors, {:+.2} % by the likelihood",
+            100.0 * bias_errors,
+            100.0 * bias_likelihood
+        );
+        assert!(bias_likelihood.abs() < 0.01, "{bias_likelihood}");
+        assert!(bias_errors < -0.03, "{bias_errors}");
     }
 
     /// Issue 11, defect 4: a row without a statistical error used to take the smallest

@@ -27,15 +27,7 @@ pub fn column<'a>(table: &'a DataFrame, name: &str) -> Result<&'a Column, StageE
 /// or a column that is not numeric.
 pub fn f64_values(table: &DataFrame, name: &str) -> Result<Vec<f64>, StageError> {
     let col = column(table, name)?;
-    if !col.dtype().is_primitive_numeric() {
-        return Err(StageError::BadValue {
-            row: 1,
-            column: name.to_string(),
-            value: format!("a column of type {}", col.dtype()),
-            expected: "numbers".into(),
-        });
-    }
-    let cast = col.cast(&DataType::Float64)?;
+    let cast = as_f64(col, name)?;
     cast.f64()?
         .iter()
         .enumerate()
@@ -49,6 +41,58 @@ pub fn f64_values(table: &DataFrame, name: &str) -> Result<Vec<f64>, StageError>
             }),
         })
         .collect()
+}
+
+/// A numeric column cast to f64.
+fn as_f64(col: &Column, name: &str) -> Result<Column, StageError> {
+    if !col.dtype().is_primitive_numeric() {
+        return Err(StageError::BadValue {
+            row: 1,
+            column: name.to_string(),
+            value: format!("a column of type {}", col.dtype()),
+            expected: "numbers".into(),
+        });
+    }
+    Ok(col.cast(&DataType::Float64)?)
+}
+
+/// A column that may be absent and may hold empty cells: `None` without the column, else one
+/// value per row (`None` for an empty cell).
+///
+/// # Errors
+/// A column that is not numeric, or a value that is not finite.
+pub fn optional_f64_values(table: &DataFrame, name: &str) -> Result<Option<Vec<Option<f64>>>, StageError> {
+    let Ok(col) = table.column(name) else { return Ok(None) };
+    let cast = as_f64(col, name)?;
+    let values: Vec<Option<f64>> = cast.f64()?.iter().collect();
+    if let Some(i) = values.iter().position(|v| v.is_some_and(|x| !x.is_finite())) {
+        return Err(StageError::BadValue {
+            row: i + 1,
+            column: name.to_string(),
+            value: format!("{:?}", values[i]),
+            expected: "a finite number or an empty cell".into(),
+        });
+    }
+    Ok(Some(values))
+}
+
+/// Add each optional column `from` that the table has, multiplied row by row by `factors`,
+/// under the name `to` (empty cells stay empty); columns the table lacks are skipped.
+///
+/// # Errors
+/// As [`optional_f64_values`], or a table operation that fails.
+pub fn with_scaled_optional_columns(
+    mut table: DataFrame,
+    pairs: &[(&str, &str)],
+    factors: &[f64],
+) -> Result<DataFrame, StageError> {
+    for (from, to) in pairs {
+        if let Some(values) = optional_f64_values(&table, from)? {
+            let scaled: Vec<Option<f64>> = values.iter().zip(factors).map(|(v, k)| v.map(|v| v * k)).collect();
+            table.with_column(Column::new((*to).into(), scaled))?;
+        }
+    }
+    Ok(table)
 }
 
 /// A column as text (numbers are written in their shortest form); a null is an error.

@@ -101,13 +101,15 @@ pub fn read_data(path: &Path) -> Result<(DataFrame, Vec<PathBuf>), Diagnostic> {
     Ok((stack(tables).map_err(|e| Diagnostic::new(path, "", e.to_string()))?, files))
 }
 
-/// Stack tables with the columns the fit reads (and `run`, `detector`) in that order.
+/// Stack tables with the columns the fit reads (and `run`, `detector`, and the counts
+/// where present) in that order.
 ///
 /// # Errors
 /// A table without one of the columns, or columns of different types.
 pub fn stack(tables: Vec<DataFrame>) -> Result<DataFrame, FitError> {
     let mut names: Vec<&str> = vec!["run", "detector", "members", stages::fit::RUTHERFORD_CONVENTION];
     names.extend(stages::fit::FIT_COLUMNS);
+    names.extend(stages::fit::COUNT_COLUMNS);
     let mut out: Option<DataFrame> = None;
     for t in tables {
         let cols = names

@@ -33,6 +33,13 @@ pub fn render_text(r: &FitReport) -> String {
         r.chi2_per_ndf.map_or_else(|| "-".into(), |x| format!("{x:.4}")),
         opt(r.p_value, 3)
     );
+    if r.points_poisson > 0 {
+        let _ = writeln!(
+            s,
+            "{} point(s) by the Poisson likelihood ratio on counts (Baker–Cousins), {} by the χ²",
+            r.points_poisson, r.points_gaussian
+        );
+    }
     let _ = writeln!(s, "{:<24} {:>14} {:>12} {:>12}", "parameter", "value", "error", "start");
     for p in &r.parameters {
         let _ = writeln!(

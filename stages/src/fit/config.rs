@@ -60,7 +60,36 @@ pub struct FitSettings {
     /// Fit only the points with θ_cm in [low, high] degrees; default all.
     #[serde(default)]
     pub theta_cm_range_deg: Option<[f64; 2]>,
+    /// Which statistic the points enter through: `auto` (default) the Poisson likelihood
+    /// ratio (Baker and Cousins 1984) on the counts of rows with fewer gross counts than
+    /// `poisson_below_counts`, the χ² elsewhere; `poisson` on the counts of every row that
+    /// has them; `gaussian` the χ² everywhere. Rows flagged `upper_limit` always enter
+    /// through the likelihood when their counts are known. A table without counts (a
+    /// combined distribution) is fitted by the χ².
+    #[serde(default)]
+    pub likelihood: Option<LikelihoodChoice>,
+    /// Gross counts below which `likelihood: auto` uses the Poisson likelihood for a row.
+    /// Counts, default 20, accepted > 0.
+    #[serde(default)]
+    pub poisson_below_counts: Option<f64>,
 }
+
+/// The statistic of a fit's points.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Deserialize, Serialize, JsonSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum LikelihoodChoice {
+    /// Poisson likelihood for rows below `poisson_below_counts` gross counts, χ² elsewhere.
+    #[default]
+    Auto,
+    /// χ² for every row (except `upper_limit` rows with counts).
+    Gaussian,
+    /// Poisson likelihood for every row with counts.
+    Poisson,
+}
+
+/// Default of `poisson_below_counts`: below about 20 counts the Poisson distribution is
+/// visibly skewed and the χ² with √n errors biased (common practice).
+pub const POISSON_BELOW_COUNTS: f64 = 20.0;
 
 /// Bounds of a free parameter (either may be omitted).
 #[derive(Debug, Clone, Copy, Default, Deserialize, JsonSchema)]
@@ -231,6 +260,9 @@ impl FitModelConfig {
         if !c.problems.is_empty() {
             return Err(c.problems);
         }
+        if let Some(n) = s.poisson_below_counts {
+            c.require(n > 0.0 && n.is_finite(), "fit.poisson_below_counts", n, "a count > 0, e.g. 20");
+        }
         if let Some([a, b]) = s.theta_cm_range_deg {
             c.require(
                 a < b && a.is_finite() && b.is_finite(),
@@ -251,6 +283,8 @@ impl FitModelConfig {
             mode,
             prior_rel_err: s.normalisation_rel_err,
             profile: s.profile.clone(),
+            likelihood: s.likelihood.unwrap_or_default(),
+            poisson_below_counts: s.poisson_below_counts.unwrap_or(POISSON_BELOW_COUNTS),
             options: FitOptions { max_iterations: s.max_iterations.unwrap_or(200), ..FitOptions::default() },
         })
     }

@@ -1,7 +1,7 @@
 //! The data a fit reads: the measured distribution of one state from a reduced (or
 //! combined) table, with the Rutherford convention of its ratios, and theory curve tables.
 
-use polars::prelude::DataFrame;
+use polars::prelude::{DataFrame, DataType};
 
 use crate::physics::rutherford::Convention;
 use crate::table;
@@ -71,10 +71,60 @@ pub struct FitData {
     pub norm_rel_err: Vec<f64>,
     /// Row labels `run/detector`.
     pub labels: Vec<String>,
+    /// Per row, its counts where the table gives them (per-run reduced tables; a combined
+    /// distribution has none); empty: no row has counts.
+    pub counts: Vec<Option<RowCounts>>,
     /// The Rutherford cross section the table's `ratio_rutherford` divides by (its
     /// `rutherford_convention` column; relativistic, the default, when it has none): a
     /// Rutherford model and every curve's ratio use the same one.
     pub rutherford_convention: Convention,
+}
+
+/// The counts behind one reduced row, for a fit by the Poisson likelihood.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct RowCounts {
+    /// Gross counts in the peak window.
+    pub gross: f64,
+    /// Background counts under the peak (0 where the table has none).
+    pub background: f64,
+    /// dσ/dΩ_cm of one net count, mb/sr.
+    pub mb_sr_per_count: f64,
+    /// The row's net counts are consistent with zero (`subtract_background`).
+    pub upper_limit: bool,
+}
+
+/// Columns a fit reads, when present, to fit rows on their counts.
+pub const COUNT_COLUMNS: [&str; 4] = ["counts_gross", "counts_background", "dsdo_cm_mb_sr_per_count", "upper_limit"];
+
+/// The counts of every row, or an empty vector when the table lacks `counts_gross` or
+/// `dsdo_cm_mb_sr_per_count`; a row whose factor is empty or not positive has none.
+///
+/// # Errors
+/// A count column that is not numeric or holds a value that is not finite.
+pub fn row_counts(table: &DataFrame) -> Result<Vec<Option<RowCounts>>, StageError> {
+    let (Some(gross), Some(per_count)) = (
+        table::optional_f64_values(table, "counts_gross")?,
+        table::optional_f64_values(table, "dsdo_cm_mb_sr_per_count")?,
+    ) else {
+        return Ok(Vec::new());
+    };
+    let background = table::optional_f64_values(table, "counts_background")?;
+    let limited: Vec<bool> = match table.column("upper_limit") {
+        Ok(c) => c.cast(&DataType::Boolean)?.bool()?.iter().map(|v| v.unwrap_or(false)).collect(),
+        Err(_) => vec![false; table.height()],
+    };
+    Ok((0..table.height())
+        .map(|i| {
+            let (g, k) = (gross[i]?, per_count[i]?);
+            let b = background.as_ref().and_then(|b| b[i]).unwrap_or(0.0);
+            (g >= 0.0 && k > 0.0).then_some(RowCounts {
+                gross: g,
+                background: b.max(0.0),
+                mb_sr_per_count: k,
+                upper_limit: limited[i],
+            })
+        })
+        .collect())
 }
 
 /// Columns the fit reads from the reduced table.
@@ -133,6 +183,7 @@ impl FitData {
         );
         let label_of = |name: &str| table::str_values(table, name).ok();
         let (runs, detectors, members) = (label_of("run"), label_of("detector"), label_of("members"));
+        let counts = row_counts(table)?;
         let mut rows = Vec::new();
         for (i, s) in states.iter().enumerate() {
             if s != state {
@@ -168,7 +219,7 @@ impl FitData {
                 (_, _, Some(m)) => m[i].clone(),
                 _ => format!("row {i}"),
             };
-            rows.push((theta[i], y[i], err, norm[i], label));
+            rows.push((theta[i], y[i], err, norm[i], label, counts.get(i).copied().flatten()));
         }
         if rows.is_empty() {
             let mut known: Vec<&String> = states.iter().collect();
@@ -190,6 +241,7 @@ impl FitData {
             dsdo_cm_mb_sr: rows.iter().map(|r| r.1).collect(),
             err_mb_sr: rows.iter().map(|r| r.2).collect(),
             norm_rel_err: rows.iter().map(|r| r.3).collect(),
+            counts: if counts.is_empty() { Vec::new() } else { rows.iter().map(|r| r.5).collect() },
             labels: rows.into_iter().map(|r| r.4).collect(),
             rutherford_convention: table_convention(table)?,
         })

@@ -27,13 +27,17 @@ pub mod report;
 #[cfg(test)]
 mod tests;
 
-pub use config::{BoundsConfig, FitEntryConfig, FitModelConfig, FitSettings, NormalisationMode};
-pub use data::{CurveTable, FitData, FIT_COLUMNS, RUTHERFORD_CONVENTION};
+pub use config::{
+    BoundsConfig, FitEntryConfig, FitModelConfig, FitSettings, LikelihoodChoice, NormalisationMode,
+    POISSON_BELOW_COUNTS,
+};
+pub use data::{row_counts, CurveTable, FitData, RowCounts, COUNT_COLUMNS, FIT_COLUMNS, RUTHERFORD_CONVENTION};
 pub use models::{OpticalKey, FIT_ACCURACY};
 pub use report::{FitReport, MinimumReport, NumericsReport, ParameterReport, PointReport, ProfileReport};
 
 use crate::physics::model_fit::{
-    self, FitError, FitOptions, Measured, Normalisation, Parameter, Profile, Shape, ShapeError,
+    self, deviance_residual, CountsPoint, FitError, FitOptions, Measured, Normalisation, Parameter, Profile, Shape,
+    ShapeError,
 };
 use crate::physics::rutherford::Convention;
 use models::{auto_numerics, fixed_numerics, legendre_start, AtAngles, Model, PointCoulomb};
@@ -51,6 +55,8 @@ pub struct Fit {
     mode: NormalisationMode,
     prior_rel_err: Option<f64>,
     profile: Vec<String>,
+    likelihood: LikelihoodChoice,
+    poisson_below_counts: f64,
     options: FitOptions,
 }
 
@@ -130,6 +136,18 @@ impl Fit {
         })
     }
 
+    /// The counts a row enters the fit with, if it enters through the Poisson likelihood
+    /// (see [`FitSettings::likelihood`]).
+    fn on_counts(&self, c: RowCounts) -> Option<CountsPoint> {
+        let poisson = c.upper_limit
+            || match self.likelihood {
+                LikelihoodChoice::Auto => c.gross < self.poisson_below_counts,
+                LikelihoodChoice::Poisson => true,
+                LikelihoodChoice::Gaussian => false,
+            };
+        poisson.then_some(CountsPoint { counts: c.gross, background: c.background, mb_sr_per_count: c.mb_sr_per_count })
+    }
+
     /// Fit the model to the data.
     ///
     /// # Errors
@@ -156,6 +174,11 @@ impl Fit {
                     dsdo_cm_mb_sr: pick(&data.dsdo_cm_mb_sr),
                     err_mb_sr: pick(&data.err_mb_sr),
                     norm_rel_err: pick(&data.norm_rel_err),
+                    counts: if data.counts.is_empty() {
+                        Vec::new()
+                    } else {
+                        keep.iter().map(|&i| data.counts[i]).collect()
+                    },
                     labels: keep.iter().map(|&i| data.labels[i].clone()).collect(),
                     rutherford_convention: data.rutherford_convention,
                 };
@@ -165,7 +188,9 @@ impl Fit {
         };
         let mut warnings = Vec::new();
         let norm = self.normalisation(data, &mut warnings)?;
-        let measured = Measured { y: data.dsdo_cm_mb_sr.clone(), sigma: data.err_mb_sr.clone() };
+        let mut measured = Measured::gaussian(data.dsdo_cm_mb_sr.clone(), data.err_mb_sr.clone());
+        measured.counts = data.counts.iter().map(|c| c.and_then(|c| self.on_counts(c))).collect();
+        let points_poisson = measured.counts.iter().filter(|c| c.is_some()).count();
         let theta_rad: Vec<f64> = data.theta_cm_deg.iter().map(|d| d.to_radians()).collect();
         if let Model::Curve(c) = &self.model {
             if let Some(t) = data.theta_cm_deg.iter().find(|t| c.at(**t).is_none()) {
@@ -241,6 +266,9 @@ impl Fit {
             model: model_name,
             state: state.to_string(),
             points: data.theta_cm_deg.len(),
+            likelihood: self.likelihood,
+            points_poisson,
+            points_gaussian: data.theta_cm_deg.len() - points_poisson,
             converged: best.converged(),
             termination: format!("{:?}", best.termination),
             iterations: best.iterations,
@@ -290,7 +318,13 @@ impl Fit {
                     dsdo_cm_mb_sr: data.dsdo_cm_mb_sr[i],
                     err_mb_sr: data.err_mb_sr[i],
                     model_mb_sr: nu * best.model[i],
-                    pull: (data.dsdo_cm_mb_sr[i] - nu * best.model[i]) / data.err_mb_sr[i],
+                    statistic: if measured.counts_at(i).is_some() { "poisson" } else { "gaussian" },
+                    counts: measured.counts_at(i).map(|c| c.counts),
+                    pull: match measured.counts_at(i) {
+                        // The deviance residual, signed as measured − model.
+                        Some(c) => -deviance_residual(c.counts, c.expected(nu * best.model[i])),
+                        None => (data.dsdo_cm_mb_sr[i] - nu * best.model[i]) / data.err_mb_sr[i],
+                    },
                 })
                 .collect(),
             warnings,

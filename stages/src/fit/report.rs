@@ -6,7 +6,7 @@ use std::collections::BTreeMap;
 
 use serde::Serialize;
 
-use super::config::NormalisationMode;
+use super::config::{LikelihoodChoice, NormalisationMode};
 use super::models::Model;
 use crate::physics::model_fit::Minimum;
 
@@ -71,7 +71,13 @@ pub struct PointReport {
     pub err_mb_sr: f64,
     /// Fitted model (normalisation applied), mb/sr.
     pub model_mb_sr: f64,
-    /// (measured − model)/error.
+    /// How the point entered: `gaussian` (χ² with `err_mb_sr`) or `poisson` (the Baker–Cousins
+    /// likelihood ratio on its counts).
+    pub statistic: &'static str,
+    /// Gross counts the point entered with (Poisson points only).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub counts: Option<f64>,
+    /// (measured − model)/error; for a Poisson point its signed deviance residual.
     pub pull: f64,
 }
 
@@ -84,6 +90,12 @@ pub struct FitReport {
     pub state: String,
     /// Data points.
     pub points: usize,
+    /// The `likelihood` setting.
+    pub likelihood: LikelihoodChoice,
+    /// Points that entered through the Poisson likelihood ratio on their counts.
+    pub points_poisson: usize,
+    /// Points that entered through the χ².
+    pub points_gaussian: usize,
     /// Whether the best minimum converged. A report with `false` is not a result.
     pub converged: bool,
     /// Why the minimiser stopped.

@@ -148,6 +148,7 @@ fn a_rutherford_fit_finds_the_scale_of_exact_data_in_either_convention() {
             dsdo_cm_mb_sr: y,
             theta_cm_deg: theta,
             rutherford_convention: convention,
+            counts: Vec::new(),
         };
         let (report, values) = fit.run(&data, "elastic", "rutherford").expect("fit runs");
         // 1e-9 (both): the relative step xtol = 1e-9 at which the minimiser stops; a scale
@@ -168,6 +169,7 @@ fn flat_data(theta_deg: &[f64]) -> FitData {
         norm_rel_err: vec![0.0; n],
         labels: (0..n).map(|i| format!("p{i}")).collect(),
         rutherford_convention: Convention::Relativistic,
+        counts: Vec::new(),
     }
 }
 
@@ -211,4 +213,51 @@ fn a_fit_that_cannot_run_says_what_to_change() {
             .expect("fit");
     let Model::Optical(om) = &optical.model else { panic!("an optical model") };
     assert_eq!(om.potential(&[-0.5]).expect_err("negative radius").to_string(), "real.r0_fm must be > 0, found -0.5");
+}
+
+#[test]
+fn low_count_rows_enter_through_the_likelihood_as_configured() {
+    // A constant (Legendre order 0) through seven rows read from a table with counts:
+    // gross n, background b = 1, k = 0.5 mb/sr per count. On counts the best constant is
+    // k (mean(n) − b) exactly (the Poisson likelihood of one mean; common practice); the
+    // row with 0 gross counts is flagged upper_limit and enters on its counts in every mode.
+    let gross = [3.0, 7.0, 2.0, 5.0, 4.0, 0.0, 6.0];
+    let n = gross.len();
+    let (k, b) = (0.5, 1.0);
+    let column = |name: &str, v: Vec<f64>| Column::new(name.into(), v);
+    let table = DataFrame::new_infer_height(vec![
+        Column::new("state".into(), vec!["elastic"; n]),
+        column("theta_cm_deg", (0..n).map(|i| 100.0 + 10.0 * i as f64).collect()),
+        column("dsdo_cm_mb_sr", gross.iter().map(|g| k * (g - b)).collect()),
+        column("stat_err_mb_sr", gross.iter().map(|g: &f64| k * (g + b).max(1.0).sqrt()).collect()),
+        column("sys_err_mb_sr", vec![0.0; n]),
+        column("norm_rel_err", vec![0.0; n]),
+        column("counts_gross", gross.to_vec()),
+        column("counts_background", vec![b; n]),
+        column("dsdo_cm_mb_sr_per_count", vec![k; n]),
+        Column::new("upper_limit".into(), gross.iter().map(|g| *g < 1.0).collect::<Vec<bool>>()),
+    ])
+    .expect("table");
+    let data = FitData::from_table(&table, "elastic").expect("data");
+    let mean = gross.iter().sum::<f64>() / n as f64;
+    // (settings, Poisson points, whether the result is the likelihood's k (mean − b))
+    let cases = [
+        ("", 7, true),
+        ("fit: { likelihood: poisson }", 7, true),
+        ("fit: { poisson_below_counts: 4 }", 3, false),
+        ("fit: { likelihood: gaussian }", 1, false),
+    ];
+    for (settings, poisson, exact) in cases {
+        let fit = build(&format!("model: legendre\norder: 0\n{settings}\n")).expect("builds");
+        let (report, _) = fit.run(&data, "elastic", "legendre").expect("fit runs");
+        assert_eq!((report.points_poisson, report.points_gaussian), (poisson, n - poisson), "{settings}");
+        let flagged = report.data.iter().find(|p| p.counts == Some(0.0)).expect("the zero-count row");
+        assert_eq!(flagged.statistic, "poisson", "{settings}");
+        if exact {
+            // 1e-7: the minimiser's stopping tolerances (see physics::model_fit's tests).
+            assert_relative_eq!(report.parameters[0].value, k * (mean - b), max_relative = 1e-7);
+        }
+    }
+    let bad = build("model: legendre\norder: 0\nfit: { poisson_below_counts: 0 }\n").err().expect("refused");
+    assert_eq!(bad[0].key, "fit.poisson_below_counts");
 }

@@ -20,6 +20,7 @@ pub mod peak_fit;
 pub mod polarisation;
 pub mod polygon;
 pub mod rutherford;
+pub mod small_signal;
 pub mod solid_angle;
 pub mod stopping;
 pub mod synthetic;
@@ -47,6 +48,16 @@ pub enum PhysicsError {
         max_rate_per_s: f64,
         /// Resolving time in µs.
         resolving_time_us: f64,
+    },
+    /// An argument lies outside the range a formula accepts.
+    #[error("{quantity} = {value} is outside the accepted range: {accepted}")]
+    OutsideDomain {
+        /// Name of the quantity with its unit.
+        quantity: String,
+        /// The value given.
+        value: f64,
+        /// What would be accepted.
+        accepted: String,
     },
     /// An interpolation table does not cover the point asked for.
     #[error(

@@ -13,6 +13,18 @@
 //! σ_N the relative error of the common normalisation, and ν the fitted normalisation
 //! (`Prior`); `Free` drops the prior term (a free scale), `Fixed` holds ν = 1.
 //!
+//! Points measured as few counts enter instead through the Poisson likelihood ratio of
+//! S. Baker and R. D. Cousins, Nucl. Instrum. Methods 221 (1984) 437, Eq. (9), on counts:
+//!     χ²_λ = 2 Σ_i [μ_i − n_i + n_i ln(n_i/μ_i)],   μ_i = ν m_i(p)/k_i + b_i,
+//! with n_i the observed (gross) counts, b_i the known background under the peak and k_i the
+//! cross section per signal count (mb/sr), and n ln(n/μ) = 0 for n = 0. Like the χ² it is a
+//! sum of squares, of the signed deviance residuals
+//!     r_i = sign(μ_i − n_i) √(2[μ_i − n_i + n_i ln(n_i/μ_i)])
+//! (P. McCullagh, J. A. Nelder, Generalized Linear Models, 2nd ed., Chapman & Hall 1989,
+//! section 2.4.3; common practice), so the same Levenberg–Marquardt minimiser serves both and
+//! the reported χ² is the sum of both kinds of terms (asymptotically χ²-distributed, Baker and
+//! Cousins section 3).
+//!
 //! Bounds by the usual transformations to an unbounded internal variable q (F. James,
 //! M. Roos, "MINUIT", CERN Program Library D506, section on parameter limits — citation
 //! from memory):
@@ -98,13 +110,95 @@ pub enum Normalisation {
 /// Name of the normalisation parameter in results.
 pub const NORMALISATION: &str = "normalisation";
 
-/// The measured points: values and their errors (statistical ⊕ point-to-point).
+/// The measured points: values and their errors (statistical ⊕ point-to-point), and for
+/// the points fitted by the Poisson likelihood their counts.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Measured {
     /// y_i.
     pub y: Vec<f64>,
     /// σ_i > 0.
     pub sigma: Vec<f64>,
+    /// Per point, its counts where it enters through the Poisson likelihood ratio, `None`
+    /// where through the χ²; an empty vector: every point through the χ².
+    pub counts: Vec<Option<CountsPoint>>,
+}
+
+impl Measured {
+    /// Points that all enter through the χ².
+    pub fn gaussian(y: Vec<f64>, sigma: Vec<f64>) -> Self {
+        Measured { y, sigma, counts: Vec::new() }
+    }
+
+    /// The counts of point i, if it enters through the Poisson likelihood ratio.
+    pub fn counts_at(&self, i: usize) -> Option<CountsPoint> {
+        self.counts.get(i).copied().flatten()
+    }
+
+    fn any_counts(&self) -> bool {
+        self.counts.iter().any(Option::is_some)
+    }
+}
+
+/// A point measured as counts: n observed (gross) counts on a known background b, and the
+/// cross section k of one signal count, so that a model value f (mb/sr) expects
+/// μ = f/k + b counts.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct CountsPoint {
+    /// Observed counts n ≥ 0.
+    pub counts: f64,
+    /// Known background counts b ≥ 0.
+    pub background: f64,
+    /// Cross section per signal count k > 0, mb/sr.
+    pub mb_sr_per_count: f64,
+}
+
+impl CountsPoint {
+    /// Expected counts μ = f/k + b for a model cross section f in mb/sr.
+    pub fn expected(&self, model_mb_sr: f64) -> f64 {
+        model_mb_sr / self.mb_sr_per_count + self.background
+    }
+}
+
+/// Signed deviance residual of n observed Poisson counts for expected μ:
+///     r = sign(μ − n) √(2[μ − n + n ln(n/μ)]),   n ln(n/μ) = 0 for n = 0,
+/// whose square is the point's term of the Baker–Cousins χ²_λ (Nucl. Instrum. Methods 221
+/// (1984) 437, Eq. 9; the residual: McCullagh and Nelder 1989, section 2.4.3). NaN for μ ≤ 0
+/// with n > 0 or μ < 0 (no Poisson mean), so that a minimiser step there is refused.
+pub fn deviance_residual(n: f64, mu: f64) -> f64 {
+    if mu < 0.0 || (mu <= 0.0 && n > 0.0) {
+        return f64::NAN;
+    }
+    // With t = (μ − n)/n: μ − n + n ln(n/μ) = n [t − ln(1 + t)], computed without the
+    // cancellation of the plain form near μ = n (by its Taylor series for |t| < 1e-3, whose
+    // first omitted term t⁷/7 is below 1e-16 of the sum).
+    let half_d = if n > 0.0 {
+        let t = (mu - n) / n;
+        let g = if t.abs() < 1e-3 {
+            t * t * (0.5 - t * (1.0 / 3.0 - t * (0.25 - t * (0.2 - t / 6.0))))
+        } else {
+            t - t.ln_1p()
+        };
+        n * g
+    } else {
+        mu
+    };
+    let root = (2.0 * half_d.max(0.0)).sqrt();
+    if mu >= n {
+        root
+    } else {
+        -root
+    }
+}
+
+/// dr/dμ of [`deviance_residual`]: |1 − n/μ| / √(2[μ − n + n ln(n/μ)]), which tends to 1/√n
+/// as μ → n (second-order expansion of the logarithm; near μ = n, where both numerator and
+/// denominator vanish, that limit 1/√μ is used).
+pub fn deviance_slope(n: f64, mu: f64) -> f64 {
+    let r = deviance_residual(n, mu);
+    if (mu - n).abs() <= 1e-6 * mu.max(1.0) {
+        return 1.0 / mu.max(f64::MIN_POSITIVE).sqrt();
+    }
+    (1.0 - n / mu).abs() / r.abs()
 }
 
 /// Why a fit cannot start.
@@ -285,14 +379,37 @@ impl<S: Shape> Chi2<'_, S> {
         self.data.y.len() + usize::from(matches!(self.norm, Normalisation::Prior(_)))
     }
 
+    /// Residual of point i for the model value f = ν m_i (mb/sr): (f − y_i)/σ_i, or the
+    /// deviance residual of its counts.
+    fn residual(&self, i: usize, f: f64) -> f64 {
+        match self.data.counts_at(i) {
+            Some(c) => deviance_residual(c.counts, c.expected(f)),
+            None => (f - self.data.y[i]) / self.data.sigma[i],
+        }
+    }
+
+    /// dr_i = (dr_i/df) df for a change df of the model value f = ν m_i of point i (see
+    /// [`Self::residual`]): df/σ_i, or for a point on counts df times the deviance slope over
+    /// k; for the covariance (`expected`) of a point on counts df/(k √μ) instead, the slope
+    /// of the expected (Fisher) information 1/μ per count (the Gauss–Newton JᵀJ of the
+    /// deviance residuals, Σ (1 − n/μ)²/D, is not the curvature of χ²_λ away from μ = n;
+    /// Baker and Cousins section 3 take errors from the curvature).
+    fn residual_change(&self, i: usize, f: f64, df: f64, expected: bool) -> f64 {
+        match self.data.counts_at(i) {
+            Some(c) if expected => df / (c.mb_sr_per_count * c.expected(f).max(f64::MIN_POSITIVE).sqrt()),
+            Some(c) => df * deviance_slope(c.counts, c.expected(f)) / c.mb_sr_per_count,
+            None => df / self.data.sigma[i],
+        }
+    }
+
     /// Residuals at external shape parameters `p` and normalisation `nu`; the model values
     /// are left in `m`.
     fn residuals_ext(&self, p: &[f64], nu: f64, m: &mut [f64], r: &mut [f64]) -> bool {
         if self.values(p, m).is_err() {
             return false;
         }
-        for (i, ((y, s), mi)) in self.data.y.iter().zip(&self.data.sigma).zip(m.iter()).enumerate() {
-            r[i] = (nu * mi - y) / s;
+        for (i, mi) in m.iter().enumerate() {
+            r[i] = self.residual(i, nu * mi);
         }
         if let Normalisation::Prior(w) = self.norm {
             r[self.data.y.len()] = (nu - 1.0) / w;
@@ -300,7 +417,9 @@ impl<S: Shape> Chi2<'_, S> {
         r.iter().all(|x| x.is_finite())
     }
 
-    /// Jacobian of the residuals in the external parameters, by finite differences for the
+    /// Jacobian of the residuals in the external parameters (with `central`, for the
+    /// covariance: central differences and the expected slope of points on counts, see
+    /// [`Self::residual_change`]), by finite differences for the
     /// shape (central where both neighbours are inside the bounds, else one-sided) and
     /// analytically for ν.
     fn jacobian_ext(&self, p: &[f64], nu: f64, m: &[f64], central: bool, jac: &mut [f64]) -> bool {
@@ -340,7 +459,7 @@ impl<S: Shape> Chi2<'_, S> {
             }
             x[j] = p[j];
             for i in 0..pts {
-                jac[i * n + j] = nu * (mp[i] - mm[i]) / (up - down) / self.data.sigma[i];
+                jac[i * n + j] = self.residual_change(i, nu * m[i], nu * (mp[i] - mm[i]) / (up - down), central);
             }
             if rows > pts {
                 jac[pts * n + j] = 0.0;
@@ -349,7 +468,7 @@ impl<S: Shape> Chi2<'_, S> {
         if self.fits_norm() {
             let j = self.n_shape();
             for i in 0..pts {
-                jac[i * n + j] = m[i] / self.data.sigma[i];
+                jac[i * n + j] = self.residual_change(i, nu * m[i], m[i], central);
             }
             if let Normalisation::Prior(w) = self.norm {
                 jac[pts * n + j] = 1.0 / w;
@@ -380,10 +499,10 @@ impl<S: Shape> Residuals for Chi2<'_, S> {
     }
     fn jacobian(&self, q: &[f64], r: &[f64], jac: &mut [f64]) -> bool {
         let (p, nu) = self.to_external(q);
-        // The model values at q follow from the residuals: m_i = (σ_i r_i + y_i)/ν, except
-        // at ν = 0 where they are recomputed.
+        // The model values at q follow from the χ² residuals: m_i = (σ_i r_i + y_i)/ν, except
+        // at ν = 0 or with points on counts, where they are recomputed.
         let pts = self.data.y.len();
-        let m: Vec<f64> = if nu == 0.0 {
+        let m: Vec<f64> = if nu == 0.0 || self.data.any_counts() {
             let mut m = vec![0.0; pts];
             if self.values(&p, &mut m).is_err() {
                 return false;
@@ -430,20 +549,20 @@ pub fn fit<S: Shape>(
     if problem.fits_norm() {
         q0.push(1.0);
     }
-    let (result, iterations, termination) = if q0.is_empty() || (shape.solved_linear() && norm == Normalisation::Fixed)
-    {
-        (q0.clone(), 0, Termination::Linear)
-    } else {
-        let lm = LmOptions {
-            max_iterations: opts.max_iterations,
-            ftol: opts.ftol,
-            xtol: opts.xtol,
-            gtol: 1e-10,
-            initial_step_bound: None,
+    let (result, iterations, termination) =
+        if q0.is_empty() || (shape.solved_linear() && norm == Normalisation::Fixed && !data.any_counts()) {
+            (q0.clone(), 0, Termination::Linear)
+        } else {
+            let lm = LmOptions {
+                max_iterations: opts.max_iterations,
+                ftol: opts.ftol,
+                xtol: opts.xtol,
+                gtol: 1e-10,
+                initial_step_bound: None,
+            };
+            let r = minimise(&problem, &q0, &lm);
+            (r.params, r.iterations, r.termination)
         };
-        let r = minimise(&problem, &q0, &lm);
-        (r.params, r.iterations, r.termination)
-    };
     let (p, nu) = problem.to_external(&result);
     let mut r = vec![0.0; problem.rows()];
     if !problem.residuals_ext(&p, nu, &mut m, &mut r) {
@@ -705,6 +824,61 @@ mod tests {
     }
 
     #[test]
+    fn deviance_residuals_and_their_slopes() {
+        // (n, μ, r): worked by hand from r = sign(μ − n)·√(2[μ − n + n ln(n/μ)]).
+        let e = std::f64::consts::E;
+        let cases = [
+            (0.0, 2.0, 2.0),
+            (4.0, 4.0, 0.0),
+            (1.0, e, (2.0 * (e - 2.0)).sqrt()),
+            (5.0, 2.0, -(2.0 * (2.0 - 5.0 + 5.0 * 2.5f64.ln())).sqrt()),
+        ];
+        for (n, mu, r) in cases {
+            // 1e-14: a logarithm, a square root and three sums, rounded once each.
+            assert_relative_eq!(deviance_residual(n, mu), r, max_relative = 1e-14, epsilon = 1e-15);
+            // The slope against a central difference of step 1e-6: truncation ~ h² times the
+            // third derivative ≈ 1e-12, rounding ~ 1e-16/1e-6 = 1e-10; 1e-7 leaves margin.
+            let h = 1e-6;
+            let numeric = (deviance_residual(n, mu + h) - deviance_residual(n, mu - h)) / (2.0 * h);
+            assert_relative_eq!(deviance_slope(n, mu), numeric, max_relative = 1e-7);
+        }
+        assert!(deviance_residual(1.0, 0.0).is_nan() && deviance_residual(0.0, -1.0).is_nan());
+    }
+
+    /// A constant cross section a at every point.
+    struct Constant(usize);
+    impl Shape for Constant {
+        fn values(&self, p: &[f64], out: &mut [f64]) -> Result<(), ShapeError> {
+            out.iter_mut().take(self.0).for_each(|o| *o = p[0]);
+            Ok(())
+        }
+    }
+
+    #[test]
+    fn a_constant_rate_fitted_on_counts_is_the_mean_count() {
+        // For n_i ~ Poisson(μ) with one μ for all points the likelihood is maximal at
+        // μ = mean(n) (d/dμ Σ [μ − n_i ln μ] = 0; common practice), whatever the background
+        // and scale: here μ_i = a/k + b with k = 0.5 mb/sr per count and b = 1, so
+        // a = k (mean(n) − b).
+        let n = [3.0, 7.0, 2.0, 5.0, 4.0, 0.0, 6.0];
+        let (k, b) = (0.5, 1.0);
+        let y: Vec<f64> = n.iter().map(|c| k * (c - b)).collect();
+        let sigma: Vec<f64> = n.iter().map(|c: &f64| k * c.max(1.0).sqrt()).collect();
+        let counts = n.iter().map(|&c| Some(CountsPoint { counts: c, background: b, mb_sr_per_count: k })).collect();
+        let data = Measured { y, sigma, counts };
+        let ps = [par("a", 1.0, None, None)];
+        let m = fit(&Constant(n.len()), &ps, &data, Normalisation::Fixed, &FitOptions::default()).expect("fits");
+        let mean = n.iter().sum::<f64>() / n.len() as f64;
+        // 1e-7: the minimiser stops at a relative step of xtol = 1e-9 or a relative fall of
+        // the cost of ftol, and a minimum's position is known to √ftol of the cost.
+        assert_relative_eq!(m.estimates[0].value, k * (mean - b), max_relative = 1e-7);
+        // The error from the curvature: u(a) = k √(mean/N) (Fisher information N/μ, common
+        // practice). 1e-5: the Jacobian by central differences (relative step 6e-6).
+        let expected_err = k * (mean / n.len() as f64).sqrt();
+        assert_relative_eq!(m.estimates[0].error.expect("an error"), expected_err, max_relative = 1e-5);
+    }
+
+    #[test]
     fn transforms_invert() {
         for p in [par("a", 0.0, Some(-1.0), Some(3.0)), par("b", 0.0, Some(2.0), None), par("c", 0.0, None, Some(-2.0))]
         {
@@ -721,7 +895,7 @@ mod tests {
     fn exact_data_is_recovered_with_and_without_bounds() {
         let x: Vec<f64> = (0..12).map(|i| f64::from(i) * 0.5).collect();
         let y: Vec<f64> = x.iter().map(|x| 7.0 * (-0.4 * x).exp()).collect();
-        let data = Measured { sigma: y.iter().map(|y| 0.02 * y).collect(), y };
+        let data = Measured::gaussian(y.clone(), y.iter().map(|y| 0.02 * y).collect());
         for bounds in [(None, None), (Some(0.1), Some(2.0))] {
             let ps = [par("a", 3.0, None, None), par("b", 1.0, bounds.0, bounds.1)];
             let m = fit(&Decay(x.clone()), &ps, &data, Normalisation::Fixed, &FitOptions::default()).expect("fits");
@@ -744,7 +918,7 @@ mod tests {
         // ν = (12·1.1/0.02² + 1/0.05²)/(12/0.02² + 1/0.05²) .
         let x: Vec<f64> = (0..12).map(|i| f64::from(i) * 0.5).collect();
         let y: Vec<f64> = x.iter().map(|x| 1.1 * 7.0 * (-0.4 * x).exp()).collect();
-        let data = Measured { sigma: y.iter().map(|y| 0.02 * y / 1.1).collect(), y };
+        let data = Measured::gaussian(y.clone(), y.iter().map(|y| 0.02 * y / 1.1).collect());
         let (shape, inner) = (Decay(x), [Parameter { name: "b".into(), start: 0.4, min: None, max: None }]);
         let held = Held { inner: &shape, index: 0, value: 7.0, full: RefCell::new(vec![0.0; 2]) };
         // Hold b as well: only ν is fitted.
@@ -777,7 +951,7 @@ mod tests {
         let x: Vec<f64> = (0..10).map(f64::from).collect();
         let y: Vec<f64> =
             x.iter().enumerate().map(|(i, x)| 2.0 + 0.5 * x + if i % 2 == 0 { 0.3 } else { -0.2 }).collect();
-        let data = Measured { sigma: vec![0.25; 10], y };
+        let data = Measured::gaussian(y, vec![0.25; 10]);
         let ps = [par("a", 0.0, None, None), par("b", 0.0, None, None)];
         let opts = FitOptions::default();
         let best = fit(&Line(x.clone()), &ps, &data, Normalisation::Fixed, &opts).expect("fits");
@@ -791,7 +965,7 @@ mod tests {
 
     #[test]
     fn bad_starts_and_too_few_points_are_errors() {
-        let data = Measured { y: vec![1.0, 2.0], sigma: vec![0.1, 0.1] };
+        let data = Measured::gaussian(vec![1.0, 2.0], vec![0.1, 0.1]);
         let shape = Decay(vec![0.0, 1.0]);
         let outside = [par("a", 5.0, Some(0.0), Some(1.0)), par("b", 0.1, None, None)];
         assert!(matches!(

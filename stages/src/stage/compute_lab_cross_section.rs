@@ -9,6 +9,12 @@
 //! - the common normalisation (charge, target, the run's one live fraction, or the monitor), the same
 //!   relative error for every point of a run, is `norm_rel_err`, added by `normalise` and
 //!   kept apart so that fits can treat it as one scale factor.
+//!
+//! Where `subtract_background` gave a peak consistent with zero an interval on its signal
+//! counts (`counts_net_lower`, `counts_net_upper`), the same factor k = dσ/dΩ per count turns
+//! it into `dsdo_lab_lower_mb_sr` and `dsdo_lab_upper_mb_sr` (empty for the other rows).
+//! The factor itself is `dsdo_lab_mb_sr_per_count`, so that a fit can turn a model cross
+//! section back into expected counts.
 
 use polars::prelude::DataFrame;
 use schemars::JsonSchema;
@@ -17,7 +23,7 @@ use serde::Deserialize;
 use crate::physics::cross_section::lab_mb_sr_per_count;
 use crate::physics::uncertainty::quadrature;
 use crate::stage::correct_dead_time::live_fraction_rel_err;
-use crate::table::{f64_values, with_f64_columns};
+use crate::table::{f64_values, with_f64_columns, with_scaled_optional_columns};
 use crate::{Problem, RunContext, Stage, StageError};
 
 /// Settings of `compute_lab_cross_section` (none yet).
@@ -69,6 +75,8 @@ pub struct LabCrossSection {
     pub stat_err_mb_sr: f64,
     /// Point-to-point systematic standard uncertainty in mb/sr.
     pub sys_err_mb_sr: f64,
+    /// k = dσ/dΩ_lab per net count, mb/sr.
+    pub mb_sr_per_count: f64,
 }
 
 /// dσ/dΩ_lab = Y / (A ε f_live L ΔΩ) (see [`lab_mb_sr_per_count`]; A, the window
@@ -100,6 +108,7 @@ pub fn lab_cross_section(p: &LabPoint) -> LabCrossSection {
                 p.efficiency.1 / p.efficiency.0,
                 p.solid_angle_msr.1 / p.solid_angle_msr.0,
             ]),
+        mb_sr_per_count: k,
     }
 }
 
@@ -115,6 +124,10 @@ const INPUTS: [&str; 9] = [
     "live_fraction_err",
 ];
 
+/// The interval on the signal counts and the lab cross sections it becomes.
+const INTERVAL_COLUMNS: [(&str, &str); 2] =
+    [("counts_net_lower", "dsdo_lab_lower_mb_sr"), ("counts_net_upper", "dsdo_lab_upper_mb_sr")];
+
 impl Stage for ComputeLabCrossSection {
     fn name(&self) -> &'static str {
         "compute_lab_cross_section"
@@ -123,7 +136,7 @@ impl Stage for ComputeLabCrossSection {
         INPUTS.to_vec()
     }
     fn adds(&self) -> Vec<&'static str> {
-        vec!["dsdo_lab_mb_sr", "stat_err_lab_mb_sr", "sys_err_lab_mb_sr"]
+        vec!["dsdo_lab_mb_sr", "stat_err_lab_mb_sr", "sys_err_lab_mb_sr", "dsdo_lab_mb_sr_per_count"]
     }
     fn run(&self, table: DataFrame, _ctx: &RunContext<'_>) -> Result<DataFrame, StageError> {
         let cols = INPUTS.iter().map(|name| f64_values(&table, name)).collect::<Result<Vec<_>, _>>()?;
@@ -150,14 +163,17 @@ impl Stage for ComputeLabCrossSection {
                 })
             })
             .collect();
-        with_f64_columns(
+        let per_count: Vec<f64> = points.iter().map(|p| p.mb_sr_per_count).collect();
+        let table = with_f64_columns(
             table,
             vec![
                 ("dsdo_lab_mb_sr", points.iter().map(|p| p.dsdo_mb_sr).collect()),
                 ("stat_err_lab_mb_sr", points.iter().map(|p| p.stat_err_mb_sr).collect()),
                 ("sys_err_lab_mb_sr", points.iter().map(|p| p.sys_err_mb_sr).collect()),
+                ("dsdo_lab_mb_sr_per_count", per_count.clone()),
             ],
-        )
+        )?;
+        with_scaled_optional_columns(table, &INTERVAL_COLUMNS, &per_count)
     }
 }
 

@@ -1,18 +1,25 @@
 //! Stage `subtract_background`: net counts of each peak and their statistical error.
 //!
 //! Reads `counts_gross` and, when the yields table has them, `counts_background` and
-//! `counts_background_err`; adds `counts_net` and `counts_net_err`.
+//! `counts_background_err`; adds `counts_net` and `counts_net_err`, and for peaks whose net
+//! counts are consistent with zero a Feldman–Cousins interval on the signal counts
+//! (`counts_net_lower`, `counts_net_upper`, empty elsewhere) with the flag `upper_limit`.
+//! `compute_lab_cross_section` and `transform_to_cm` carry the interval on to the cross
+//! sections.
 
-use polars::prelude::DataFrame;
+use polars::prelude::{Column, DataFrame};
 use schemars::JsonSchema;
 use serde::Deserialize;
 
+use crate::physics::small_signal::{feldman_cousins_interval, SignalInterval, ONE_SIGMA_CONFIDENCE_LEVEL};
 use crate::table::{f64_values, str_values, with_f64_columns};
-use crate::{Problem, RunContext, Stage, StageError};
+
+use crate::physics::PhysicsError;
+use crate::{Origin, Problem, RunContext, Stage, StageError};
 
 /// Settings of `subtract_background`. The background comes from the yields table (side
 /// bands or a fit done upstream); this stage only combines.
-#[derive(Debug, Clone, Default, Deserialize, JsonSchema)]
+#[derive(Debug, Clone, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct SubtractBackgroundConfig {
     /// When the yields table has `counts_background` but no `counts_background_err`, take the
@@ -20,25 +27,76 @@ pub struct SubtractBackgroundConfig {
     /// Default true.
     #[serde(default = "yes")]
     pub poisson_background_if_no_err: bool,
+    /// A peak whose net counts are below this many of their standard errors is consistent
+    /// with zero: it gets a Feldman–Cousins interval on its signal counts and
+    /// `upper_limit: true`. Pure number, default 2.0, accepted > 0.
+    #[serde(default = "two")]
+    pub interval_below_sigmas: f64,
+    /// Confidence level of that interval. Pure number, default 0.6827 (one standard
+    /// deviation), accepted in (0, 1), e.g. 0.9 or 0.95.
+    #[serde(default = "one_sigma_level")]
+    pub confidence_level: f64,
+}
+
+impl Default for SubtractBackgroundConfig {
+    fn default() -> Self {
+        SubtractBackgroundConfig {
+            poisson_background_if_no_err: yes(),
+            interval_below_sigmas: two(),
+            confidence_level: one_sigma_level(),
+        }
+    }
 }
 
 fn yes() -> bool {
     true
 }
 
+fn two() -> f64 {
+    2.0
+}
+
+fn one_sigma_level() -> f64 {
+    ONE_SIGMA_CONFIDENCE_LEVEL
+}
+
 /// The built stage.
 #[derive(Debug, Clone)]
 pub struct SubtractBackground {
     poisson_background_if_no_err: bool,
+    interval_below_sigmas: f64,
+    confidence_level: f64,
 }
 
 impl SubtractBackgroundConfig {
-    /// Build the stage (nothing to check).
+    /// Build the stage.
     ///
     /// # Errors
-    /// None today; the signature matches the other stages.
+    /// A problem for `interval_below_sigmas` not > 0 or `confidence_level` outside (0, 1).
     pub fn build(&self) -> Result<SubtractBackground, Vec<Problem>> {
-        Ok(SubtractBackground { poisson_background_if_no_err: self.poisson_background_if_no_err })
+        let mut problems = Vec::new();
+        if !(self.interval_below_sigmas > 0.0 && self.interval_below_sigmas.is_finite()) {
+            problems.push(Problem::new(
+                "interval_below_sigmas",
+                self.interval_below_sigmas,
+                "a finite number > 0 of standard errors, e.g. 2.0",
+            ));
+        }
+        if !(self.confidence_level > 0.0 && self.confidence_level < 1.0) {
+            problems.push(Problem::new(
+                "confidence_level",
+                self.confidence_level,
+                "a number in (0, 1), e.g. 0.6827, 0.9 or 0.95",
+            ));
+        }
+        if !problems.is_empty() {
+            return Err(problems);
+        }
+        Ok(SubtractBackground {
+            poisson_background_if_no_err: self.poisson_background_if_no_err,
+            interval_below_sigmas: self.interval_below_sigmas,
+            confidence_level: self.confidence_level,
+        })
     }
 }
 
@@ -67,6 +125,24 @@ pub const EXCESS_BACKGROUND_SIGMAS: f64 = 3.0;
 /// Whether the net counts are impossibly negative (see [`EXCESS_BACKGROUND_SIGMAS`]).
 pub fn excess_background(net: f64, net_err: f64) -> bool {
     net < -EXCESS_BACKGROUND_SIGMAS * net_err
+}
+
+/// Whether net counts Y with standard error u(Y) are consistent with zero: Y < k·u(Y) for
+/// k = `interval_below_sigmas` (a significance below k standard deviations; common practice).
+pub fn consistent_with_zero(net: f64, net_err: f64, below_sigmas: f64) -> bool {
+    net < below_sigmas * net_err
+}
+
+/// The Feldman–Cousins interval on the signal counts of a peak with G gross counts on a
+/// background B (see [`feldman_cousins_interval`]): n₀ = G rounded to a whole count, the
+/// background max(B, 0) taken as known.
+///
+/// # Errors
+/// [`PhysicsError::OutsideDomain`] for a confidence level outside (0, 1) (the stage's
+/// `build` refuses it first) or a background that is not finite.
+pub fn signal_interval(gross: f64, background: f64, confidence_level: f64) -> Result<SignalInterval, PhysicsError> {
+    let observed = gross.max(0.0).round() as u64;
+    feldman_cousins_interval(observed, background.max(0.0), confidence_level)
 }
 
 /// Warn, naming detector, state and counts, of every row whose background exceeds its gross
@@ -105,7 +181,7 @@ impl Stage for SubtractBackground {
         vec!["counts_gross"]
     }
     fn adds(&self) -> Vec<&'static str> {
-        vec!["counts_net", "counts_net_err"]
+        vec!["counts_net", "counts_net_err", "counts_net_lower", "counts_net_upper", "upper_limit"]
     }
     fn run(&self, table: DataFrame, _ctx: &RunContext<'_>) -> Result<DataFrame, StageError> {
         let gross = f64_values(&table, "counts_gross")?;
@@ -125,7 +201,27 @@ impl Stage for SubtractBackground {
         let (net, err): (Vec<f64>, Vec<f64>) =
             gross.iter().zip(&background).zip(&background_err).map(|((g, b), u)| net_counts(*g, *b, *u)).unzip();
         warn_of_excess_background(&table, &gross, &background, &net, &err)?;
-        with_f64_columns(table, vec![("counts_net", net), ("counts_net_err", err)])
+        let limited: Vec<bool> =
+            net.iter().zip(&err).map(|(y, u)| consistent_with_zero(*y, *u, self.interval_below_sigmas)).collect();
+        let mut lower = Vec::with_capacity(net.len());
+        let mut upper = Vec::with_capacity(net.len());
+        for (i, &limit) in limited.iter().enumerate() {
+            let interval = if limit {
+                let interval = signal_interval(gross[i], background[i], self.confidence_level).map_err(|source| {
+                    StageError::Physics { context: format!("data row {}", i + 1), source, origin: Origin::Table }
+                })?;
+                Some(interval)
+            } else {
+                None
+            };
+            lower.push(interval.map(|v| v.lower));
+            upper.push(interval.map(|v| v.upper));
+        }
+        let mut table = with_f64_columns(table, vec![("counts_net", net), ("counts_net_err", err)])?;
+        table.with_column(Column::new("counts_net_lower".into(), lower))?;
+        table.with_column(Column::new("counts_net_upper".into(), upper))?;
+        table.with_column(Column::new("upper_limit".into(), limited))?;
+        Ok(table)
     }
 }
 
@@ -166,6 +262,45 @@ mod tests {
         for (g, b, ub, warned) in cases {
             let (net, err) = net_counts(g, b, ub);
             assert_eq!(excess_background(net, err), warned, "{g} {b} {ub}: {net} ± {err}");
+        }
+    }
+
+    #[test]
+    fn peaks_consistent_with_zero_get_an_interval() {
+        // (gross, background, flagged, lower, upper) at 68.27 % and k = 2. The intervals are
+        // Feldman and Cousins, Phys. Rev. D 57 (1998) 3873, Table II, b = 0 (typed from
+        // memory, as in physics::small_signal) and the plain construction at b = 3 (our
+        // Python scan, see small_signal's tests).
+        let cases = [
+            (0.0, 0.0, true, 0.0, 1.29),           // 0 ± 1.84: below 2σ
+            (3.0, 0.0, true, 1.10, 5.30),          // 3 ± 1.73: 1.7σ
+            (1.0, 3.0, true, 0.0, 0.44),           // −2 ± 2.0
+            (5.0, 0.0, false, f64::NAN, f64::NAN), // 5 ± 2.24: 2.2σ
+        ];
+        for (g, b, flagged, lower, upper) in cases {
+            let (net, err) = net_counts(g, b, b.sqrt());
+            assert_eq!(consistent_with_zero(net, err, 2.0), flagged, "{g} {b}");
+            if flagged {
+                let iv = signal_interval(g, b, ONE_SIGMA_CONFIDENCE_LEVEL).expect("valid");
+                // 0.006 and 0.011: the table's two decimals and the scan's step (see there).
+                assert!((iv.lower - lower).abs() < 0.011 && (iv.upper - upper).abs() < 0.011, "{g} {b}: {iv:?}");
+            }
+        }
+    }
+
+    #[test]
+    fn bad_settings_are_refused_with_their_keys() {
+        let cases = [
+            (0.0, 0.68, vec!["interval_below_sigmas"]),
+            (2.0, 1.0, vec!["confidence_level"]),
+            (-1.0, 0.0, vec!["interval_below_sigmas", "confidence_level"]),
+        ];
+        for (k, cl, keys) in cases {
+            let config =
+                SubtractBackgroundConfig { interval_below_sigmas: k, confidence_level: cl, ..Default::default() };
+            let problems = config.build().expect_err("refused");
+            let got: Vec<&str> = problems.iter().map(|p| p.key.as_str()).collect();
+            assert_eq!(got, keys);
         }
     }
 

@@ -1,14 +1,17 @@
 //! Stage `transform_to_cm`: the cross section and its errors in the centre-of-mass frame,
 //! and the ratio to Rutherford for elastic states. Adds `dsdo_cm_mb_sr`, `stat_err_mb_sr`,
 //! `sys_err_mb_sr` and, unless `rutherford: none`, `dsdo_rutherford_cm_mb_sr` and
-//! `ratio_rutherford` (empty for inelastic states and other reactions).
+//! `ratio_rutherford` (empty for inelastic states and other reactions); where the table has
+//! the interval of a peak consistent with zero (`dsdo_lab_lower_mb_sr`,
+//! `dsdo_lab_upper_mb_sr`), the same in the CM frame (`dsdo_cm_lower_mb_sr`, `dsdo_cm_upper_mb_sr`),
+//! and the cross section of one net count, `dsdo_cm_mb_sr_per_count`.
 
 use polars::prelude::{Column, DataFrame};
 use schemars::JsonSchema;
 use serde::Deserialize;
 
 use crate::physics::rutherford::Convention;
-use crate::table::{f64_values, str_values, with_f64_columns};
+use crate::table::{f64_values, str_values, with_f64_columns, with_scaled_optional_columns};
 use crate::{Problem, RunContext, Setup, Stage, StageError};
 
 /// Which Rutherford cross section to divide by.
@@ -131,8 +134,18 @@ impl Stage for TransformToCm {
             }
             _ => None,
         };
-        let mut table =
+        let table =
             with_f64_columns(table, vec![("dsdo_cm_mb_sr", dsdo), ("stat_err_mb_sr", stat), ("sys_err_mb_sr", sys)])?;
+        // The interval of a peak consistent with zero, where compute_lab_cross_section gave one.
+        let mut table = with_scaled_optional_columns(
+            table,
+            &[
+                ("dsdo_lab_mb_sr_per_count", "dsdo_cm_mb_sr_per_count"),
+                ("dsdo_lab_lower_mb_sr", "dsdo_cm_lower_mb_sr"),
+                ("dsdo_lab_upper_mb_sr", "dsdo_cm_upper_mb_sr"),
+            ],
+            &j,
+        )?;
         if let Some((sigma, ratio, conv)) = rutherford {
             let rows = table.height();
             table.with_column(Column::new("dsdo_rutherford_cm_mb_sr".into(), sigma))?;
