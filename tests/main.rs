@@ -5,6 +5,7 @@ mod bad_input;
 mod batch;
 mod cli;
 mod closure;
+mod closure_chain;
 mod common;
 mod config;
 mod dead_time;

@@ -6,7 +6,7 @@ use std::path::Path;
 
 use polars::prelude::*;
 
-use crate::common::{text, xsflow};
+use crate::common::{numbers, parquet, strings, text, xsflow};
 
 /// An invented experiment: 24 MeV 4He on 58Ni, three detectors, elastic and 2+ states,
 /// list-mode events with a pile-up column.
@@ -51,20 +51,6 @@ fn scratch() -> tempfile::TempDir {
 fn simulate(dir: &Path, out: &str, extra: &[&str]) -> std::process::Output {
     let args = ["simulate", "experiment.yaml", "--truth", "rutherford.yaml", "--state-truth", "2+_1.454=2.5"];
     xsflow(dir, &[&args[..], &["--out", out], extra].concat())
-}
-
-fn parquet(path: &Path) -> DataFrame {
-    ParquetReader::new(std::fs::File::open(path).expect("parquet file")).finish().expect("parquet")
-}
-
-fn strings(df: &DataFrame, name: &str) -> Vec<String> {
-    let c = df.column(name).expect("column").cast(&DataType::String).expect("as text");
-    c.str().expect("text").iter().map(|v| v.unwrap_or_default().to_string()).collect()
-}
-
-fn numbers(df: &DataFrame, name: &str) -> Vec<f64> {
-    let c = df.column(name).expect("column").cast(&DataType::Float64).expect("as numbers");
-    c.f64().expect("numbers").iter().map(|v| v.unwrap_or(f64::NAN)).collect()
 }
 
 #[test]
