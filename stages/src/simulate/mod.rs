@@ -18,6 +18,7 @@
 //! where N_all counts every arriving event of the run (all peaks and the background) and T
 //! is its real time. The charge Q is chosen so that N_all is the `--events` asked for.
 
+pub mod beamtime;
 mod config;
 pub mod physics;
 pub mod sample;
