@@ -3,6 +3,7 @@
 
 mod bad_input;
 mod batch;
+mod beamtime;
 mod cli;
 mod closure;
 mod closure_chain;

@@ -10,7 +10,7 @@ use crate::common::{numbers, parquet, strings, text, xsflow};
 
 /// An invented experiment: 24 MeV 4He on 58Ni, three detectors, elastic and 2+ states,
 /// list-mode events with a pile-up column.
-const CONFIG: &str = "experiment: { name: simulated }
+pub const CONFIG: &str = "experiment: { name: simulated }
 reaction: { beam: 4He, target: 58Ni, energy_mev: 24.0, beam_charge_state: 2, states: [{ name: elastic }, { name: \"2+_1.454\", excitation_mev: 1.454 }] }
 target: { areal_density_ug_cm2: 200.0, molar_mass_g_mol: 57.9353, isotopic_fraction: 0.99, tilt_deg: 20.0 }
 detectors:
