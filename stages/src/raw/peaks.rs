@@ -6,7 +6,7 @@
 
 use serde::Serialize;
 
-use crate::physics::peak_fit::{fit_peaks, Background, PeakModel};
+use crate::physics::peak_fit::{fit_counts, Background, PeakModel};
 
 use super::plan::DetectorPlan;
 use super::BackgroundMethod;
@@ -105,7 +105,6 @@ pub(super) fn fit_detector(
     let background =
         if method == BackgroundMethod::PeakFitExponential { Background::Exponential } else { Background::Linear };
     let model = PeakModel { background, peaks: det.gates.len() };
-    let sigma: Vec<f64> = y.iter().map(|n| n.max(1.0).sqrt()).collect();
     let side: Vec<f64> = det
         .gates
         .iter()
@@ -125,7 +124,7 @@ pub(super) fn fit_detector(
         p0.extend([(peak - b0).max(1.0), centre, resolution_mev]);
     }
     let bin = det.cal.gain_mev_per_channel;
-    let fit = fit_peaks(&model, &x, &y, &sigma, &p0, bin);
+    let fit = fit_counts(&model, &x, &y, &p0, bin);
     Ok(PeakFitRecord {
         detector: det.id.clone(),
         window_counts: det
