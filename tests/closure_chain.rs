@@ -24,8 +24,7 @@
 //! every machine, so each figure below is what the test measures, every time.
 //!
 //! Measured with these seeds (rows: count, pull mean ± standard error, width; fits over
-//! 30 seeds: pull mean ± standard error, width), about 45 s for all five in a debug build
-//! on two cores:
+//! 30 seeds: pull mean ± standard error, width):
 //! - plain elastic:            480 rows, +0.026 ± 0.044, 1.010; fits +0.031 ± 0.148, 0.808
 //! - strong dead time:         480 rows, −0.168 ± 0.060, 0.991; fits −0.501 ± 0.166, 0.908
 //!   (4000 rows of 1000 runs: −0.009 ± 0.021, width 0.993: the seeds here fall low by
@@ -33,12 +32,18 @@
 //! - monitor normalisation:    480 rows, −0.057 ± 0.051, 1.038; fits −0.158 ± 0.176, 0.965
 //! - recoil detection:         480 rows, −0.025 ± 0.041, 1.041; fits −0.092 ± 0.177, 0.968
 //! - double-valued lab angle:  720 rows, −0.015 ± 0.037, 0.991; fits −0.101 ± 0.179, 0.981
+//! - contaminant peaks beside the elastic one (peak-fit background): 360 rows,
+//!   −0.071 ± 0.060, 1.024; fits −0.268 ± 0.155, 0.848
+//! - a contaminant peak inside the peak fit's region (ignored, a defect left open): 240
+//!   rows, −2.428 ± 0.061, 2.694; fits −8.966 ± 0.192, 1.049
 //!
 //! Defects these cases found, fixed in the reduction: the counting error of the triggers
 //! that give a dead-time model its rate was left out, and is correlated with the peaks'
 //! own counts (pull width 1.11 before); a monitor's counts were not corrected for their
 //! window acceptance (row pull mean +0.35); the two branches of a double-valued lab angle
-//! were averaged into one combined point (fit pull +122).
+//! were averaged into one combined point (fit pull +122); the peak fit's Neyman weights
+//! pulled areas low by about a count per bin (row pull mean −0.41 with little background).
+//! The whole set takes about a minute of a debug `cargo test --workspace` on two cores.
 
 use std::collections::HashMap;
 use std::path::Path;
@@ -343,4 +348,46 @@ fn a_double_valued_lab_angle_closes_through_the_chain() {
         &[("F10", 10.0, 400.0, 2.0), ("F15", 15.0, 400.0, 2.0), ("F20", 20.0, 400.0, 2.0)],
         (0.02, 0.15),
     ));
+}
+
+/// Impurities of the foil next to the elastic peak: 20 µg/cm² of 16O and 10 µg/cm² of 12C
+/// on 200 µg/cm² of 58Ni, peak-fit background. `detectors` (id, θ_lab) at 150 mm with
+/// 2.5 mm apertures.
+fn contaminated(detectors: &[(&str, f64)]) -> Case {
+    let lines: String = detectors
+        .iter()
+        .map(|(id, theta)| {
+            format!("  - {{ id: {id}, theta_lab_deg: {theta}, distance_mm: 150.0, aperture: {{ shape: circle, radius_mm: 2.5 }} }}\n")
+        })
+        .collect();
+    let head = format!(
+        "reaction: {{ beam: 4He, target: 58Ni, energy_mev: 24.0, beam_charge_state: 2, states: [{{ name: elastic }}] }}
+target: {{ areal_density_ug_cm2: 200.0, molar_mass_g_mol: 57.9353, contaminants: [{{ nuclide: 16O, areal_density_ug_cm2: 20.0 }}, {{ nuclide: 12C, areal_density_ug_cm2: 10.0 }}] }}
+detectors:
+{lines}"
+    );
+    Case::new(
+        "contaminant peaks",
+        config(&head, &stages(CLOCKS, ABSOLUTE), &raw(0.01, 0.08, "peak_fit_linear")),
+        ALPHA_NICKEL_TRUTH.into(),
+    )
+}
+
+/// The 16O peak 0.80, 1.13 and 1.91 MeV (10, 14 and 24 σ) below the elastic one at 25°,
+/// 30° and 40°, the 12C peak further: next to the elastic peak, outside the peak fit's
+/// region (window and side bands, ±7 σ).
+#[test]
+fn contaminant_peaks_beside_the_fit_region_close_through_the_chain() {
+    assert_closes(&contaminated(&[("D25", 25.0), ("D30", 30.0), ("D40", 40.0)]));
+}
+
+/// Left open (a defect found, not fixed): at 20° the 16O peak is 0.52 MeV (6.5 σ) below the
+/// elastic one, inside the left side band and so inside the peak fit's region, and the
+/// peak fit has no Gaussian for it: the elastic rows there pull at −3.7 (100 runs, 1e5
+/// events each). Fitting the impurities' peaks as nuisance Gaussians (their kinematic
+/// energies are known from `target.contaminants`) would close it.
+#[test]
+#[ignore = "the peak fit does not yet model impurity peaks inside its region"]
+fn a_contaminant_peak_inside_the_fit_region_closes_through_the_chain() {
+    assert_closes(&contaminated(&[("D20", 20.0), ("D30", 30.0)]));
 }

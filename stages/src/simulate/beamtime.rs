@@ -6,7 +6,8 @@
 //! For one setting at beam current I (A), with L/Q the luminosity per coulomb:
 //!     ℒ = I · L/Q = I/(q e) · n_t                         (luminosity rate, 1/(cm² s))
 //!     s = (dσ/dΩ)_lab ΔΩ ε ℒ                              (a peak's arriving rate, 1/s)
-//!     R_d = (1 + b) Σ_peaks of d s,   n = Σ_d R_d           (detector and total rates)
+//!     R_d = (1 + b) Σ_peaks of d s + Σ_impurity peaks of d s_c,   n = Σ_d R_d
+//!                                                         (detector and total rates)
 //!     f = live fraction of the dead-time model at n          ([`super::physics::live_fraction`])
 //! with b the flat background as a fraction of a detector's peak counts (only with a
 //! `raw:` section, as `xsflow simulate` makes it). In the peak window the background rate is
@@ -198,7 +199,21 @@ pub fn plan(settings: &[(String, Experiment)], background: Option<&BackgroundSha
                 None => detectors.push((p.detector, p.detector_id.clone(), *r)),
             }
         }
-        let total_rate_per_s: f64 = detectors.iter().map(|(_, _, s)| s * (1.0 + b)).sum();
+        // Each detector's arriving rate: its peaks with their background, and the peaks of
+        // the foil's impurities.
+        let detector_rates: Vec<(String, f64)> = detectors
+            .iter()
+            .map(|(d, id, s)| {
+                let impurities: f64 = e
+                    .contaminants
+                    .iter()
+                    .filter(|c| c.detector == *d)
+                    .map(|c| c.counts_per_luminosity_cm2 * luminosity_per_cm2_s)
+                    .sum();
+                (id.clone(), s * (1.0 + b) + impurities)
+            })
+            .collect();
+        let total_rate_per_s: f64 = detector_rates.iter().map(|(_, r)| r).sum();
         let f = live_fraction(o.dead_time, total_rate_per_s, o.resolving_time_us * 1e-6);
         let peaks: Vec<PeakTime> = e
             .peaks
@@ -229,7 +244,7 @@ pub fn plan(settings: &[(String, Experiment)], background: Option<&BackgroundSha
         planned.push(SettingTime {
             setting: name.clone(),
             peaks,
-            detector_rates_per_s: detectors.into_iter().map(|(_, id, s)| (id, s * (1.0 + b))).collect(),
+            detector_rates_per_s: detector_rates,
             total_rate_per_s,
             live_fraction: f,
             dead_time_fraction: 1.0 - f,
