@@ -146,13 +146,13 @@ pub fn fit_peaks(model: &PeakModel, x: &[f64], y: &[f64], sigma: &[f64], p0: &[f
 /// model is nearly empty still has a finite weight (common practice).
 const MODEL_VARIANCE_FLOOR: f64 = 0.1;
 
-/// Refits with model weights after the first; the areas settle to far below their errors
-/// within two or three (measured in the test below).
+/// Refits with model weights after the first: iteratively reweighted least squares
+/// settles within a few refits (common practice); four leave a margin.
 const REWEIGHTINGS: usize = 4;
 
 /// Fit the model to Poisson counts n_i in bins centred at x_i: first with the weights
 /// 1/max(n_i, 1) (Neyman's χ², the start), then again with 1/max(μ_i, 0.1), μ_i the model
-/// at the previous fit, [`REWEIGHTINGS`] times. Neyman's weights favour the bins that
+/// at the previous fit, four times. Neyman's weights favour the bins that
 /// fluctuated low and pull an area low by about one count per bin of the peak; the
 /// reweighted fit's fixed point solves Σ_i (n_i − μ_i)/μ_i ∂μ_i/∂θ = 0, the equations of the
 /// Poisson maximum-likelihood fit, which has no such bias (S. Baker and R. D. Cousins,
