@@ -34,9 +34,10 @@ pub struct TargetConfig {
     /// longer by 1/cos(tilt). Default 0, range [0, 90).
     #[serde(default)]
     pub tilt_deg: f64,
-    /// Light impurities of the foil (carbon build-up, oxide): `xsflow simulate` puts the
-    /// elastic peak of the beam on each into the spectra and `xsflow beamtime` counts its
-    /// rate; the reduction does not use them. Default none.
+    /// Light impurities of the foil (carbon build-up, oxide): the elastic peak of the beam
+    /// on each is fitted as a peak of no state where it falls inside a peak fit's region
+    /// (`raw.background: peak_fit_*`); `xsflow simulate` puts these peaks into the spectra
+    /// and `xsflow beamtime` counts their rate. Default none.
     #[serde(default)]
     pub contaminants: Vec<ContaminantConfig>,
 }

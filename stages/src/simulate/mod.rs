@@ -205,16 +205,12 @@ fn contaminant_peaks(
     setup: &Setup,
     resolved: &crate::setup::ResolvedReaction,
 ) -> Result<Vec<ContaminantPeak>, SimulateError> {
-    use crate::physics::kinematics::{Channel, Masses};
     let target_per_g = setup.target.areal_density_g_cm2().ok_or(SimulateError::Unresolved)?
         * setup.target.isotopic_fraction
         / setup.target.molar_mass_g_mol;
+    let beam = &resolved.beam;
     let mut out = Vec::new();
-    for k in &setup.target.contaminants {
-        let nuclide = crate::physics::nuclide::parse(&k.nuclide).map_err(|_| SimulateError::Unresolved)?;
-        let (beam, m_c) = (&resolved.beam, nuclide.nuclear_mass_mev());
-        let masses = Masses { beam_mev: beam.mass_mev, target_mev: m_c, ejectile_mev: beam.mass_mev, recoil_mev: m_c };
-        let channel = Channel::new(masses, setup.reaction.energy_mev, 0.0).map_err(|_| SimulateError::Unresolved)?;
+    for (k, nuclide, channel) in resolved.impurity_channels(setup.reaction.energy_mev, &setup.target.contaminants) {
         let ratio = k.areal_density_ug_cm2 * 1e-6 / nuclide.atomic_mass_u / target_per_g;
         let e_cm_mev = channel.cm_energy_nonrel_mev();
         for (d, det) in setup.detectors.iter().enumerate() {
