@@ -4,6 +4,8 @@
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
 
+use polars::prelude::*;
+
 /// The repository root (the workspace folder).
 pub fn repo_root() -> PathBuf {
     Path::new(env!("CARGO_MANIFEST_DIR")).parent().expect("the pipeline crate sits in the workspace root").to_path_buf()
@@ -104,4 +106,21 @@ pub fn files_below(dir: &Path) -> Vec<PathBuf> {
 pub fn demo_kinematics(angles: &str) -> Output {
     let args = ["kinematics", "--beam", "4He", "--target", "58Ni", "--energy-mev", "24", "--angles", angles];
     xsflow(&repo_root(), &[&args[..], &["--format", "json"]].concat())
+}
+
+/// A Parquet file as a table.
+pub fn parquet(path: &Path) -> DataFrame {
+    ParquetReader::new(std::fs::File::open(path).expect("parquet file")).finish().expect("parquet")
+}
+
+/// A column as text.
+pub fn strings(df: &DataFrame, name: &str) -> Vec<String> {
+    let c = df.column(name).expect("column").cast(&DataType::String).expect("as text");
+    c.str().expect("text").iter().map(|v| v.unwrap_or_default().to_string()).collect()
+}
+
+/// A column as numbers (NaN where null).
+pub fn numbers(df: &DataFrame, name: &str) -> Vec<f64> {
+    let c = df.column(name).expect("column").cast(&DataType::Float64).expect("as numbers");
+    c.f64().expect("numbers").iter().map(|v| v.unwrap_or(f64::NAN)).collect()
 }

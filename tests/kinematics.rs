@@ -145,6 +145,7 @@ fn monitor_normalisation_worked_by_hand() {
     let points = [
         MonitorPoint {
             counts_net: (10000.0, 100.0),
+            window_acceptance: (1.0, 0.0),
             efficiency: (1.0, 0.0),
             solid_angle_msr: (1.0, 0.01),
             live_fraction: (0.5, 0.0),
@@ -152,6 +153,7 @@ fn monitor_normalisation_worked_by_hand() {
         },
         MonitorPoint {
             counts_net: (5000.0, 5000f64.sqrt()),
+            window_acceptance: (1.0, 0.0),
             efficiency: (0.5, 0.0),
             solid_angle_msr: (2.0, 0.0),
             live_fraction: (0.5, 0.0),

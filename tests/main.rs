@@ -3,8 +3,10 @@
 
 mod bad_input;
 mod batch;
+mod beamtime;
 mod cli;
 mod closure;
+mod closure_chain;
 mod common;
 mod config;
 mod dead_time;

@@ -162,6 +162,7 @@ fn lab_cross_section_worked_by_hand() {
         molar_mass_g_mol: 50.0,
         isotopic_fraction: 0.5,
         tilt_deg: 60.0,
+        contaminants: Vec::new(),
     };
     let det =
         detector(ApertureConfig::Given { solid_angle_msr: 2.5, solid_angle_err_msr: 0.05 }, 100.0, 0.0, (0.8, 0.016));
@@ -236,6 +237,7 @@ fn uncertainty_columns_match_the_uncertainties_package() {
             molar_mass_g_mol: num(&row, "molar_mass_g_mol"),
             isotopic_fraction: num(&row, "isotopic_fraction"),
             tilt_deg: num(&row, "tilt_deg"),
+            contaminants: Vec::new(),
         };
         let live = num(&row, "live_fraction");
         let yields = df!(

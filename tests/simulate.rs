@@ -6,11 +6,11 @@ use std::path::Path;
 
 use polars::prelude::*;
 
-use crate::common::{text, xsflow};
+use crate::common::{numbers, parquet, strings, text, xsflow};
 
 /// An invented experiment: 24 MeV 4He on 58Ni, three detectors, elastic and 2+ states,
 /// list-mode events with a pile-up column.
-const CONFIG: &str = "experiment: { name: simulated }
+pub const CONFIG: &str = "experiment: { name: simulated }
 reaction: { beam: 4He, target: 58Ni, energy_mev: 24.0, beam_charge_state: 2, states: [{ name: elastic }, { name: \"2+_1.454\", excitation_mev: 1.454 }] }
 target: { areal_density_ug_cm2: 200.0, molar_mass_g_mol: 57.9353, isotopic_fraction: 0.99, tilt_deg: 20.0 }
 detectors:
@@ -51,20 +51,6 @@ fn scratch() -> tempfile::TempDir {
 fn simulate(dir: &Path, out: &str, extra: &[&str]) -> std::process::Output {
     let args = ["simulate", "experiment.yaml", "--truth", "rutherford.yaml", "--state-truth", "2+_1.454=2.5"];
     xsflow(dir, &[&args[..], &["--out", out], extra].concat())
-}
-
-fn parquet(path: &Path) -> DataFrame {
-    ParquetReader::new(std::fs::File::open(path).expect("parquet file")).finish().expect("parquet")
-}
-
-fn strings(df: &DataFrame, name: &str) -> Vec<String> {
-    let c = df.column(name).expect("column").cast(&DataType::String).expect("as text");
-    c.str().expect("text").iter().map(|v| v.unwrap_or_default().to_string()).collect()
-}
-
-fn numbers(df: &DataFrame, name: &str) -> Vec<f64> {
-    let c = df.column(name).expect("column").cast(&DataType::Float64).expect("as numbers");
-    c.f64().expect("numbers").iter().map(|v| v.unwrap_or(f64::NAN)).collect()
 }
 
 #[test]

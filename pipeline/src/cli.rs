@@ -293,6 +293,45 @@ pub enum Command {
         #[arg(long = "pulser-rate-per-s", default_value_t = 10.0)]
         pulser_rate_per_s: f64,
     },
+    /// Plan beam time: for each arm setting, the rate of every peak at a beam current, the
+    /// time to reach a relative statistical precision on every angle and state (net peak
+    /// counts, with the flat background of a `raw:` section), the detector and total rates
+    /// and the dead time they imply (a warning above --dead-time-limit), the setting that
+    /// takes longest and the total hours. Same config and truth as `xsflow simulate`.
+    Beamtime {
+        /// The experiment config (YAML), as `reduce` reads it; its run records' arm
+        /// settings are planned as well.
+        config: PathBuf,
+        /// The elastic state's true cross section: a model file of `xsflow theory`.
+        #[arg(long)]
+        truth: PathBuf,
+        /// Another state's true CM cross section: STATE=MB_SR or STATE=MODEL.
+        #[arg(long = "state-truth", value_name = "STATE=VALUE")]
+        state_truth: Vec<String>,
+        /// Beam current in nA (electric, at the config's charge state).
+        #[arg(long = "current-na", allow_negative_numbers = true)]
+        current_na: f64,
+        /// Relative statistical precision wanted on every peak, e.g. 0.01 for 1 %.
+        #[arg(long, allow_negative_numbers = true)]
+        precision: f64,
+        /// The acquisition's dead-time model; default the config's correct_dead_time
+        /// model, else non-paralyzable.
+        #[arg(long = "dead-time", value_enum)]
+        dead_time: Option<DeadTimeArg>,
+        /// Resolving time of the acquisition in µs; default the config's, else 2.
+        #[arg(long = "resolving-time-us")]
+        resolving_time_us: Option<f64>,
+        /// Dead-time fraction above which a setting is warned of.
+        #[arg(long = "dead-time-limit", default_value_t = 0.1)]
+        dead_time_limit: f64,
+        /// Flat background in each detector as a fraction of its peak counts (with a
+        /// `raw:` section), as `xsflow simulate` makes it.
+        #[arg(long = "background-fraction", default_value_t = 0.01)]
+        background_fraction: f64,
+        /// Output format.
+        #[arg(long, value_enum, default_value_t = StoppingFormat::Table)]
+        format: StoppingFormat,
+    },
     /// Draw a plot (SVG, or PNG for a `.png` file) from output tables alone: the angular
     /// distribution with its fits and pulls, the ratio to Rutherford, a run's spectrum with
     /// its gates or ΔE–E histogram, run health, or an optical fit's landscape of minima.

@@ -199,10 +199,7 @@ pub fn execute(command: Command) -> Report {
                 state_truths: state_truth,
                 out,
                 data,
-                dead_time: dead_time.map(|d| match d {
-                    DeadTimeArg::NonParalyzable => DeadTimeModel::NonParalyzable,
-                    DeadTimeArg::Paralyzable => DeadTimeModel::Paralyzable,
-                }),
+                dead_time: dead_time.map(dead_time_model),
                 resolving_time_us,
                 options: SimulateOptions {
                     seed,
@@ -217,6 +214,42 @@ pub fn execute(command: Command) -> Report {
             };
             simulate_runs(&request)
         }
+        Command::Beamtime {
+            config,
+            truth,
+            state_truth,
+            current_na,
+            precision,
+            dead_time,
+            resolving_time_us,
+            dead_time_limit,
+            background_fraction,
+            format,
+        } => {
+            let request = crate::beamtime::Request {
+                config,
+                truth,
+                state_truths: state_truth,
+                dead_time: dead_time.map(dead_time_model),
+                resolving_time_us,
+                options: stages::simulate::beamtime::BeamtimeOptions {
+                    current_na,
+                    precision_rel: precision,
+                    dead_time: DeadTimeModel::NonParalyzable,
+                    resolving_time_us: 0.0,
+                    dead_time_limit,
+                    background_fraction,
+                },
+            };
+            match crate::beamtime::beamtime(&request) {
+                Ok(b) => crate::beamtime::warnings(&b)
+                    .iter()
+                    .fold(Report::new().out(&crate::beamtime::render(&b, format == StoppingFormat::Json)), |r, w| {
+                        r.err(format_args!("warning: {w}"))
+                    }),
+                Err(diags) => Report::diagnostics(&diags),
+            }
+        }
         Command::Plot { kind, input, out, fits, detector, outlier_sigmas } => {
             match crate::plot::draw(kind, &input, &out, fits.as_deref(), detector.as_deref(), outlier_sigmas) {
                 Ok(()) => Report::new().err(format_args!("plot written to {}", out.display())),
@@ -227,6 +260,14 @@ pub fn execute(command: Command) -> Report {
             Some(s) => Report::new().out(&s),
             None => Report::new().end(Outcome::BadInput),
         },
+    }
+}
+
+/// The dead-time model of a command-line choice.
+fn dead_time_model(d: DeadTimeArg) -> DeadTimeModel {
+    match d {
+        DeadTimeArg::NonParalyzable => DeadTimeModel::NonParalyzable,
+        DeadTimeArg::Paralyzable => DeadTimeModel::Paralyzable,
     }
 }
 

@@ -3,6 +3,7 @@
 //! `stages` crate; this crate reads files and writes results.
 
 pub mod batch;
+pub mod beamtime;
 pub mod catalogue;
 pub mod cli;
 pub mod commands;

@@ -491,11 +491,13 @@ pub fn combine_and_write(
         let shared = f("target_atoms_rel_err").unwrap_or_else(|_| vec![0.0; t.height()]);
         let counts = stages::fit::row_counts(t).map_err(|e| fail(e.to_string()))?;
         let few = |c: &stages::fit::RowCounts| c.upper_limit || c.gross < plan.combine.poisson_below_counts;
+        let branch = stages::table::f64_values_or(t, "branch", 1.0).unwrap_or_else(|_| vec![1.0; t.height()]);
         for i in 0..t.height() {
             rows.push(stages::combine::Row {
                 run: run[i].clone(),
                 detector: det[i].clone(),
                 state: state[i].clone(),
+                branch: if branch[i] > 1.5 { 2 } else { 1 },
                 theta_lab_deg: lab[i],
                 theta_cm_deg: cm[i],
                 dsdo_cm_mb_sr: y[i],

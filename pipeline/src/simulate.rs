@@ -105,24 +105,10 @@ const DEFAULT_RESOLVING_TIME_US: f64 = 2.0;
 /// Every problem of the command line, the config and the models (located), or the file
 /// that could not be written.
 pub fn simulate(req: &Request) -> Result<Summary, Vec<Diagnostic>> {
-    let plan = plan_with(&req.config, true)?;
-    let file = YamlFile::read(&req.config).map_err(|d| vec![d])?;
-    let (parsed, _) = parse_experiment(&file);
-    let (model, tau) = dead_time_of(parsed.stages.as_deref().unwrap_or_default());
+    let (plan, file, dead_time, resolving_time_us) = prepare(&req.config, req.dead_time, req.resolving_time_us)?;
     let mut options = req.options.clone();
-    options.dead_time = req.dead_time.or(model).unwrap_or(DeadTimeModel::NonParalyzable);
-    options.resolving_time_us = req.resolving_time_us.or(tau).unwrap_or(DEFAULT_RESOLVING_TIME_US);
-    let mut problems: Vec<Diagnostic> = options
-        .validate()
-        .iter()
-        .map(|p| {
-            Diagnostic::new(
-                Path::new(COMMAND_LINE),
-                p.key.clone(),
-                format!("found {}, expected {}", p.found, p.expected),
-            )
-        })
-        .collect();
+    (options.dead_time, options.resolving_time_us) = (dead_time, resolving_time_us);
+    let mut problems = command_line_problems(COMMAND_LINE, &options.validate());
     let data = req.data.unwrap_or(if plan.raw.is_some() { DataKind::Events } else { DataKind::Yields });
     if data != DataKind::Yields && plan.raw.is_none() {
         problems.push(
@@ -136,7 +122,7 @@ pub fn simulate(req: &Request) -> Result<Summary, Vec<Diagnostic>> {
                 .with_help("choose a new folder, or remove this one"),
         );
     }
-    let truths = match truths(req, &plan.setup) {
+    let truths = match truths(&req.truth, &req.state_truths, &req.config, &plan.setup) {
         Ok(t) => t,
         Err(d) => {
             problems.extend(d);
@@ -193,6 +179,39 @@ pub fn simulate(req: &Request) -> Result<Summary, Vec<Diagnostic>> {
     Ok(Summary { runs: options.runs, recorded, live_fraction: run.live_fraction, config: config_copy })
 }
 
+/// The problems of a verb's settings as diagnostics of its command line.
+pub(crate) fn command_line_problems(command: &str, problems: &[stages::Problem]) -> Vec<Diagnostic> {
+    problems
+        .iter()
+        .map(|p| {
+            Diagnostic::new(Path::new(command), p.key.clone(), format!("found {}, expected {}", p.found, p.expected))
+        })
+        .collect()
+}
+
+/// What `simulate` and `beamtime` read first: the plan of the config, its file, and the
+/// acquisition's dead-time model and resolving time in µs (the command line's, else the
+/// config's `correct_dead_time` model, else non-paralyzable at 2 µs).
+///
+/// # Errors
+/// The config's problems, located.
+pub(crate) fn prepare(
+    config: &Path,
+    model: Option<DeadTimeModel>,
+    resolving_time_us: Option<f64>,
+) -> Result<(crate::plan::Plan, YamlFile, DeadTimeModel, f64), Vec<Diagnostic>> {
+    let plan = plan_with(config, true)?;
+    let file = YamlFile::read(config).map_err(|d| vec![d])?;
+    let (parsed, _) = parse_experiment(&file);
+    let (config_model, config_tau) = dead_time_of(parsed.stages.as_deref().unwrap_or_default());
+    Ok((
+        plan,
+        file,
+        model.or(config_model).unwrap_or(DeadTimeModel::NonParalyzable),
+        resolving_time_us.or(config_tau).unwrap_or(DEFAULT_RESOLVING_TIME_US),
+    ))
+}
+
 /// The dead-time model and resolving time of the config's `correct_dead_time` stage, where
 /// it uses a model.
 fn dead_time_of(stages: &[StageConfig]) -> (Option<DeadTimeModel>, Option<f64>) {
@@ -235,14 +254,19 @@ fn model(path: &Path, config: &Path, setup: &Setup) -> Result<StateTruth, Vec<Di
 
 /// The true cross section of every state: `--state-truth` where given, else the `--truth`
 /// model for the elastic state.
-fn truths(req: &Request, setup: &Setup) -> Result<BTreeMap<String, StateTruth>, Vec<Diagnostic>> {
+pub(crate) fn truths(
+    truth: &Path,
+    state_truths: &[String],
+    config: &Path,
+    setup: &Setup,
+) -> Result<BTreeMap<String, StateTruth>, Vec<Diagnostic>> {
     let Some(resolved) = setup.resolved.as_ref() else { return Ok(BTreeMap::new()) };
     let mut out = BTreeMap::new();
     let mut problems = Vec::new();
     let flag = |value: &str, message: String| {
         Diagnostic::new(Path::new(COMMAND_LINE), "--state-truth", format!("found {value}, expected {message}"))
     };
-    for text in &req.state_truths {
+    for text in state_truths {
         let Some((state, value)) = text.split_once('=') else {
             problems.push(flag(text, "STATE=MB_SR or STATE=MODEL".into()));
             continue;
@@ -254,7 +278,7 @@ fn truths(req: &Request, setup: &Setup) -> Result<BTreeMap<String, StateTruth>, 
         let truth = match value.parse::<f64>() {
             Ok(v) if v.is_finite() && v >= 0.0 => Ok(StateTruth::Constant(v)),
             Ok(_) => Err(vec![flag(text, "a constant dσ/dΩ_cm >= 0 in mb/sr".into())]),
-            Err(_) => model(Path::new(value), &req.config, setup),
+            Err(_) => model(Path::new(value), config, setup),
         };
         match truth {
             Ok(t) => {
@@ -269,7 +293,7 @@ fn truths(req: &Request, setup: &Setup) -> Result<BTreeMap<String, StateTruth>, 
         .map(|(s, _)| s.name.as_str())
         .filter(|s| resolved.is_elastic(s) && !out.contains_key(*s))
         .collect();
-    match model(&req.truth, &req.config, setup) {
+    match model(truth, config, setup) {
         Ok(t) => {
             for s in elastic {
                 out.insert(s.to_string(), t.clone());

@@ -1,6 +1,7 @@
-//! Combining runs into one angular distribution per state: rows of the same state at the
-//! same lab angle (within a tolerance) are averaged; rows at other angles (other arm
-//! settings) become other points. The covariance matrix of the result keeps the
+//! Combining runs into one angular distribution per state: rows of the same state and
+//! kinematic branch at the same lab angle (within a tolerance) are averaged; rows at other
+//! angles (other arm settings) become other points, and so does the second solution of a
+//! double-valued lab angle (another CM angle at the same lab angle). The covariance matrix of the result keeps the
 //! correlations that the runs and detectors share.
 //!
 //! Error model of a row i (run r, detector d): counting statistics σ_stat,i, independent;
@@ -79,6 +80,8 @@ pub struct Row {
     pub detector: String,
     /// State.
     pub state: String,
+    /// Kinematic branch: 1, or 2 for the lower-energy solution of a double-valued lab angle.
+    pub branch: u8,
     /// Lab angle, degrees.
     pub theta_lab_deg: f64,
     /// CM angle, degrees.
@@ -150,7 +153,7 @@ pub enum CombineError {
     },
 }
 
-/// Combine rows; points sorted by state, then angle. Returns the points and their
+/// Combine rows; points sorted by state, then branch, then lab angle. Returns the points and their
 /// covariance matrix (row-major).
 ///
 /// # Errors
@@ -159,7 +162,11 @@ pub enum CombineError {
 pub fn combine(rows: &[Row], tolerance_deg: f64) -> Result<(Vec<Point>, Vec<f64>), CombineError> {
     let mut order: Vec<usize> = (0..rows.len()).collect();
     order.sort_by(|&a, &b| {
-        rows[a].state.cmp(&rows[b].state).then(rows[a].theta_lab_deg.total_cmp(&rows[b].theta_lab_deg))
+        rows[a]
+            .state
+            .cmp(&rows[b].state)
+            .then(rows[a].branch.cmp(&rows[b].branch))
+            .then(rows[a].theta_lab_deg.total_cmp(&rows[b].theta_lab_deg))
     });
     let mut groups: Vec<Vec<usize>> = Vec::new();
     for i in order {
@@ -176,6 +183,7 @@ pub fn combine(rows: &[Row], tolerance_deg: f64) -> Result<(Vec<Point>, Vec<f64>
         match groups.last_mut() {
             Some(g)
                 if rows[g[0]].state == r.state
+                    && rows[g[0]].branch == r.branch
                     && (r.theta_lab_deg - rows[g[0]].theta_lab_deg).abs() <= tolerance_deg =>
             {
                 g.push(i);
@@ -316,6 +324,7 @@ mod tests {
             run: run.into(),
             detector: "D1".into(),
             state: "elastic".into(),
+            branch: 1,
             theta_lab_deg: theta,
             theta_cm_deg: theta + 1.0,
             dsdo_cm_mb_sr: y,
@@ -388,6 +397,21 @@ mod tests {
             let e = combine(&rows, 0.05).expect_err("refused").to_string();
             assert!(e.contains("b/D1 (elastic): statistical error"), "{e}");
         }
+    }
+
+    /// Both solutions of a double-valued lab angle are two points (found by the closure of
+    /// a heavy beam on a light target: they used to be averaged into one).
+    #[test]
+    fn the_two_branches_at_one_lab_angle_are_two_points() {
+        let second = Row { branch: 2, theta_cm_deg: 150.0, ..row("a", 15.0, 40.0, 2.0) };
+        let rows = [row("a", 15.0, 10.0, 1.0), second, row("b", 15.0, 12.0, 1.0)];
+        let (p, _) = combine(&rows, 0.05).expect("combines");
+        assert_eq!(p.len(), 2, "{p:?}");
+        assert_eq!((p[0].rows, p[1].rows), (2, 1));
+        // Branch 1: the two runs' mean, 11; branch 2 its one row (1e-12: a weighted mean).
+        assert_relative_eq!(p[0].dsdo_cm_mb_sr, 11.0, max_relative = 1e-12);
+        assert_relative_eq!(p[1].dsdo_cm_mb_sr, 40.0, max_relative = 1e-12);
+        assert_relative_eq!(p[1].theta_cm_deg, 150.0, max_relative = 1e-12);
     }
 
     #[test]

@@ -95,6 +95,19 @@ pub fn with_scaled_optional_columns(
     Ok(table)
 }
 
+/// A column's numbers as [`f64_values`], or `default` in every row when the table has no
+/// such column (an optional input).
+///
+/// # Errors
+/// As [`f64_values`] for a column that is there.
+pub fn f64_values_or(table: &DataFrame, name: &str, default: f64) -> Result<Vec<f64>, StageError> {
+    if table.column(name).is_ok() {
+        f64_values(table, name)
+    } else {
+        Ok(vec![default; table.height()])
+    }
+}
+
 /// A column as text (numbers are written in their shortest form); a null is an error.
 ///
 /// # Errors

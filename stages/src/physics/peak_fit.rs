@@ -7,8 +7,8 @@
 //! which with the exponential background and two peaks is the model of the NIST StRD
 //! datasets Gauss1–3 (b₁ e^{−b₂x} + b₃ e^{−(x−b₄)²/b₅²} + b₆ e^{−(x−b₇)²/b₈²}, with
 //! b₅² = 2 s²). Peak areas in counts: N_k = A_k s_k √(2π) / Δx for bins of width Δx, with
-//! the error from the covariance of (A_k, s_k) (linear propagation). Bin weights
-//! 1/max(n_i, 1) (Neyman's χ², with a floor for empty bins; common practice).
+//! the error from the covariance of (A_k, s_k) (linear propagation). [`fit_peaks`] takes
+//! the bin errors it is given; [`fit_counts`] fits Poisson counts without Neyman's bias.
 
 use super::dual::{values_and_jacobian, Dual, Real};
 use super::least_squares::{inverse_normal_matrix, minimise, LmOptions, Residuals, Termination};
@@ -142,6 +142,39 @@ pub fn fit_peaks(model: &PeakModel, x: &[f64], y: &[f64], sigma: &[f64], p0: &[f
     }
 }
 
+/// Smallest bin variance [`fit_counts`] takes from the model, counts: a bin where the
+/// model is nearly empty still has a finite weight (common practice).
+const MODEL_VARIANCE_FLOOR: f64 = 0.1;
+
+/// Refits with model weights after the first: iteratively reweighted least squares
+/// settles within a few refits (common practice); four leave a margin.
+const REWEIGHTINGS: usize = 4;
+
+/// Fit the model to Poisson counts n_i in bins centred at x_i: first with the weights
+/// 1/max(n_i, 1) (Neyman's χ², the start), then again with 1/max(μ_i, 0.1), μ_i the model
+/// at the previous fit, four times. Neyman's weights favour the bins that
+/// fluctuated low and pull an area low by about one count per bin of the peak; the
+/// reweighted fit's fixed point solves Σ_i (n_i − μ_i)/μ_i ∂μ_i/∂θ = 0, the equations of the
+/// Poisson maximum-likelihood fit, which has no such bias (S. Baker and R. D. Cousins,
+/// Nucl. Instrum. Methods 221 (1984) 437; iteratively reweighted least squares, common
+/// practice). The χ² reported is Pearson's, with the last weights.
+pub fn fit_counts(model: &PeakModel, x: &[f64], counts: &[f64], p0: &[f64], bin_width: f64) -> PeakFit {
+    let sigma: Vec<f64> = counts.iter().map(|n| n.max(1.0).sqrt()).collect();
+    let mut fit = fit_peaks(model, x, counts, &sigma, p0, bin_width);
+    for _ in 0..REWEIGHTINGS {
+        if !fit.termination.converged() {
+            break;
+        }
+        let sigma: Vec<f64> = x.iter().map(|x| model.value(&fit.params, *x).max(MODEL_VARIANCE_FLOOR).sqrt()).collect();
+        let next = fit_peaks(model, x, counts, &sigma, &fit.params, bin_width);
+        if !next.termination.converged() {
+            break;
+        }
+        fit = next;
+    }
+    fit
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -162,6 +195,37 @@ mod tests {
         // ≲ 1e-11 (measured 1e-16).
         assert_relative_eq!(fit.peaks[0].area, 200.0 * 2.0 * (2.0 * std::f64::consts::PI).sqrt(), max_relative = 1e-10);
         assert_relative_eq!(fit.peaks[0].centroid, 30.0, max_relative = 1e-10);
+    }
+
+    /// A peak of 5000 counts (σ = 3 bins) on 0.2 counts per bin, 200 Poisson spectra:
+    /// Neyman's weights give areas low by about a count per bin of the peak (the bias
+    /// `fit_counts` removes); the reweighted fit's mean area is the truth within 3 standard
+    /// errors of the mean (common practice for a bias test).
+    #[test]
+    fn counts_are_fitted_without_the_neyman_bias() {
+        let model = PeakModel { background: Background::Linear, peaks: 1 };
+        let x: Vec<f64> = (0..60).map(f64::from).collect();
+        let area = 5000.0;
+        let truth = [0.2, 0.0, area / (3.0 * (2.0 * std::f64::consts::PI).sqrt()), 30.0, 3.0];
+        let mean: Vec<f64> = x.iter().map(|x| model.value(&truth, *x)).collect();
+        let mut rng = crate::physics::synthetic::Rng::new(14);
+        let (mut neyman, mut reweighted) = (Vec::new(), Vec::new());
+        for _ in 0..200 {
+            let y: Vec<f64> = mean.iter().map(|m| rng.poisson(*m) as f64).collect();
+            let sigma: Vec<f64> = y.iter().map(|n| n.max(1.0).sqrt()).collect();
+            let start = [0.5, 0.0, 600.0, 29.0, 2.5];
+            neyman.push(fit_peaks(&model, &x, &y, &sigma, &start, 1.0).peaks[0].area);
+            reweighted.push(fit_counts(&model, &x, &y, &start, 1.0).peaks[0].area);
+        }
+        let stats = |v: &[f64]| {
+            let m = v.iter().sum::<f64>() / v.len() as f64;
+            let sd = (v.iter().map(|a| (a - m).powi(2)).sum::<f64>() / (v.len() as f64 - 1.0)).sqrt();
+            (m, sd / (v.len() as f64).sqrt())
+        };
+        let (m_n, se_n) = stats(&neyman);
+        let (m_r, se_r) = stats(&reweighted);
+        assert!(m_n < area - 3.0 * se_n, "Neyman: {m_n} ± {se_n}");
+        assert!((m_r - area).abs() < 3.0 * se_r, "reweighted: {m_r} ± {se_r}");
     }
 
     /// Issue 11, defect 1: five states in one region are 17 parameters, more than one dual

@@ -6,7 +6,7 @@
 
 use serde::Serialize;
 
-use crate::physics::peak_fit::{fit_peaks, Background, PeakModel};
+use crate::physics::peak_fit::{fit_counts, Background, PeakModel};
 
 use super::plan::DetectorPlan;
 use super::BackgroundMethod;
@@ -108,7 +108,9 @@ pub(super) fn fit_detector(
     let (x, y): (Vec<f64>, Vec<f64>) =
         (0..n_ch).map(|ch| (det.cal.energy_mev(ch as f64), spectrum(ch))).filter(|(e, _)| *e >= lo && *e < hi).unzip();
     let total: f64 = y.iter().sum();
-    let (peaks, bins) = (det.gates.len(), x.len());
+    // Impurity peaks inside the region are fitted too, as peaks of no state.
+    let impurities: Vec<f64> = det.impurity_mev.iter().copied().filter(|e| *e >= lo && *e < hi).collect();
+    let (peaks, bins) = (det.gates.len() + impurities.len(), x.len());
     if peaks == 0 {
         return Err(PeakFitSkipped::NoStates);
     }
@@ -120,8 +122,7 @@ pub(super) fn fit_detector(
     }
     let background =
         if method == BackgroundMethod::PeakFitExponential { Background::Exponential } else { Background::Linear };
-    let model = PeakModel { background, peaks: det.gates.len() };
-    let sigma: Vec<f64> = y.iter().map(|n| n.max(1.0).sqrt()).collect();
+    let model = PeakModel { background, peaks };
     let side: Vec<f64> = det
         .gates
         .iter()
@@ -140,8 +141,12 @@ pub(super) fn fit_detector(
         };
         p0.extend([(peak - b0).max(1.0), centre, resolution_mev]);
     }
+    for e in &impurities {
+        let near = x.iter().zip(&y).filter(|(x, _)| (**x - e).abs() <= resolution_mev).map(|(_, n)| *n);
+        p0.extend([(near.fold(0.0, f64::max) - b0).max(1.0), *e, resolution_mev]);
+    }
     let bin = det.cal.gain_mev_per_channel;
-    let fit = fit_peaks(&model, &x, &y, &sigma, &p0, bin);
+    let fit = fit_counts(&model, &x, &y, &p0, bin);
     let shape = match background {
         Background::Linear => "linear",
         Background::Exponential => "exponential",

@@ -82,6 +82,9 @@ pub(super) struct DetectorPlan {
     pub(super) cal: CalibrationConfig,
     pub(super) gates: Vec<(usize, Gate)>,
     pub(super) pid: Option<Vec<[f64; 2]>>,
+    /// Kinematic energies, MeV, of the peaks of the foil's impurities in this detector
+    /// (`target.contaminants`): a peak fit fits those inside its region as well.
+    pub(super) impurity_mev: Vec<f64>,
 }
 
 /// A checked `raw:` section for one set-up.
@@ -297,7 +300,16 @@ impl RawConfig {
                 }
                 c.require(self.columns.delta_e.is_some(), "columns.delta_e", "missing", "a ΔE column for PID polygons");
             }
-            detectors.push(DetectorPlan { id: det_id, cal, gates, pid });
+            let impurity_mev = setup.resolved.as_ref().map_or_else(Vec::new, |r| {
+                r.impurity_channels(setup.reaction.energy_mev, &setup.target.contaminants)
+                    .iter()
+                    .flat_map(|(_, _, ch)| {
+                        ch.at_lab_angle(det.theta_lab_deg.to_radians(), r.detect, Mode::Relativistic)
+                    })
+                    .map(|s| s.energy_lab_mev)
+                    .collect()
+            });
+            detectors.push(DetectorPlan { id: det_id, cal, gates, pid, impurity_mev });
         }
         if !c.problems.is_empty() {
             return Err(c.problems);

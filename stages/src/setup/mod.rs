@@ -24,7 +24,7 @@ pub use detector::{ApertureConfig, DetectorConfig, EfficiencyTableConfig};
 pub use id::Id;
 pub use reaction::{DetectConfig, Particle, ReactionConfig, ResolvedReaction, StateConfig};
 pub use run_record::{Charge, DetectorClocks, RunData, RunRecord};
-pub use target::TargetConfig;
+pub use target::{ContaminantConfig, TargetConfig};
 
 /// Serde's default of 1 for the target's isotopic fraction and a detector's efficiency.
 fn one() -> f64 {

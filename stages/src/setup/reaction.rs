@@ -124,6 +124,26 @@ impl ResolvedReaction {
     pub fn is_elastic(&self, state: &str) -> bool {
         self.ejectile == self.beam && self.channels.iter().any(|(s, _)| s.name == state && s.excitation_mev == 0.0)
     }
+
+    /// Elastic scattering of the beam on each impurity of the foil (`target.contaminants`)
+    /// at the beam energy: the impurity's nuclide and the channel, in the order given; an
+    /// impurity that is not a nuclide of the table, or whose channel cannot be built, is
+    /// left out (the target's checks refuse such a name).
+    pub fn impurity_channels<'a>(
+        &self,
+        energy_mev: f64,
+        contaminants: &'a [super::ContaminantConfig],
+    ) -> Vec<(&'a super::ContaminantConfig, &'static Nuclide, Channel)> {
+        contaminants
+            .iter()
+            .filter_map(|k| {
+                let nuclide = nuclide::parse(&k.nuclide).ok()?;
+                let (m_beam, m_c) = (self.beam.mass_mev, nuclide.nuclear_mass_mev());
+                let masses = Masses { beam_mev: m_beam, target_mev: m_c, ejectile_mev: m_beam, recoil_mev: m_c };
+                Channel::new(masses, energy_mev, 0.0).ok().map(|ch| (k, nuclide, ch))
+            })
+            .collect()
+    }
 }
 
 impl ReactionConfig {

@@ -34,6 +34,22 @@ pub struct TargetConfig {
     /// longer by 1/cos(tilt). Default 0, range [0, 90).
     #[serde(default)]
     pub tilt_deg: f64,
+    /// Light impurities of the foil (carbon build-up, oxide): the elastic peak of the beam
+    /// on each is fitted as a peak of no state where it falls inside a peak fit's region
+    /// (`raw.background: peak_fit_*`); `xsflow simulate` puts these peaks into the spectra
+    /// and `xsflow beamtime` counts their rate. Default none.
+    #[serde(default)]
+    pub contaminants: Vec<ContaminantConfig>,
+}
+
+/// One impurity of the target foil.
+#[derive(Debug, Clone, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct ContaminantConfig {
+    /// The nuclide (`12C`, `16O`).
+    pub nuclide: String,
+    /// Its areal density in µg/cm² along the foil normal; > 0.
+    pub areal_density_ug_cm2: f64,
 }
 
 impl TargetConfig {
@@ -66,6 +82,16 @@ impl TargetConfig {
         c.positive("molar_mass_g_mol", self.molar_mass_g_mol);
         c.fraction("isotopic_fraction", self.isotopic_fraction);
         c.require((0.0..90.0).contains(&self.tilt_deg), "tilt_deg", self.tilt_deg, "an angle in [0, 90) degrees");
+        for (i, k) in self.contaminants.iter().enumerate() {
+            let known = crate::physics::nuclide::parse(&k.nuclide).is_ok_and(|n| n.z > 0);
+            c.require(
+                known,
+                &format!("contaminants[{i}].nuclide"),
+                &k.nuclide,
+                "a charged nuclide of the mass table, e.g. 12C",
+            );
+            c.positive(&format!("contaminants[{i}].areal_density_ug_cm2"), k.areal_density_ug_cm2);
+        }
         c.problems
     }
 }

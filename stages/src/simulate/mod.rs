@@ -18,6 +18,7 @@
 //! where N_all counts every arriving event of the run (all peaks and the background) and T
 //! is its real time. The charge Q is chosen so that N_all is the `--events` asked for.
 
+pub mod beamtime;
 mod config;
 pub mod physics;
 pub mod sample;
@@ -111,11 +112,30 @@ pub struct Peak {
     pub counts_per_luminosity_cm2: f64,
 }
 
+/// The elastic peak of the beam on one impurity of the foil (`target.contaminants`), as
+/// one detector sees it on one kinematic branch.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ContaminantPeak {
+    /// Index of the detector in config order.
+    pub detector: usize,
+    /// The impurity.
+    pub nuclide: String,
+    /// Kinematic branch.
+    pub branch: u8,
+    /// Lab energy of the detected particle, MeV.
+    pub energy_lab_mev: f64,
+    /// Expected arriving counts per unit luminosity of the target nuclide (per 1/cm²),
+    /// before dead time.
+    pub counts_per_luminosity_cm2: f64,
+}
+
 /// Every peak of the experiment, with its truth, and the luminosity per coulomb.
 #[derive(Debug, Clone)]
 pub struct Experiment {
     /// The peaks, by detector in config order, then state in config order, then branch.
     pub peaks: Vec<Peak>,
+    /// The impurities' peaks, by impurity, then detector, then branch.
+    pub contaminants: Vec<ContaminantPeak>,
     /// Integrated luminosity per coulomb of beam charge, 1/(cm² C).
     pub luminosity_per_cm2_per_c: f64,
 }
@@ -171,7 +191,55 @@ pub fn experiment(setup: &Setup, truths: &BTreeMap<String, StateTruth>) -> Resul
     if !peaks.iter().any(|p| p.counts_per_luminosity_cm2 > 0.0) {
         return Err(SimulateError::NoCounts);
     }
-    Ok(Experiment { peaks, luminosity_per_cm2_per_c })
+    let contaminants = contaminant_peaks(setup, resolved)?;
+    Ok(Experiment { peaks, contaminants, luminosity_per_cm2_per_c })
+}
+
+/// The elastic peaks of the beam on the foil's impurities: Rutherford scattering
+/// ([`crate::physics::rutherford::cm_nonrel_mb_sr`], the convention of `model: rutherford`)
+/// at the CM angle of each detector's relativistic kinematic solution, per unit luminosity
+/// of the target nuclide:
+///     N/L = (dσ/dΩ)_lab ΔΩ ε · n_c/n_t,   n_c/n_t = (ρx_c/M_c) / (ρx f/M)
+/// (the tilt's 1/cos α is common to both), M_c the impurity's atomic mass in g/mol.
+fn contaminant_peaks(
+    setup: &Setup,
+    resolved: &crate::setup::ResolvedReaction,
+) -> Result<Vec<ContaminantPeak>, SimulateError> {
+    let target_per_g = setup.target.areal_density_g_cm2().ok_or(SimulateError::Unresolved)?
+        * setup.target.isotopic_fraction
+        / setup.target.molar_mass_g_mol;
+    let beam = &resolved.beam;
+    let mut out = Vec::new();
+    for (k, nuclide, channel) in resolved.impurity_channels(setup.reaction.energy_mev, &setup.target.contaminants) {
+        let ratio = k.areal_density_ug_cm2 * 1e-6 / nuclide.atomic_mass_u / target_per_g;
+        let e_cm_mev = channel.cm_energy_nonrel_mev();
+        for (d, det) in setup.detectors.iter().enumerate() {
+            let solid_angle_sr = physics::solid_angle_sr(det).ok_or(SimulateError::Unresolved)?;
+            for s in channel.at_lab_angle(det.theta_lab_deg.to_radians(), resolved.detect, Mode::Relativistic) {
+                let efficiency =
+                    physics::efficiency(det, s.energy_lab_mev).map_err(|source| SimulateError::Efficiency {
+                        detector: det.id.0.clone(),
+                        state: format!("contaminant {}", k.nuclide),
+                        source,
+                    })?;
+                let dsdo_cm_mb_sr =
+                    crate::physics::rutherford::cm_nonrel_mb_sr(beam.z, nuclide.z, e_cm_mev, s.theta_cm_rad);
+                let per_luminosity = physics::counts_per_luminosity_cm2(
+                    dsdo_cm_mb_sr / s.domega_lab_per_domega_cm,
+                    solid_angle_sr,
+                    efficiency,
+                );
+                out.push(ContaminantPeak {
+                    detector: d,
+                    nuclide: k.nuclide.clone(),
+                    branch: s.branch,
+                    energy_lab_mev: s.energy_lab_mev,
+                    counts_per_luminosity_cm2: per_luminosity * ratio,
+                });
+            }
+        }
+    }
+    Ok(out)
 }
 
 /// A state's true dσ/dΩ_cm at CM angles in degrees.
@@ -214,6 +282,8 @@ pub struct RunNumbers {
     pub live_fraction: f64,
     /// Expected arriving counts of each peak of [`Experiment::peaks`], before dead time.
     pub peak_arrivals: Vec<f64>,
+    /// Expected arriving counts of each peak of [`Experiment::contaminants`].
+    pub contaminant_arrivals: Vec<f64>,
 }
 
 /// The run whose expected arriving events are `options.events`, counting a flat background
@@ -221,7 +291,8 @@ pub struct RunNumbers {
 pub fn run_numbers(e: &Experiment, options: &SimulateOptions, with_background: bool) -> RunNumbers {
     let per_luminosity: f64 = e.peaks.iter().map(|p| p.counts_per_luminosity_cm2).sum();
     let background = if with_background { options.background_fraction } else { 0.0 };
-    let events_per_c = per_luminosity * e.luminosity_per_cm2_per_c * (1.0 + background);
+    let contaminants: f64 = e.contaminants.iter().map(|p| p.counts_per_luminosity_cm2).sum();
+    let events_per_c = (per_luminosity * (1.0 + background) + contaminants) * e.luminosity_per_cm2_per_c;
     let charge_c = options.events / events_per_c;
     let luminosity_per_cm2 = charge_c * e.luminosity_per_cm2_per_c;
     let true_rate_per_s = options.events / options.real_time_s;
@@ -232,6 +303,7 @@ pub fn run_numbers(e: &Experiment, options: &SimulateOptions, with_background: b
         true_rate_per_s,
         live_fraction: physics::live_fraction(options.dead_time, true_rate_per_s, options.resolving_time_us * 1e-6),
         peak_arrivals: e.peaks.iter().map(|p| p.counts_per_luminosity_cm2 * luminosity_per_cm2).collect(),
+        contaminant_arrivals: e.contaminants.iter().map(|p| p.counts_per_luminosity_cm2 * luminosity_per_cm2).collect(),
     }
 }
 
@@ -249,9 +321,9 @@ pub struct ExpectedSpectra {
 }
 
 /// The spectra a run's peaks make through the detector response of the `raw:` section:
-/// Gaussian peaks of σ = `gates.resolution_mev` at the kinematic energies, through each
-/// detector's calibration, on a flat background of `background_fraction` of the
-/// detector's peak counts spread evenly over its channels.
+/// Gaussian peaks of σ = `gates.resolution_mev` at the kinematic energies (of the states
+/// and of the foil's impurities), through each detector's calibration, on a flat background of
+/// `background_fraction` of the detector's peak counts spread evenly over its channels.
 pub fn expected_spectra(e: &Experiment, run: &RunNumbers, raw: &RawPlan, background_fraction: f64) -> ExpectedSpectra {
     let channels = raw.n_channels();
     let detectors = raw.detector_ids().len();
@@ -264,6 +336,9 @@ pub fn expected_spectra(e: &Experiment, run: &RunNumbers, raw: &RawPlan, backgro
         for (p, counts) in e.peaks.iter().zip(&run.peak_arrivals).filter(|(p, _)| p.detector == d) {
             outside += physics::add_peak(means, raw.calibration(d), p.energy_lab_mev, sigma_mev, *counts);
             peak_total += counts;
+        }
+        for (p, counts) in e.contaminants.iter().zip(&run.contaminant_arrivals).filter(|(p, _)| p.detector == d) {
+            outside += physics::add_peak(means, raw.calibration(d), p.energy_lab_mev, sigma_mev, *counts);
         }
         let per_channel = background_fraction * peak_total / channels as f64;
         means.iter_mut().for_each(|m| *m += per_channel);

@@ -23,7 +23,7 @@ use serde::Deserialize;
 use crate::physics::cross_section::lab_mb_sr_per_count;
 use crate::physics::uncertainty::quadrature;
 use crate::stage::correct_dead_time::live_fraction_rel_err;
-use crate::table::{f64_values, with_f64_columns, with_scaled_optional_columns};
+use crate::table::{f64_values, f64_values_or, with_f64_columns, with_scaled_optional_columns};
 use crate::{Problem, RunContext, Stage, StageError};
 
 /// Settings of `compute_lab_cross_section` (none yet).
@@ -141,15 +141,8 @@ impl Stage for ComputeLabCrossSection {
     fn run(&self, table: DataFrame, _ctx: &RunContext<'_>) -> Result<DataFrame, StageError> {
         let cols = INPUTS.iter().map(|name| f64_values(&table, name)).collect::<Result<Vec<_>, _>>()?;
         let pair = |i: usize, row: usize| (cols[i][row], cols[i + 1][row]);
-        let optional = |name: &str, default: f64| {
-            if table.column(name).is_ok() {
-                f64_values(&table, name)
-            } else {
-                Ok(vec![default; table.height()])
-            }
-        };
-        let acceptance = optional("window_acceptance", 1.0)?;
-        let acceptance_err = optional("window_acceptance_err", 0.0)?;
+        let acceptance = f64_values_or(&table, "window_acceptance", 1.0)?;
+        let acceptance_err = f64_values_or(&table, "window_acceptance_err", 0.0)?;
         let live_own_rel_err = live_fraction_rel_err(&cols[6], &cols[8]).own;
         let points: Vec<LabCrossSection> = (0..table.height())
             .map(|r| {

@@ -33,9 +33,13 @@ pub enum DeadTimeMethod {
     PulserRatio,
     /// triggers_accepted / triggers_raw, binomial error.
     TriggerRatio,
-    /// Non-paralyzable model with `resolving_time_us` and the recorded rate.
+    /// Non-paralyzable model with `resolving_time_us` and the recorded rate; error from
+    /// `resolving_time_err_us` and, where the rate is triggers_accepted / real_time_s,
+    /// the counting error of the triggers, which include the peaks' own events
+    /// ([`dead_time::counted_trigger_live_fraction_err`]).
     NonParalyzable,
-    /// Paralyzable model with `resolving_time_us` and the recorded rate.
+    /// Paralyzable model with `resolving_time_us` and the recorded rate; errors as for
+    /// `non_paralyzable`.
     Paralyzable,
 }
 
@@ -187,7 +191,12 @@ impl CorrectDeadTime {
                     source,
                     origin: crate::Origin::RunRecord,
                 })?;
-                LiveFraction { value, err: (df_dtau * self.resolving_time_err_s).abs() }
+                let df_drate = dead_time::df_drate(rate, self.resolving_time_s, df_dtau);
+                let counted = match (run.recorded_rate_per_s, run.triggers_accepted) {
+                    (None, Some(n)) => dead_time::counted_trigger_live_fraction_err(value, df_drate, rate, n),
+                    _ => 0.0,
+                };
+                LiveFraction { value, err: (df_dtau * self.resolving_time_err_s).hypot(counted) }
             }
         };
         let err = quadrature(&[measured.err, measured.value * self.method_rel_err]);
@@ -518,6 +527,14 @@ mod tests {
                 "recorded_rate_per_s: 10000.0",
                 0.9,
                 0.01,
+            ),
+            // The rate counted: m = 90000 / 10 s = 9000 /s, f = 1 − m τ = 0.91, k = m τ/f =
+            // 0.098901, u(f) = f √(k² + 2k)/√90000 = 1.3820274961085252e-3 (Python).
+            (
+                "{ method: non_paralyzable, resolving_time_us: 10.0 }",
+                "triggers_accepted: 90000, real_time_s: 10.0",
+                0.91,
+                1.382_027_496_108_525_2e-3,
             ),
         ];
         for (settings, run, value, err) in cases {

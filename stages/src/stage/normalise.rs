@@ -18,7 +18,7 @@ use crate::physics::uncertainty::quadrature;
 use crate::problem::Checks;
 use crate::setup::{Id, ResolvedReaction};
 use crate::stage::correct_dead_time::live_fraction_rel_err;
-use crate::table::{f64_values, str_values, with_f64_columns};
+use crate::table::{f64_values, f64_values_or, str_values, with_f64_columns};
 use crate::{Problem, RunContext, RunRecord, Setup, Stage, StageError};
 
 /// How the absolute scale is fixed.
@@ -213,6 +213,9 @@ impl Normalise {
             what: format!("a channel of state {}", m.state),
         })?;
         let live_rel_err = live_fraction_rel_err(&cols[6], &cols[9]);
+        // The window acceptance where the yields have one (events and spectra), else 1.
+        let (acceptance, acceptance_err) =
+            (f64_values_or(table, "window_acceptance", 1.0)?, f64_values_or(table, "window_acceptance_err", 0.0)?);
         let mut points = Vec::new();
         for id in &m.detectors {
             let row = detectors.iter().zip(&states).position(|(d, s)| d == id && *s == m.state).ok_or_else(|| {
@@ -227,6 +230,7 @@ impl Normalise {
             let sigma_cm = m.rutherford.cm_mb_sr(reaction.beam.z, reaction.target.z, channel, theta_cm);
             points.push(MonitorPoint {
                 counts_net: (cols[0][row], cols[1][row]),
+                window_acceptance: (acceptance[row], acceptance_err[row]),
                 efficiency: (cols[2][row], cols[3][row]),
                 solid_angle_msr: (cols[4][row], cols[5][row]),
                 live_fraction: (cols[6][row], cols[6][row] * live_rel_err.own[row]),
