@@ -136,4 +136,10 @@ fn bad_requests_name_the_flag_or_file_and_what_is_accepted() {
         assert_eq!(out.status.code(), Some(2), "{}", text(&out));
         assert!(text(&out).contains(wanted), "{wanted:?} not in {}", text(&out));
     }
+    // A state the config lacks is blamed on this command's flag, not on `simulate`'s.
+    let args =
+        ["beamtime", "experiment.yaml", "--truth", "rutherford.yaml", "--current-na", "10", "--precision", "0.01"];
+    let out = xsflow(tmp.path(), &[&args[..], &["--state-truth", "3-_9.9=1.0"]].concat());
+    assert_eq!(out.status.code(), Some(2), "{}", text(&out));
+    assert!(text(&out).contains("xsflow beamtime --state-truth: found 3-_9.9=1.0"), "{}", text(&out));
 }

@@ -43,7 +43,7 @@ pub fn beamtime(req: &Request) -> Result<Beamtime, Vec<Diagnostic>> {
     let mut options = req.options.clone();
     (options.dead_time, options.resolving_time_us) = (dead_time, resolving_time_us);
     let mut problems = command_line_problems(COMMAND_LINE, &options.validate());
-    let truths = truths(&req.truth, &req.state_truths, &req.config, &p.setup).unwrap_or_else(|d| {
+    let truths = truths(COMMAND_LINE, &req.truth, &req.state_truths, &req.config, &p.setup).unwrap_or_else(|d| {
         problems.extend(d);
         Default::default()
     });

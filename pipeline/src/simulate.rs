@@ -122,7 +122,7 @@ pub fn simulate(req: &Request) -> Result<Summary, Vec<Diagnostic>> {
                 .with_help("choose a new folder, or remove this one"),
         );
     }
-    let truths = match truths(&req.truth, &req.state_truths, &req.config, &plan.setup) {
+    let truths = match truths(COMMAND_LINE, &req.truth, &req.state_truths, &req.config, &plan.setup) {
         Ok(t) => t,
         Err(d) => {
             problems.extend(d);
@@ -253,8 +253,9 @@ fn model(path: &Path, config: &Path, setup: &Setup) -> Result<StateTruth, Vec<Di
 }
 
 /// The true cross section of every state: `--state-truth` where given, else the `--truth`
-/// model for the elastic state.
+/// model for the elastic state; `command` names the command line in messages.
 pub(crate) fn truths(
+    command: &str,
     truth: &Path,
     state_truths: &[String],
     config: &Path,
@@ -264,7 +265,7 @@ pub(crate) fn truths(
     let mut out = BTreeMap::new();
     let mut problems = Vec::new();
     let flag = |value: &str, message: String| {
-        Diagnostic::new(Path::new(COMMAND_LINE), "--state-truth", format!("found {value}, expected {message}"))
+        Diagnostic::new(Path::new(command), "--state-truth", format!("found {value}, expected {message}"))
     };
     for text in state_truths {
         let Some((state, value)) = text.split_once('=') else {
