@@ -248,6 +248,9 @@ pub fn plan_with(config_path: &Path, empty_patterns_warn: bool) -> Result<Plan, 
             diags.push(file.problem(&Problem::new("stages", "an empty list", "at least one stage")));
         }
     }
+    if let Some(combine) = &config.combine {
+        diags.extend(locate(combine.validate()));
+    }
     if let (Some(report), Some(setup)) = (&config.report, &setup) {
         let ids: Vec<&str> = setup.detectors.iter().map(|d| d.id.0.as_str()).collect();
         diags.extend(locate(report.validate(&ids)));

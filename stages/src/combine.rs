@@ -65,6 +65,29 @@ fn default_tolerance() -> f64 {
     0.05
 }
 
+impl CombineConfig {
+    /// Its problems, keys under `combine`.
+    pub fn validate(&self) -> Vec<crate::Problem> {
+        let mut problems = Vec::new();
+        if !(self.angle_tolerance_deg.is_finite() && self.angle_tolerance_deg >= 0.0 && self.angle_tolerance_deg < 10.0)
+        {
+            problems.push(crate::Problem::new(
+                "combine.angle_tolerance_deg",
+                self.angle_tolerance_deg,
+                "an angle in degrees in [0, 10)",
+            ));
+        }
+        if !(self.poisson_below_counts.is_finite() && self.poisson_below_counts >= 0.0) {
+            problems.push(crate::Problem::new(
+                "combine.poisson_below_counts",
+                self.poisson_below_counts,
+                "a number of counts >= 0 (0 turns the likelihood weights off)",
+            ));
+        }
+        problems
+    }
+}
+
 impl Default for CombineConfig {
     fn default() -> Self {
         CombineConfig { angle_tolerance_deg: default_tolerance(), poisson_below_counts: default_poisson_below_counts() }
@@ -390,6 +413,22 @@ mod tests {
 
     /// Issue 11, defect 4: a row without a statistical error used to take the smallest
     /// variance of the others; every counted row now has one, so none is refused.
+    #[test]
+    fn settings_outside_their_range_are_named() {
+        // (tolerance, poisson_below_counts, keys refused)
+        let cases: [(f64, f64, &[&str]); 4] = [
+            (0.05, 20.0, &[]),
+            (0.0, 0.0, &[]),
+            (-1.0, 20.0, &["combine.angle_tolerance_deg"]),
+            (0.05, f64::NAN, &["combine.poisson_below_counts"]),
+        ];
+        for (tolerance, below, keys) in cases {
+            let c = CombineConfig { angle_tolerance_deg: tolerance, poisson_below_counts: below };
+            let got: Vec<String> = c.validate().into_iter().map(|p| p.key).collect();
+            assert_eq!(got, keys, "{tolerance} {below}");
+        }
+    }
+
     #[test]
     fn issue_11_a_row_without_a_statistical_error_is_refused() {
         for stat in [0.0, -1.0] {
