@@ -7,6 +7,7 @@ mod cli;
 mod closure;
 mod common;
 mod config;
+mod corpus;
 mod dead_time;
 mod fitting;
 mod kinematics;
