@@ -307,7 +307,7 @@ const CASES: &[Case] = &[
     known(case("fit_empty", Fit, &[Write(FITF, b"")], 2, &["fit.yaml", "empty", "model:"]), "reported as 'expected internally tagged enum FitModelConfig' without saying a model: key is needed"),
     case("fit_unknown_model", Fit, &[Edit(FITF, "model: rutherford", "model: spline")], 2, &["fit.yaml:", "spline", "rutherford"]),
     known(case("fit_legendre_order_negative", Fit, &[Write(FITF, b"model: legendre\norder: -1\n")], 2, &["fit.yaml:2", "order", "-1"]), "reported at fit.yaml:1:1 as 'expected usize', without the key order"),
-    known(case("fit_legendre_order_huge", Fit, &[Write(FITF, b"model: legendre\norder: 1000000000\n")], 2, &["fit.yaml:2", "order", "1000000000"]), "a Legendre order of 10^9 aborts the process on a 64 GB allocation"),
+    case("fit_legendre_order_huge", Fit, &[Write(FITF, b"model: legendre\norder: 1000000000\n")], 2, &["fit.yaml:2", "order", "1000000000"]),
     case("fit_range_reversed", Fit, &[Write(FITF, b"model: legendre\norder: 2\nfit:\n  theta_cm_range_deg: [150.0, 60.0]\n")], 2, &["fit.yaml:4", "theta_cm_range_deg"]),
     case("fit_range_outside", Fit, &[Write(FITF, b"model: legendre\norder: 2\nfit:\n  theta_cm_range_deg: [190.0, 200.0]\n")], 2, &["fit.yaml", "no data point of state elastic has θ_cm in [190, 200]°"]),
     case("fit_free_unknown_parameter", Fit, &[Write(FITF, b"model: optical\nreaction: { beam: 4He, target: 58Ni, energy_mev: 24.0 }\npotential:\n  real: { depth_mev: 130.0, r0_fm: 1.20, a_fm: 0.65 }\n  imag_volume: { depth_mev: 25.0, r0_fm: 1.35, a_fm: 0.50 }\n  coulomb: { r0_fm: 1.30 }\nfree:\n  real.depth_kev: { min: 20.0, max: 400.0 }\n")], 2, &["fit.yaml:8", "real.depth_kev"]),
