@@ -136,6 +136,22 @@ pub struct YamlFile {
     pub locations: Locations,
 }
 
+/// Largest YAML file read (a config, run record, model or fit file): far beyond any real
+/// one, small enough that a wrong path (a log, a data file) is refused before it is parsed.
+pub const MAX_YAML_BYTES: u64 = 16 << 20;
+
+/// Why `path` is not a file that can be read: absent, a folder, or not a regular file (a
+/// device such as /dev/zero, a pipe, a socket), which would be read without end; `None`
+/// for a regular file (links followed).
+pub fn not_a_file(path: &Path) -> Option<String> {
+    match std::fs::metadata(path) {
+        Err(_) => Some(format!("not found: {}", path.display())),
+        Ok(m) if m.is_dir() => Some(format!("{} is a folder", path.display())),
+        Ok(m) if !m.is_file() => Some(format!("{} is not a regular file", path.display())),
+        Ok(_) => None,
+    }
+}
+
 impl YamlFile {
     /// Read and parse a YAML file.
     ///
@@ -143,10 +159,20 @@ impl YamlFile {
     /// A diagnostic for an unreadable file, bytes that are not UTF-8, or a YAML syntax error
     /// (with its position).
     pub fn read(path: &Path) -> Result<Self, Diagnostic> {
-        let bytes = std::fs::read(path).map_err(|e| {
-            Diagnostic::new(path, "", format!("cannot read the file: {e}"))
+        let unreadable = |why: String| {
+            Diagnostic::new(path, "", format!("cannot read the file: {why}"))
                 .with_help("check the path; relative paths are relative to the file that names them")
-        })?;
+        };
+        if let Some(why) = not_a_file(path) {
+            return Err(unreadable(why));
+        }
+        let size = std::fs::metadata(path).map_or(0, |m| m.len());
+        if size > MAX_YAML_BYTES {
+            return Err(unreadable(format!(
+                "it holds {size} bytes, more than the {MAX_YAML_BYTES} a YAML file may have"
+            )));
+        }
+        let bytes = std::fs::read(path).map_err(|e| unreadable(e.to_string()))?;
         let text = match String::from_utf8(bytes.clone()) {
             Ok(text) => text,
             Err(e) => {
