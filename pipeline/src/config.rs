@@ -186,11 +186,27 @@ impl YamlFile {
                     .with_help("save the file as UTF-8 (YAML files are UTF-8 text)"));
             }
         };
+        let locations = Locations::of(&text);
         let value: Value = serde_yaml::from_str(&text).map_err(|e| {
+            let message = e.to_string();
+            if let Some((key, digits)) = too_large_integer(&message) {
+                let found = format!(
+                    "found {digits}, expected at most 20 digits ({}); write a larger number with an \
+                     exponent, such as 1.5e22",
+                    u64::MAX
+                );
+                return Diagnostic::new(path, key, found).at(locations.find(key));
+            }
             let place = e.location().map(|l| (l.line(), l.column()));
-            Diagnostic::new(path, "", format!("is not valid YAML: {e}")).at(place)
+            let message = match message.strip_prefix("repetition limit exceeded") {
+                Some(_) => "expands its aliases (*name) to too many nodes, expected a file whose aliases \
+                            repeat a few values (an alias-expansion bomb is refused)"
+                    .to_string(),
+                None => format!("is not valid YAML: {message}"),
+            };
+            Diagnostic::new(path, "", message).at(place)
         })?;
-        Ok(YamlFile { path: path.to_path_buf(), bytes, locations: Locations::of(&text), value })
+        Ok(YamlFile { path: path.to_path_buf(), bytes, locations, value })
     }
 
     /// A located diagnostic for a problem at `key` of this file.
@@ -222,7 +238,8 @@ impl YamlFile {
 /// Turn a serde message into a diagnostic: locate it, and suggest the closest name for an
 /// unknown field or variant.
 fn serde_message(file: &Path, locations: &Locations, mut key: String, message: &str) -> Diagnostic {
-    let message = message.split(" at line ").next().unwrap_or(message).to_string();
+    let message = message.split(" at line ").next().unwrap_or(message);
+    let message = plain_message(&key, message).unwrap_or_else(|| message.to_string());
     let mut help = None;
     for what in ["unknown field `", "unknown variant `"] {
         if let Some(rest) = message.strip_prefix(what) {
@@ -242,6 +259,48 @@ fn serde_message(file: &Path, locations: &Locations, mut key: String, message: &
         Some(h) => d.with_help(h),
         None => d,
     }
+}
+
+/// A serde message about a number or an empty file, said in the terms of the file: the
+/// value found and what is accepted, without the parser's internal type names.
+fn plain_message(key: &str, message: &str) -> Option<String> {
+    if let Some(rest) = message.strip_prefix("invalid type: string \"") {
+        // A number the parser could not hold (1e400) arrives as a string.
+        let (text, expected) = rest.split_once("\", expected ")?;
+        let number: f64 = text.parse().ok()?;
+        return (!number.is_finite() && matches!(expected, "f64" | "f32")).then(|| {
+            format!("found {text}, expected a finite number (beyond about ±1.8e308, the range of a 64-bit float)")
+        });
+    }
+    if let Some(rest) = message.strip_prefix("invalid value: integer `") {
+        let (digits, expected) = rest.split_once("`, expected ")?;
+        return Some(format!("found {digits}, expected {}", plain_expectation(expected)?));
+    }
+    if key.is_empty() && message.starts_with("invalid type: unit value, expected internally tagged enum") {
+        let tag = if message.ends_with("ModelConfig") { " with a `model:` key" } else { "" };
+        return Some(format!("found an empty file, expected a mapping{tag}"));
+    }
+    None
+}
+
+/// What a parser's integer type accepts, in plain words.
+fn plain_expectation(rust_type: &str) -> Option<String> {
+    let most = match rust_type {
+        "u8" => u64::from(u8::MAX),
+        "u16" => u64::from(u16::MAX),
+        "u32" => u64::from(u32::MAX),
+        "u64" | "usize" => u64::MAX,
+        _ => return None,
+    };
+    Some(format!("a whole number from 0 to {most}"))
+}
+
+/// The key and digits of an integer too long for the YAML parser (more than 64 bits), from
+/// its message "KEY: invalid type: integer `DIGITS` as u128, expected any YAML value".
+fn too_large_integer(message: &str) -> Option<(&str, &str)> {
+    let (key, rest) = message.split_once(": invalid type: integer `")?;
+    let (digits, rest) = rest.split_once('`')?;
+    rest.starts_with(" as u128").then_some((key, digits))
 }
 
 /// The accepted name closest to `name`, if any is close enough to be a likely typo.
