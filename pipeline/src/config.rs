@@ -186,6 +186,12 @@ impl YamlFile {
                     .with_help("save the file as UTF-8 (YAML files are UTF-8 text)"));
             }
         };
+        if let Some(place) = too_deep(&text) {
+            let message = format!(
+                "nests lists or mappings ([ or {{) more than {MAX_FLOW_DEPTH} deep, expected a file nested a few levels"
+            );
+            return Err(Diagnostic::new(path, "", message).at(Some(place)));
+        }
         let locations = Locations::of(&text);
         let value: Value = serde_yaml::from_str(&text).map_err(|e| {
             let message = e.to_string();
@@ -259,6 +265,39 @@ fn serde_message(file: &Path, locations: &Locations, mut key: String, message: &
         Some(h) => d.with_help(h),
         None => d,
     }
+}
+
+/// Deepest nesting of flow lists and mappings read; the parser takes minutes to refuse
+/// 100 000 nested `[` (issue 18), this scan refuses them at once.
+const MAX_FLOW_DEPTH: usize = 100;
+
+/// Line and column where flow brackets (`[`, `{`) first nest deeper than
+/// [`MAX_FLOW_DEPTH`], outside quotes and comments; `None` when they never do. A bracket
+/// inside a plain scalar counts too, which can only make the depth larger by a few.
+fn too_deep(text: &str) -> Option<(usize, usize)> {
+    let mut depth = 0usize;
+    let mut quote = None;
+    for (line_index, line) in text.lines().enumerate() {
+        let mut previous = ' ';
+        for (column_index, ch) in line.chars().enumerate() {
+            match (quote, ch) {
+                (Some(q), _) if ch == q => quote = None,
+                (Some(_), _) => {}
+                (None, '"' | '\'') => quote = Some(ch),
+                (None, '#') if previous.is_whitespace() => break,
+                (None, '[' | '{') => {
+                    depth += 1;
+                    if depth > MAX_FLOW_DEPTH {
+                        return Some((line_index + 1, column_index + 1));
+                    }
+                }
+                (None, ']' | '}') => depth = depth.saturating_sub(1),
+                (None, _) => {}
+            }
+            previous = ch;
+        }
+    }
+    None
 }
 
 /// A serde message about a number or an empty file, said in the terms of the file: the
