@@ -292,7 +292,7 @@ const CASES: &[Case] = &[
     case("model_depth_1e12", Model, &[Edit(MODEL, "depth_mev: 150.0", "depth_mev: 1.0e12")], 2, &["model.yaml:4:1 potential", "within ±10000 MeV, found 1000000000000"]),
     case("model_energy_1e6", Model, &[Edit(MODEL, "energy_mev: 24.0", "energy_mev: 1.0e6")], 2, &["model.yaml:", "did not converge by L = 2000", "beyond what this solver sums"]),
     case("model_l_max_1e9", Model, &[Append(MODEL, b"numerics: { l_max: 1000000000 }\n")], 2, &["l_max must be at most 2000 partial waves, found 1000000000"]),
-    known(case("model_l_max_negative", Model, &[Append(MODEL, b"numerics: { l_max: -1 }\n")], 2, &["model.yaml:", "l_max", "-1"]), "reported at model.yaml:2:1 as 'expected usize', without the key numerics.l_max on line 10"),
+    known(case("model_l_max_negative", Model, &[Append(MODEL, b"numerics: { l_max: -1 }\n")], 2, &["model.yaml:", "l_max", "-1"]), "reported at model.yaml:2:1, without the key numerics.l_max (line 10): serde loses the path inside the tagged enum"),
     case("model_accuracy_zero", Model, &[Append(MODEL, b"numerics: { accuracy: 0.0 }\n")], 2, &["model.yaml:10:13 numerics.accuracy: found 0, expected a relative accuracy in (0, 0.01]"]),
     case("model_step_tiny", Model, &[Append(MODEL, b"numerics: { step_fm: 1.0e-9 }\n")], 2, &["model.yaml:", "more than the 2000000 allowed", "step_fm"]),
     case("model_matching_radius_huge", Model, &[Append(MODEL, b"numerics: { matching_radius_fm: 1.0e9 }\n")], 2, &["model.yaml:", "more than the 2000000 allowed", "matching_radius_fm"]),
@@ -306,7 +306,7 @@ const CASES: &[Case] = &[
     // ---- fit files (xsflow fit) ----
     case("fit_empty", Fit, &[Write(FITF, b"")], 2, &["fit.yaml", "empty", "model:"]),
     case("fit_unknown_model", Fit, &[Edit(FITF, "model: rutherford", "model: spline")], 2, &["fit.yaml:", "spline", "rutherford"]),
-    known(case("fit_legendre_order_negative", Fit, &[Write(FITF, b"model: legendre\norder: -1\n")], 2, &["fit.yaml:2", "order", "-1"]), "reported at fit.yaml:1:1 as 'expected usize', without the key order"),
+    known(case("fit_legendre_order_negative", Fit, &[Write(FITF, b"model: legendre\norder: -1\n")], 2, &["fit.yaml:2", "order", "-1"]), "reported at fit.yaml:1:1, without the key order (line 2): serde loses the path inside the tagged enum"),
     case("fit_legendre_order_huge", Fit, &[Write(FITF, b"model: legendre\norder: 1000000000\n")], 2, &["fit.yaml:2", "order", "1000000000"]),
     case("fit_range_reversed", Fit, &[Write(FITF, b"model: legendre\norder: 2\nfit:\n  theta_cm_range_deg: [150.0, 60.0]\n")], 2, &["fit.yaml:4", "theta_cm_range_deg"]),
     case("fit_range_outside", Fit, &[Write(FITF, b"model: legendre\norder: 2\nfit:\n  theta_cm_range_deg: [190.0, 200.0]\n")], 2, &["fit.yaml", "no data point of state elastic has θ_cm in [190, 200]°"]),
