@@ -9,6 +9,7 @@ mod closure;
 mod closure_chain;
 mod common;
 mod config;
+mod corpus;
 mod dead_time;
 mod fitting;
 mod kinematics;

@@ -166,7 +166,7 @@ pub enum Command {
         #[arg(long)]
         target: String,
         /// Beam kinetic energy in MeV.
-        #[arg(long = "energy-mev", allow_negative_numbers = true)]
+        #[arg(long = "energy-mev", allow_negative_numbers = true, value_parser = representable_f64)]
         energy_mev: f64,
         /// Lab angles in degrees: A:B:STEP or a comma list (a leading minus is read as a
         /// value, so that a negative angle gets a clear error).
@@ -200,10 +200,10 @@ pub enum Command {
         #[arg(long)]
         material: String,
         /// Kinetic energy of the ion in MeV.
-        #[arg(long = "energy-mev", allow_negative_numbers = true)]
+        #[arg(long = "energy-mev", allow_negative_numbers = true, value_parser = representable_f64)]
         energy_mev: f64,
         /// Areal density of a layer in µg/cm²: adds energy loss, exit energy, straggling.
-        #[arg(long = "thickness-ug-cm2", allow_negative_numbers = true)]
+        #[arg(long = "thickness-ug-cm2", allow_negative_numbers = true, value_parser = representable_f64)]
         thickness_ug_cm2: Option<f64>,
         /// Output format.
         #[arg(long, value_enum, default_value_t = StoppingFormat::Table)]
@@ -366,6 +366,18 @@ pub enum Command {
         #[arg(value_parser = crate::schema::NAMES, default_value = "config")]
         name: String,
     },
+}
+
+/// A number flag that a 64-bit float can hold: `1e400` is refused as written instead of
+/// becoming infinity (the range checks after it then say what is accepted).
+fn representable_f64(text: &str) -> Result<f64, String> {
+    let value: f64 = text.parse().map_err(|e| format!("{e}, expected a number"))?;
+    if value.is_infinite() && !text.to_ascii_lowercase().contains("inf") {
+        return Err(format!(
+            "found {text}, expected a finite number (beyond about ±1.8e308, the range of a 64-bit float)"
+        ));
+    }
+    Ok(value)
 }
 
 #[cfg(test)]

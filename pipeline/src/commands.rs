@@ -423,6 +423,10 @@ fn fit_command(data: &Path, model: &Path, state: Option<&str>, out: Option<&Path
     };
     let mut output = match fit::run(&loaded, &table, &state) {
         Ok(o) => o,
+        // A column the fit needs is the data's fault; everything else is the fit file's.
+        Err(e @ fit::FitError::Data(stages::StageError::MissingColumn { .. })) => {
+            return Report::diagnostics(&[Diagnostic::new(data, "", e.to_string())])
+        }
         Err(e) => return Report::diagnostics(&[Diagnostic::new(model, "", e.to_string())]),
     };
     let out_dir = out.map_or_else(|| model.parent().unwrap_or(Path::new(".")).join("fit"), Path::to_path_buf);

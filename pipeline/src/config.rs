@@ -136,6 +136,22 @@ pub struct YamlFile {
     pub locations: Locations,
 }
 
+/// Largest YAML file read (a config, run record, model or fit file): far beyond any real
+/// one, small enough that a wrong path (a log, a data file) is refused before it is parsed.
+pub const MAX_YAML_BYTES: u64 = 16 << 20;
+
+/// Why `path` is not a file that can be read: absent, a folder, or not a regular file (a
+/// device such as /dev/zero, a pipe, a socket), which would be read without end; `None`
+/// for a regular file (links followed).
+pub fn not_a_file(path: &Path) -> Option<String> {
+    match std::fs::metadata(path) {
+        Err(_) => Some(format!("not found: {}", path.display())),
+        Ok(m) if m.is_dir() => Some(format!("{} is a folder", path.display())),
+        Ok(m) if !m.is_file() => Some(format!("{} is not a regular file", path.display())),
+        Ok(_) => None,
+    }
+}
+
 impl YamlFile {
     /// Read and parse a YAML file.
     ///
@@ -143,10 +159,20 @@ impl YamlFile {
     /// A diagnostic for an unreadable file, bytes that are not UTF-8, or a YAML syntax error
     /// (with its position).
     pub fn read(path: &Path) -> Result<Self, Diagnostic> {
-        let bytes = std::fs::read(path).map_err(|e| {
-            Diagnostic::new(path, "", format!("cannot read the file: {e}"))
+        let unreadable = |why: String| {
+            Diagnostic::new(path, "", format!("cannot read the file: {why}"))
                 .with_help("check the path; relative paths are relative to the file that names them")
-        })?;
+        };
+        if let Some(why) = not_a_file(path) {
+            return Err(unreadable(why));
+        }
+        let size = std::fs::metadata(path).map_or(0, |m| m.len());
+        if size > MAX_YAML_BYTES {
+            return Err(unreadable(format!(
+                "it holds {size} bytes, more than the {MAX_YAML_BYTES} a YAML file may have"
+            )));
+        }
+        let bytes = std::fs::read(path).map_err(|e| unreadable(e.to_string()))?;
         let text = match String::from_utf8(bytes.clone()) {
             Ok(text) => text,
             Err(e) => {
@@ -160,11 +186,33 @@ impl YamlFile {
                     .with_help("save the file as UTF-8 (YAML files are UTF-8 text)"));
             }
         };
+        if let Some(place) = too_deep(&text) {
+            let message = format!(
+                "nests lists or mappings ([ or {{) more than {MAX_FLOW_DEPTH} deep, expected a file nested a few levels"
+            );
+            return Err(Diagnostic::new(path, "", message).at(Some(place)));
+        }
+        let locations = Locations::of(&text);
         let value: Value = serde_yaml::from_str(&text).map_err(|e| {
+            let message = e.to_string();
+            if let Some((key, digits)) = too_large_integer(&message) {
+                let found = format!(
+                    "found {digits}, expected at most 20 digits ({}); write a larger number with an \
+                     exponent, such as 1.5e22",
+                    u64::MAX
+                );
+                return Diagnostic::new(path, key, found).at(locations.find(key));
+            }
             let place = e.location().map(|l| (l.line(), l.column()));
-            Diagnostic::new(path, "", format!("is not valid YAML: {e}")).at(place)
+            let message = match message.strip_prefix("repetition limit exceeded") {
+                Some(_) => "expands its aliases (*name) to too many nodes, expected a file whose aliases \
+                            repeat a few values (an alias-expansion bomb is refused)"
+                    .to_string(),
+                None => format!("is not valid YAML: {message}"),
+            };
+            Diagnostic::new(path, "", message).at(place)
         })?;
-        Ok(YamlFile { path: path.to_path_buf(), bytes, locations: Locations::of(&text), value })
+        Ok(YamlFile { path: path.to_path_buf(), bytes, locations, value })
     }
 
     /// A located diagnostic for a problem at `key` of this file.
@@ -196,7 +244,8 @@ impl YamlFile {
 /// Turn a serde message into a diagnostic: locate it, and suggest the closest name for an
 /// unknown field or variant.
 fn serde_message(file: &Path, locations: &Locations, mut key: String, message: &str) -> Diagnostic {
-    let message = message.split(" at line ").next().unwrap_or(message).to_string();
+    let message = message.split(" at line ").next().unwrap_or(message);
+    let message = plain_message(&key, message).unwrap_or_else(|| message.to_string());
     let mut help = None;
     for what in ["unknown field `", "unknown variant `"] {
         if let Some(rest) = message.strip_prefix(what) {
@@ -216,6 +265,81 @@ fn serde_message(file: &Path, locations: &Locations, mut key: String, message: &
         Some(h) => d.with_help(h),
         None => d,
     }
+}
+
+/// Deepest nesting of flow lists and mappings read; the parser takes minutes to refuse
+/// 100 000 nested `[` (issue 18), this scan refuses them at once.
+const MAX_FLOW_DEPTH: usize = 100;
+
+/// Line and column where flow brackets (`[`, `{`) first nest deeper than
+/// [`MAX_FLOW_DEPTH`], outside quotes and comments; `None` when they never do. A bracket
+/// inside a plain scalar counts too, which can only make the depth larger by a few.
+fn too_deep(text: &str) -> Option<(usize, usize)> {
+    let mut depth = 0usize;
+    let mut quote = None;
+    for (line_index, line) in text.lines().enumerate() {
+        let mut previous = ' ';
+        for (column_index, ch) in line.chars().enumerate() {
+            match (quote, ch) {
+                (Some(q), _) if ch == q => quote = None,
+                (Some(_), _) => {}
+                (None, '"' | '\'') => quote = Some(ch),
+                (None, '#') if previous.is_whitespace() => break,
+                (None, '[' | '{') => {
+                    depth += 1;
+                    if depth > MAX_FLOW_DEPTH {
+                        return Some((line_index + 1, column_index + 1));
+                    }
+                }
+                (None, ']' | '}') => depth = depth.saturating_sub(1),
+                (None, _) => {}
+            }
+            previous = ch;
+        }
+    }
+    None
+}
+
+/// A serde message about a number or an empty file, said in the terms of the file: the
+/// value found and what is accepted, without the parser's internal type names.
+fn plain_message(key: &str, message: &str) -> Option<String> {
+    if let Some(rest) = message.strip_prefix("invalid type: string \"") {
+        // A number the parser could not hold (1e400) arrives as a string.
+        let (text, expected) = rest.split_once("\", expected ")?;
+        let number: f64 = text.parse().ok()?;
+        return (!number.is_finite() && matches!(expected, "f64" | "f32")).then(|| {
+            format!("found {text}, expected a finite number (beyond about ±1.8e308, the range of a 64-bit float)")
+        });
+    }
+    if let Some(rest) = message.strip_prefix("invalid value: integer `") {
+        let (digits, expected) = rest.split_once("`, expected ")?;
+        return Some(format!("found {digits}, expected {}", plain_expectation(expected)?));
+    }
+    if key.is_empty() && message.starts_with("invalid type: unit value, expected internally tagged enum") {
+        let tag = if message.ends_with("ModelConfig") { " with a `model:` key" } else { "" };
+        return Some(format!("found an empty file, expected a mapping{tag}"));
+    }
+    None
+}
+
+/// What a parser's integer type accepts, in plain words.
+fn plain_expectation(rust_type: &str) -> Option<String> {
+    let most = match rust_type {
+        "u8" => u64::from(u8::MAX),
+        "u16" => u64::from(u16::MAX),
+        "u32" => u64::from(u32::MAX),
+        "u64" | "usize" => u64::MAX,
+        _ => return None,
+    };
+    Some(format!("a whole number from 0 to {most}"))
+}
+
+/// The key and digits of an integer too long for the YAML parser (more than 64 bits), from
+/// its message "KEY: invalid type: integer `DIGITS` as u128, expected any YAML value".
+fn too_large_integer(message: &str) -> Option<(&str, &str)> {
+    let (key, rest) = message.split_once(": invalid type: integer `")?;
+    let (digits, rest) = rest.split_once('`')?;
+    rest.starts_with(" as u128").then_some((key, digits))
 }
 
 /// The accepted name closest to `name`, if any is close enough to be a likely typo.

@@ -351,14 +351,11 @@ fn discover_runs(
                 }
                 Err(e) => diags.push(file.problem(&Problem::new(key, pattern, format!("a valid glob pattern ({e})")))),
             }
-        } else if full.is_file() {
-            found.insert(full);
+        } else if let Some(why) = crate::config::not_a_file(&full) {
+            let why = if full.exists() { why } else { format!("not found: {text}") };
+            diags.push(file.problem(&Problem::new(key, pattern, format!("an existing run record file ({why})"))));
         } else {
-            diags.push(file.problem(&Problem::new(
-                key,
-                pattern,
-                format!("an existing run record file (not found: {text})"),
-            )));
+            found.insert(full);
         }
     }
     found.into_iter().collect()
@@ -415,9 +412,9 @@ fn load_run(
         stages::setup::RunData::Spectra => "spectra_file",
     };
     let yields_path = record_path.parent().unwrap_or(Path::new(".")).join(name);
-    if problems.is_empty() && !yields_path.is_file() {
+    if let Some(why) = crate::config::not_a_file(&yields_path).filter(|_| problems.is_empty()) {
         let what = if data == stages::setup::RunData::Yields { "yields table" } else { "data file" };
-        problems.push(Problem::new(key, name, format!("an existing {what} (not found: {})", yields_path.display())));
+        problems.push(Problem::new(key, name, format!("an existing {what} ({why})")));
     }
     if problems.is_empty() && data != stages::setup::RunData::Yields && !has_raw {
         problems.push(Problem::new(

@@ -132,10 +132,13 @@ fn read_and_reduce(plan: &Plan, run: &LoadedRun) -> Result<Reduced, Vec<Diagnost
         vec![Diagnostic::new(yields, "", format!("{what}: {e}"))]
     })?;
     let (raw, raw_outputs) = if run.data == RunData::Yields {
-        let t = read_table(yields).map_err(|e| {
-            vec![Diagnostic::new(yields, "", e.to_string())
-                .with_help("a yields table needs columns detector, state, counts_gross (schemas/yields.schema.json)")]
-        })?;
+        let help = "a yields table needs columns detector, state, counts_gross (schemas/yields.schema.json)";
+        let t = read_table(yields).map_err(|e| vec![Diagnostic::new(yields, "", e.to_string()).with_help(help)])?;
+        if t.height() == 0 {
+            // Every column of a header-only CSV reads as text: say what is wrong instead.
+            let message = "found no data rows under the header, expected one row per detector and state";
+            return Err(vec![Diagnostic::new(yields, "", message).with_help(help)]);
+        }
         (t, None)
     } else {
         let (t, o) = reduce_raw(plan, run)?;

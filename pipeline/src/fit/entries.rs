@@ -66,15 +66,15 @@ pub fn plan_fit(
         }
     }
     let path = config_dir.join(&f.model_file);
-    let loaded = if path.is_file() {
-        load(&path, setup).map_err(|ds| problems.extend(ds.into_iter().map(FitProblem::File))).ok()
-    } else {
+    let loaded = if let Some(why) = crate::config::not_a_file(&path) {
         problems.push(FitProblem::Config(Problem::new(
             format!("{key}.model_file"),
             &f.model_file,
-            format!("an existing fit file (not found: {})", path.display()),
+            format!("an existing fit file ({why})"),
         )));
         None
+    } else {
+        load(&path, setup).map_err(|ds| problems.extend(ds.into_iter().map(FitProblem::File))).ok()
     };
     match loaded {
         Some(loaded) if problems.is_empty() => {

@@ -132,16 +132,16 @@ pub fn stack(tables: Vec<DataFrame>) -> Result<DataFrame, FitError> {
 /// The state to fit: the given one, or the only state of the table.
 ///
 /// # Errors
-/// No state given and the table holds several (they are listed), or no `state` column.
+/// No state given and the table holds several (they are listed), a state given that the
+/// table does not hold, or no `state` column.
 pub fn choose_state(table: &DataFrame, state: Option<&str>) -> Result<String, FitError> {
-    if let Some(s) = state {
-        return Ok(s.to_string());
-    }
     let mut states = stages::table::str_values(table, "state")?;
     states.sort();
     states.dedup();
-    match states.as_slice() {
-        [one] => Ok(one.clone()),
-        _ => Err(FitError::SeveralStates { states }),
+    match (state, states.as_slice()) {
+        (Some(s), _) if states.iter().any(|t| t == s) => Ok(s.to_string()),
+        (Some(s), _) => Err(FitError::StateAbsent { state: s.to_string(), states }),
+        (None, [one]) => Ok(one.clone()),
+        (None, _) => Err(FitError::SeveralStates { states }),
     }
 }

@@ -50,6 +50,14 @@ pub enum FitError {
         /// The states in the table.
         states: Vec<String>,
     },
+    /// The state asked for with --state is not in the table.
+    #[error("--state {state}: found no rows of this state, expected one of the table's states ({})", .states.join(", "))]
+    StateAbsent {
+        /// The state asked for.
+        state: String,
+        /// The states in the table.
+        states: Vec<String>,
+    },
     /// The table library failed.
     #[error(transparent)]
     Table(#[from] PolarsError),

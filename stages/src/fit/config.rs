@@ -15,6 +15,10 @@ use crate::problem::Checks;
 use crate::theory::{NumericsConfig, PotentialConfig, TheoryReaction};
 use crate::{Problem, Setup};
 
+/// Highest Legendre order a fit accepts: 61 coefficients, far more than any angular
+/// distribution constrains (common practice keeps the order below the number of points).
+const MAX_LEGENDRE_ORDER: usize = 60;
+
 /// One entry of a config's `fits:` list: a fit file and the state it fits. Fits run once,
 /// after every run is reduced, on the combined angular distribution.
 #[derive(Debug, Clone, Deserialize, JsonSchema)]
@@ -224,8 +228,10 @@ impl FitModelConfig {
                 }
             },
             FitModelConfig::Legendre { order, .. } => {
-                c.require(*order <= 60, "order", order, "an order from 0 to 60");
-                let params = (0..=*order)
+                c.require(*order <= MAX_LEGENDRE_ORDER, "order", order, "an order from 0 to 60");
+                // Capped so that a refused order (say 10^9) allocates nothing before the
+                // problem is reported.
+                let params = (0..=(*order).min(MAX_LEGENDRE_ORDER))
                     .map(|l| Parameter { name: format!("a{l}"), start: 0.0, min: None, max: None })
                     .collect();
                 (Model::Legendre { order: *order }, params, vec![], NormalisationMode::Fixed)

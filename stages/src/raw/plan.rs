@@ -242,7 +242,11 @@ impl RawConfig {
             c.non_negative(&format!("calibration.{key}.offset_err_mev"), cal.offset_err_mev);
             c.non_negative(&format!("calibration.{key}.gain_err_mev_per_channel"), cal.gain_err_mev_per_channel);
             let mut gates = Vec::new();
-            for (si, state) in states.iter().enumerate() {
+            // Windows placed with a falling calibration or a resolution <= 0 fail for every
+            // state; the problem already reported is the one to fix, so they are not tried.
+            let placeable = rising && g.resolution_mev.is_finite() && g.resolution_mev > 0.0;
+            let states_to_gate = if placeable { states.as_slice() } else { &[] };
+            for (si, state) in states_to_gate.iter().enumerate() {
                 let solutions = setup.resolved.as_ref().map_or_else(Vec::new, |r| {
                     r.channel(state).map_or_else(Vec::new, |ch| {
                         ch.at_lab_angle(det.theta_lab_deg.to_radians(), r.detect, Mode::Relativistic)
