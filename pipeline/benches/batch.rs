@@ -74,8 +74,20 @@ fn median(times: &mut [f64]) -> f64 {
 
 fn config_without_fits(src: &Path, dst: &Path, runs: &str) -> Result<(), BenchError> {
     let text = std::fs::read_to_string(src)?;
-    let head = text.split("\n  - type: fit").next().unwrap_or(&text);
-    let text = head
+    // Leave out the top-level `fits:` section: every line from `fits:` to the next
+    // top-level key.
+    let mut in_fits = false;
+    let kept: Vec<&str> = text
+        .lines()
+        .filter(|l| {
+            if l.starts_with(|c: char| c.is_ascii_alphabetic()) {
+                in_fits = l.starts_with("fits:");
+            }
+            !in_fits
+        })
+        .collect();
+    let text = kept
+        .join("\n")
         .replace("  - runs/*.run.yaml", &format!("  - {runs}"))
         .replace("  - listmode/*.run.yaml", &format!("  - {runs}"));
     Ok(std::fs::write(dst, text + "\n")?)
