@@ -35,6 +35,13 @@ fn stamp(entry: &RunEntry) -> Option<String> {
 /// # Errors
 /// A page that cannot be written.
 pub fn write(out_dir: &Path, runs_dir: &Path, entry: &RunEntry) -> Result<(bool, Option<RunFigures>), Diagnostic> {
+    // A run left unchanged by a later batch (`skipped`) shows the processing that made its
+    // outputs (`ok`), so its page and stamp stay as they were.
+    let mut processed = entry.clone();
+    if processed.status == crate::catalogue::RunStatus::Skipped {
+        processed.status = crate::catalogue::RunStatus::Ok;
+    }
+    let entry = &processed;
     let path = runs_dir.join(format!("{}.html", entry.run));
     let figures_path = runs_dir.join(format!("{}.json", entry.run));
     let stamp = stamp(entry);

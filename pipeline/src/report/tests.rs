@@ -56,6 +56,9 @@ fn an_unchanged_run_keeps_its_page_and_a_changed_one_is_rewritten() {
     let mut runs = vec![entry("0001", RunStatus::Ok, 10.0), entry("0002", RunStatus::Ok, 10.0)];
     write(dir.path(), &settings(), &runs).expect("written");
     assert_eq!(write(dir.path(), &settings(), &runs).expect("again"), Written { run_pages: 0, run_pages_kept: 2 });
+    // The next batch finds them unchanged and marks them skipped: the pages stay.
+    runs.iter_mut().for_each(|r| r.status = RunStatus::Skipped);
+    assert_eq!(write(dir.path(), &settings(), &runs).expect("skipped"), Written { run_pages: 0, run_pages_kept: 2 });
     runs[1].input_sha256 = "changed".into();
     assert_eq!(write(dir.path(), &settings(), &runs).expect("changed"), Written { run_pages: 1, run_pages_kept: 1 });
     // Runs of `reduce` have no hash: their pages are always made anew.
