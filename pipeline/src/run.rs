@@ -445,15 +445,21 @@ fn draw_plots(out_dir: &Path) {
     if let Err(d) = crate::plot::draw(crate::plot::Kind::AngularDistribution, &table, &svg, None, None, 3.0) {
         warn!(file = %d.file.display(), "plot not drawn: {}", d.message);
     }
-    // The landscape of each fit that found several minima, in its folder.
+    // The landscape of each fit that found several minima, in its folder; fit.json is
+    // read once, and the minima drawn from it.
     for fit in crate::layout::fit_dirs(&out_dir.join(crate::layout::FITS_DIR)) {
-        let several = std::fs::read_to_string(fit.join(crate::layout::FIT_JSON))
+        let minima = std::fs::read_to_string(fit.join(crate::layout::FIT_JSON))
             .ok()
             .and_then(|t| serde_json::from_str::<serde_json::Value>(&t).ok())
-            .is_some_and(|f| crate::plot::minima_of(&f).len() > 1);
-        if several {
+            .map(|f| crate::plot::minima_of(&f))
+            .unwrap_or_default();
+        if minima.len() > 1 {
             let svg = fit.join(crate::layout::LANDSCAPE_SVG);
-            if let Err(d) = crate::plot::draw(crate::plot::Kind::FitLandscape, &fit, &svg, None, None, 3.0) {
+            let drawn = crate::plot::draw_minima(&minima, crate::plot::Format::Svg).and_then(|bytes| {
+                crate::tables::write_atomic(&svg, &bytes)
+                    .map_err(|e| Diagnostic::new(&svg, "", format!("cannot write the plot: {e}")))
+            });
+            if let Err(d) = drawn {
                 warn!(file = %d.file.display(), "plot not drawn: {}", d.message);
             }
         }
